@@ -1,0 +1,948 @@
+"""File formats used by gwpred: graph collections, feature matrices, model archives.
+
+This module only moves data between files and Python objects; it does no
+computation.
+
+* Graph collections: JSON Lines of node-link records (``.jsonl``) or one
+  GraphML document holding several ``<graph>`` elements (``.graphml``).
+* Feature matrices: ``.npy`` (loaded without pickle) or delimited text
+  (``.csv`` / ``.tsv``) with an optional header row and ``id`` column.
+* Model archives: one ``.npz`` (zip of ``.npy`` members) with a JSON manifest
+  stored as a ``uint8`` member named ``__manifest__``; never pickled.
+
+All writers go through a temporary file in the target directory followed by
+:func:`os.replace`, so an interrupted write does not leave a half-written file
+under the target name.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import inspect
+import json
+import os
+import re
+import secrets
+import zipfile
+import zlib
+from collections.abc import Iterable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
+from pathlib import Path
+from typing import IO, Any, Literal, Union, overload
+from xml.etree import ElementTree
+
+import networkx as nx
+import numpy as np
+from networkx.readwrite.graphml import GraphMLReader, GraphMLWriter
+
+__all__ = [
+    "ARCHIVE_FORMAT",
+    "ARCHIVE_VERSION",
+    "GRAPH_EXTENSIONS",
+    "FEATURE_EXTENSIONS",
+    "read_graphs",
+    "write_graphs",
+    "read_features",
+    "write_features",
+    "save_archive",
+    "load_archive",
+]
+
+StrPath = Union[str, "os.PathLike[str]"]
+
+#: Value of the ``"format"`` manifest entry of every model archive.
+ARCHIVE_FORMAT = "gwpred-model"
+#: Newest archive layout this version of gwpred writes and reads.
+ARCHIVE_VERSION = 1
+#: Graph file extensions understood by :func:`read_graphs` / :func:`write_graphs`.
+GRAPH_EXTENSIONS = (".jsonl", ".graphml")
+#: Feature file extensions understood by :func:`read_features` / :func:`write_features`.
+FEATURE_EXTENSIONS = (".npy", ".csv", ".tsv")
+
+_MANIFEST_KEY = "__manifest__"
+_RESERVED_MANIFEST_KEYS = ("format", "format_version", "gwpred_version", "checksums")
+_NODE_LINK_RESERVED = frozenset({"directed", "multigraph", "graph", "nodes", "edges", "links"})
+_INT_LITERAL = re.compile(r"-?(?:0|[1-9][0-9]*)")
+_ZIP_EPOCH = (1980, 1, 1, 0, 0, 0)
+
+
+# --------------------------------------------------------------------------- helpers
+
+
+def _extension(path: Path, supported: Sequence[str], what: str) -> str:
+    ext = path.suffix.lower()
+    if ext not in supported:
+        raise ValueError(
+            f"unsupported {what} file extension {path.suffix!r} for path {str(path)!r}; "
+            f"supported extensions are: {', '.join(supported)}"
+        )
+    return ext
+
+
+def _require_file(path: Path, what: str) -> None:
+    if not path.exists():
+        raise FileNotFoundError(f"{what} file not found: {str(path)!r}")
+
+
+@contextmanager
+def _atomic_open(path: Path, binary: bool) -> Iterator[IO[Any]]:
+    """Open a temporary sibling of ``path`` for writing; move it into place on success."""
+    parent = path.parent
+    if not parent.is_dir():
+        raise FileNotFoundError(
+            f"cannot write {str(path)!r}: directory {str(parent)!r} does not exist; create it first"
+        )
+    tmp = parent / f".{path.name}.{os.getpid()}.{secrets.token_hex(4)}.tmp"
+    try:
+        if binary:
+            fh: IO[Any] = open(tmp, "xb")
+        else:
+            fh = open(tmp, "x", encoding="utf-8", newline="")
+        with fh:
+            yield fh
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+
+
+def _int_or_str(text: str) -> int | str:
+    """Return ``int(text)`` when ``text`` is a canonical integer literal, else ``text``."""
+    return int(text) if _INT_LITERAL.fullmatch(text) else text
+
+
+# ------------------------------------------------------------------ graph files
+
+
+def _node_link_keywords() -> dict[str, str]:
+    # networkx >= 3.4 names the edge list with ``edges=``; older releases use ``link=``.
+    if "edges" in inspect.signature(nx.node_link_data).parameters:
+        return {"edges": "edges"}
+    return {"link": "edges"}  # pragma: no cover - networkx < 3.4
+
+
+def _json_default(obj: Any) -> Any:
+    if isinstance(obj, np.generic) and not isinstance(obj, (np.void, np.object_)):
+        return obj.item()
+    raise TypeError(
+        f"attribute value {obj!r} of type {type(obj).__name__} cannot be stored in JSON; "
+        "use int, float, str, bool, None, lists or dicts"
+    )
+
+
+def _check_node_link_names(G: nx.Graph, index: int) -> None:
+    for n, d in G.nodes(data=True):
+        if "id" in d:
+            raise ValueError(
+                f"graphs[{index}]: node {n!r} has an attribute named 'id', which the "
+                "node-link format uses for the node itself; rename that attribute"
+            )
+    clashing = ("source", "target", "key") if G.is_multigraph() else ("source", "target")
+    for u, v, d in G.edges(data=True):
+        for name in clashing:
+            if name in d:
+                raise ValueError(
+                    f"graphs[{index}]: edge ({u!r}, {v!r}) has an attribute named {name!r}, "
+                    "which the node-link format uses for the edge itself; rename that attribute"
+                )
+
+
+def _graph_to_json_line(G: nx.Graph, index: int) -> str:
+    _check_node_link_names(G, index)
+    record = nx.node_link_data(G, **_node_link_keywords())
+    try:
+        return json.dumps(record, allow_nan=False, default=_json_default, ensure_ascii=False)
+    except TypeError as err:
+        raise TypeError(f"graphs[{index}] cannot be written as JSON: {err}") from err
+    except ValueError as err:
+        raise ValueError(
+            f"graphs[{index}] holds a NaN or infinite float attribute ({err}); JSON cannot "
+            "store it: replace or remove that value"
+        ) from err
+
+
+def _graph_from_record(record: Any, where: str) -> nx.Graph:
+    if not isinstance(record, dict):
+        raise ValueError(f"{where}: expected a JSON object (node-link record), got {type(record).__name__}")
+    if "nodes" not in record:
+        raise ValueError(f"{where}: node-link record has no 'nodes' list")
+    edge_key = "edges" if "edges" in record else "links" if "links" in record else None
+    if edge_key is None:
+        raise ValueError(
+            f"{where}: node-link record has no 'edges' list (use \"edges\": [] for a graph without edges)"
+        )
+    graph_attrs = record.get("graph", {})
+    if not isinstance(graph_attrs, dict):
+        raise ValueError(f"{where}: 'graph' must be a JSON object, got {type(graph_attrs).__name__}")
+    graph_attrs = dict(graph_attrs)
+    for key, value in record.items():
+        if key in _NODE_LINK_RESERVED:
+            continue
+        if key in graph_attrs and graph_attrs[key] != value:
+            raise ValueError(
+                f"{where}: top-level key {key!r}={value!r} conflicts with graph attribute "
+                f"{key!r}={graph_attrs[key]!r}; keep only one of them"
+            )
+        graph_attrs[key] = value
+    data = {k: v for k, v in record.items() if k in _NODE_LINK_RESERVED and k != edge_key}
+    data["edges"] = record[edge_key]
+    data["graph"] = graph_attrs
+    try:
+        # Records lacking the flags are read as simple undirected graphs.
+        return nx.node_link_graph(data, directed=False, multigraph=False, **_node_link_keywords())
+    except (TypeError, KeyError, AttributeError, ValueError, nx.NetworkXError) as err:
+        raise ValueError(f"{where}: invalid node-link record ({type(err).__name__}: {err})") from err
+
+
+def _read_jsonl(path: Path) -> list[nx.Graph]:
+    graphs: list[nx.Graph] = []
+    with open(path, "rb") as fh:
+        for lineno, raw in enumerate(fh, start=1):
+            where = f"{str(path)!r} line {lineno}"
+            try:
+                line = raw.decode("utf-8")
+            except UnicodeDecodeError as err:
+                raise ValueError(f"{where} is not UTF-8 text ({err}); save the file as UTF-8") from err
+            if not line.strip():
+                continue
+            try:
+                record = json.loads(line)
+            except json.JSONDecodeError as err:
+                raise ValueError(f"{where}: malformed JSON ({err.msg} at column {err.colno})") from err
+            graphs.append(_graph_from_record(record, where))
+    return graphs
+
+
+def _write_jsonl(path: Path, graphs: Sequence[nx.Graph]) -> None:
+    lines = [_graph_to_json_line(G, i) for i, G in enumerate(graphs)]
+    with _atomic_open(path, binary=False) as fh:
+        for line in lines:
+            fh.write(line)
+            fh.write("\n")
+
+
+def _graphml_copy(G: nx.Graph, index: int) -> nx.Graph:
+    """Copy ``G`` and check that GraphML can hold it without changing types."""
+    kinds = set()
+    for n in G.nodes:
+        if isinstance(n, bool) or not isinstance(n, (int, str)):
+            raise TypeError(
+                f"graphs[{index}] has node id {n!r} of type {type(n).__name__}; GraphML stores "
+                "node ids as text, so only int or str node ids read back unchanged: relabel the nodes"
+            )
+        kinds.add(isinstance(n, int))
+    if len(kinds) > 1:
+        raise TypeError(
+            f"graphs[{index}] mixes int and str node ids; GraphML stores node ids as text, so "
+            "they would not read back as written: relabel the nodes to one type"
+        )
+    if kinds == {False} and all(_INT_LITERAL.fullmatch(n) for n in G.nodes):
+        raise TypeError(
+            f"graphs[{index}] has str node ids that are all integer literals (e.g. "
+            f"{next(iter(G.nodes))!r}); they would read back from GraphML as int: relabel them to int"
+        )
+    H = G.copy()
+    if "id" in H.graph:
+        gid = H.graph["id"]
+        if isinstance(gid, bool) or not isinstance(gid, (int, str)):
+            raise TypeError(
+                f"graphs[{index}] has graph attribute id={gid!r} of type {type(gid).__name__}; "
+                "GraphML stores a graph id as text: use an int or str id"
+            )
+        if isinstance(gid, str) and _INT_LITERAL.fullmatch(gid):
+            raise TypeError(
+                f"graphs[{index}] has graph attribute id={gid!r}, a str that would read back "
+                "from GraphML as int: use int(id) or a non-numeric id"
+            )
+        H.graph["id"] = str(gid)
+    return H
+
+
+def _write_graphml(path: Path, graphs: Sequence[nx.Graph]) -> None:
+    writer = GraphMLWriter()
+    for i, G in enumerate(graphs):
+        H = _graphml_copy(G, i)
+        try:
+            writer.add_graph_element(H)
+        except (TypeError, nx.NetworkXError) as err:
+            raise TypeError(
+                f"graphs[{i}] cannot be written as GraphML: {err}; attribute values must be "
+                "int, float, str or bool"
+            ) from err
+        # GraphMLWriter keeps the pending <data> items of earlier graphs and would
+        # append them again for every later graph; drop them once they are written.
+        writer.attributes.clear()
+    with _atomic_open(path, binary=True) as fh:
+        writer.dump(fh)
+
+
+def _read_graphml(path: Path) -> list[nx.Graph]:
+    try:
+        root = ElementTree.parse(path).getroot()
+    except ElementTree.ParseError as err:
+        raise ValueError(f"{str(path)!r} is not well-formed XML: {err}") from err
+    ns = GraphMLReader.NS_GRAPHML
+    if root.tag != f"{{{ns}}}graphml":
+        raise ValueError(
+            f"{str(path)!r}: root element is <{root.tag}>, expected <graphml> in the GraphML "
+            f"namespace; add xmlns=\"{ns}\" to the root element"
+        )
+    graphs: list[nx.Graph] = []
+    try:
+        keys, defaults = GraphMLReader().find_graphml_keys(root)
+        for graph_xml in root.findall(f"{{{ns}}}graph"):
+            # A fresh reader per graph: the reader's multigraph flag and edge-id table
+            # would otherwise leak from one graph into the next.
+            G = GraphMLReader(node_type=str).make_graph(graph_xml, keys, defaults)
+            for name in ("node_default", "edge_default"):
+                if G.graph.get(name) == {}:
+                    del G.graph[name]
+            gid = graph_xml.get("id")
+            if gid is not None and "id" not in G.graph:
+                G.graph["id"] = _int_or_str(gid)
+            if all(_INT_LITERAL.fullmatch(n) for n in G.nodes):
+                G = nx.relabel_nodes(G, {n: int(n) for n in G.nodes}, copy=True)
+            graphs.append(G)
+    except (nx.NetworkXError, ValueError, KeyError, TypeError) as err:
+        raise ValueError(
+            f"{str(path)!r}: invalid GraphML in graph #{len(graphs) + 1}: {err}"
+        ) from err
+    return graphs
+
+
+def read_graphs(path: StrPath) -> list[nx.Graph]:
+    """Read a collection of labeled graphs from a ``.jsonl`` or ``.graphml`` file.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        File to read. The extension selects the format: ``.jsonl`` (one
+        node-link JSON record per line) or ``.graphml`` (one GraphML document
+        holding any number of ``<graph>`` elements).
+
+    Returns
+    -------
+    list of networkx.Graph
+        The graphs in file order, with node, edge and graph attributes.
+
+    Raises
+    ------
+    ValueError
+        If the extension is not supported, a JSON line is malformed or not a
+        node-link record (the message names the file and line number), or the
+        GraphML document is invalid.
+    FileNotFoundError
+        If ``path`` does not exist.
+
+    Notes
+    -----
+    JSON Lines: blank lines are skipped. Each record is what
+    :func:`networkx.node_link_data` produces with ``edges="edges"``; records
+    with a ``"links"`` list (older networkx default) are accepted too. Keys of a
+    record other than ``directed``, ``multigraph``, ``graph``, ``nodes`` and
+    ``edges`` are added to the graph attributes. A record without the
+    ``directed`` / ``multigraph`` flags is read as a simple undirected graph.
+
+    GraphML: node ids are text in GraphML; they are turned into ``int`` when
+    every id of a graph is a canonical integer literal (``"0"``, ``"17"``,
+    ``"-3"``) and kept as ``str`` otherwise. The standard ``<graph id="...">``
+    attribute becomes the graph attribute ``"id"`` under the same rule.
+    Attribute types follow the ``<key attr.type>`` declarations (``int``/
+    ``long`` -> int, ``float``/``double`` -> float, ``boolean`` -> bool,
+    ``string`` -> str). GraphML does not record whether a graph is a
+    multigraph; as in networkx, a graph is returned as a multigraph only when
+    it has parallel edges.
+
+    Directed graphs and multigraphs are returned as such, never converted;
+    callers that need simple undirected graphs must check for themselves.
+
+    Examples
+    --------
+    >>> import os, tempfile, networkx as nx
+    >>> G = nx.Graph(id=7)
+    >>> G.add_node(0, label="C"); G.add_node(1, label="O"); G.add_edge(0, 1, order=2)
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     write_graphs(os.path.join(d, "g.graphml"), [G])
+    ...     H, = read_graphs(os.path.join(d, "g.graphml"))
+    >>> H.graph["id"], H.nodes[1]["label"], H.edges[0, 1]["order"]
+    (7, 'O', 2)
+    """
+    p = Path(path)
+    ext = _extension(p, GRAPH_EXTENSIONS, "graph")
+    _require_file(p, "graph")
+    if ext == ".jsonl":
+        return _read_jsonl(p)
+    return _read_graphml(p)
+
+
+def write_graphs(path: StrPath, graphs: Iterable[nx.Graph]) -> None:
+    """Write a collection of labeled graphs to a ``.jsonl`` or ``.graphml`` file.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Target file; the extension selects the format (see :func:`read_graphs`).
+        An existing file is replaced.
+    graphs : iterable of networkx.Graph
+        Graphs to write, with their node, edge and graph attributes. Directed
+        graphs and multigraphs are written as such.
+
+    Returns
+    -------
+    None
+
+    Raises
+    ------
+    ValueError
+        If the extension is not supported, ``graphs`` holds something that is
+        not a networkx graph, a node has an attribute named ``id`` or an edge
+        one named ``source``/``target`` (JSON Lines: these names are taken by
+        the node-link layout), or an attribute is NaN/infinite (JSON Lines).
+    TypeError
+        If an attribute value cannot be stored in the chosen format (JSON
+        Lines: JSON types and numpy scalars; GraphML: int, float, str, bool),
+        or, for GraphML, node ids / the graph ``id`` would not read back with
+        the same type (they must be all int or all str, and str ids must not
+        all be integer literals such as ``"7"``).
+    FileNotFoundError
+        If the target directory does not exist.
+
+    Notes
+    -----
+    The file is first written to a temporary file in the same directory and
+    then moved into place with :func:`os.replace`. For GraphML the graph
+    attribute ``"id"`` is stored as the standard ``<graph id="...">``
+    attribute; the input graphs are not modified. networkx's GraphML writer
+    leaves out graph attributes named ``node_default`` and ``edge_default``.
+
+    Examples
+    --------
+    >>> import os, tempfile, networkx as nx
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     write_graphs(os.path.join(d, "g.jsonl"), [nx.path_graph(3), nx.Graph()])
+    ...     [G.number_of_nodes() for G in read_graphs(os.path.join(d, "g.jsonl"))]
+    [3, 0]
+    """
+    p = Path(path)
+    ext = _extension(p, GRAPH_EXTENSIONS, "graph")
+    graphs = list(graphs)
+    for i, G in enumerate(graphs):
+        if not isinstance(G, nx.Graph):
+            raise ValueError(
+                f"graphs[{i}] is a {type(G).__name__}, not a networkx graph; pass a list of networkx graphs"
+            )
+    if ext == ".jsonl":
+        _write_jsonl(p, graphs)
+    else:
+        _write_graphml(p, graphs)
+
+
+# ---------------------------------------------------------------- feature files
+
+
+def _check_finite(X: np.ndarray, where: str, locate: Any) -> None:
+    bad = ~np.isfinite(X)
+    if bad.any():
+        r, c = (int(v) for v in np.argwhere(bad)[0])
+        raise ValueError(
+            f"{where} contains {int(bad.sum())} non-finite value(s) (NaN or inf); the first is "
+            f"{float(X[r, c])!r} at {locate(r, c)}; impute or drop them before using gwpred"
+        )
+
+
+def _read_npy(path: Path) -> np.ndarray:
+    where = repr(str(path))
+    try:
+        X = np.load(path, allow_pickle=False)
+    except ValueError as err:
+        if "allow_pickle" in str(err) or "pickled" in str(err):
+            raise ValueError(
+                f"{where} holds Python objects (pickled data), which gwpred never loads; "
+                "save a numeric array instead"
+            ) from err
+        raise ValueError(f"{where} could not be read as a .npy array: {err}") from err
+    except (OSError, EOFError) as err:
+        raise ValueError(f"{where} could not be read as a .npy array: {err}") from err
+    if not isinstance(X, np.ndarray):
+        if hasattr(X, "close"):
+            X.close()
+        raise ValueError(f"{where} is an .npz archive, not a single .npy array; save one 2-D array with np.save")
+    if X.dtype == np.bool_ or not (np.issubdtype(X.dtype, np.integer) or np.issubdtype(X.dtype, np.floating)):
+        raise ValueError(
+            f"{where} holds an array of dtype {X.dtype}; features must be integers or floats"
+        )
+    if X.ndim == 1:
+        raise ValueError(
+            f"{where} holds a 1-D array of shape {X.shape}, which is ambiguous; save "
+            "X.reshape(-1, 1) for one feature per sample or X.reshape(1, -1) for a single sample"
+        )
+    if X.ndim != 2:
+        raise ValueError(f"{where} holds a {X.ndim}-D array of shape {X.shape}; features must be a 2-D array (samples x features)")
+    X = np.asarray(X, dtype=np.float64)
+    if X.shape[0] == 0 or X.shape[1] == 0:
+        raise ValueError(f"{where} holds an empty array of shape {X.shape}; it needs at least one row and one column")
+    _check_finite(X, where, lambda r, c: f"row {r}, column {c} (0-based)")
+    return X
+
+
+def _parse_float(cell: str) -> float | None:
+    try:
+        return float(cell)
+    except ValueError:
+        return None
+
+
+def _read_delimited(path: Path, delimiter: str) -> tuple[np.ndarray, list[str] | None]:
+    where = repr(str(path))
+    rows: list[list[str]] = []
+    linenos: list[int] = []
+    with open(path, encoding="utf-8", newline="") as fh:
+        reader = csv.reader(fh, delimiter=delimiter)
+        try:
+            for row in reader:
+                if not row or (len(row) == 1 and not row[0].strip()):
+                    continue
+                rows.append([cell.strip() for cell in row])
+                linenos.append(reader.line_num)
+        except UnicodeDecodeError as err:
+            raise ValueError(
+                f"{where} is not UTF-8 text ({err}) near line {reader.line_num + 1}; save the file as UTF-8"
+            ) from err
+        except csv.Error as err:
+            raise ValueError(f"{where} line {reader.line_num}: {err}") from err
+    if not rows:
+        raise ValueError(f"{where} is empty; it needs at least one data row")
+    first = rows[0]
+    has_header = any(_parse_float(cell) is None for cell in first)
+    has_ids = has_header and first[0].lower() == "id"
+    ncols = len(first)
+    start = 1 if has_header else 0
+    offset = 1 if has_ids else 0
+    if ncols - offset == 0:
+        raise ValueError(f"{where} has no feature columns (only an id column)")
+    if start >= len(rows):
+        raise ValueError(f"{where} has a header row but no data rows")
+    X = np.empty((len(rows) - start, ncols - offset), dtype=np.float64)
+    ids: list[str] | None = [] if has_ids else None
+    for i, (row, lineno) in enumerate(zip(rows[start:], linenos[start:])):
+        if len(row) != ncols:
+            raise ValueError(
+                f"{where} line {lineno} has {len(row)} columns, expected {ncols} "
+                f"(as on line {linenos[0]}); every row needs the same number of columns"
+            )
+        if ids is not None:
+            ids.append(row[0])
+        for j in range(offset, ncols):
+            value = _parse_float(row[j])
+            if value is None:
+                raise ValueError(
+                    f"{where} line {lineno}, column {j + 1}: cell {row[j]!r} is not a number"
+                )
+            X[i, j - offset] = value
+    data_lines = linenos[start:]
+    _check_finite(X, where, lambda r, c: f"line {data_lines[r]}, column {c + offset + 1}")
+    return X, ids
+
+
+@overload
+def read_features(path: StrPath, return_ids: Literal[False] = ...) -> np.ndarray: ...
+
+
+@overload
+def read_features(
+    path: StrPath, return_ids: Literal[True]
+) -> tuple[np.ndarray, list[str] | None]: ...
+
+
+def read_features(
+    path: StrPath, return_ids: bool = False
+) -> np.ndarray | tuple[np.ndarray, list[str] | None]:
+    """Read a 2-D feature matrix (samples x features) from ``.npy``, ``.csv`` or ``.tsv``.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        File to read. ``.npy`` is loaded with ``allow_pickle=False``. ``.csv``
+        (comma) and ``.tsv`` (tab) are delimited UTF-8 text, one sample a row.
+    return_ids : bool, default False
+        Also return the sample ids of the ``id`` column (``None`` when the file
+        has none, and always for ``.npy``).
+
+    Returns
+    -------
+    X : numpy.ndarray of float64, shape (n_samples, n_features)
+        The features.
+    ids : list of str or None
+        Only when ``return_ids`` is true.
+
+    Raises
+    ------
+    ValueError
+        If the extension is not supported; rows have different lengths (names
+        the line); a cell is not a number (names line and column); there is
+        any NaN or infinity (gives the count and the first position); the
+        ``.npy`` array is not 2-D (a 1-D array is ambiguous), empty, not
+        numeric, or holds pickled objects.
+    FileNotFoundError
+        If ``path`` does not exist.
+
+    Notes
+    -----
+    Text files: blank lines are skipped and cells are stripped of spaces. The
+    first row is a header when at least one of its cells is not a number; a
+    header whose first cell is ``id`` (any case) marks the first column as
+    sample ids, which are dropped from ``X``. Without a header every column is
+    a feature. A header made only of numbers cannot be told apart from data;
+    use non-numeric column names. Line numbers in messages count from 1 as
+    in a text editor; columns count from 1 including the id column.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     p = os.path.join(d, "x.csv")
+    ...     with open(p, "w") as fh:
+    ...         _ = fh.write("id,a,b\\nm1,1,2\\nm2,3,4.5\\n")
+    ...     X, ids = read_features(p, return_ids=True)
+    >>> X
+    array([[1. , 2. ],
+           [3. , 4.5]])
+    >>> ids
+    ['m1', 'm2']
+    """
+    p = Path(path)
+    ext = _extension(p, FEATURE_EXTENSIONS, "feature")
+    _require_file(p, "feature")
+    if ext == ".npy":
+        X, ids = _read_npy(p), None
+    else:
+        X, ids = _read_delimited(p, "," if ext == ".csv" else "\t")
+    return (X, ids) if return_ids else X
+
+
+def write_features(path: StrPath, X: np.ndarray, ids: Sequence[str] | None = None) -> None:
+    """Write a 2-D feature matrix to ``.npy``, ``.csv`` or ``.tsv``.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Target file; the extension selects the format. An existing file is
+        replaced.
+    X : array_like of shape (n_samples, n_features)
+        Finite real numbers; stored as float64.
+    ids : sequence of str, optional
+        One id per row, written as a first column named ``id`` (text formats
+        only). Values are converted with ``str``.
+
+    Returns
+    -------
+    None
+
+    Raises
+    ------
+    ValueError
+        If the extension is not supported, ``X`` is not a non-empty 2-D
+        numeric array, ``X`` holds NaN or infinity, ``ids`` has the wrong
+        length, or ``ids`` is given for ``.npy``.
+    FileNotFoundError
+        If the target directory does not exist.
+
+    Notes
+    -----
+    Text files always get a header row (``id`` if ids are given, then
+    ``x0, x1, ...``) and values in shortest round-trip form (``repr``), so
+    :func:`read_features` gives back exactly the same float64 values.
+
+    Examples
+    --------
+    >>> import os, tempfile, numpy as np
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     write_features(os.path.join(d, "x.tsv"), np.eye(2), ids=["a", "b"])
+    ...     read_features(os.path.join(d, "x.tsv"), return_ids=True)
+    (array([[1., 0.],
+           [0., 1.]]), ['a', 'b'])
+    """
+    p = Path(path)
+    ext = _extension(p, FEATURE_EXTENSIONS, "feature")
+    arr = np.asarray(X)
+    if arr.dtype == np.bool_ or not (np.issubdtype(arr.dtype, np.integer) or np.issubdtype(arr.dtype, np.floating)):
+        raise ValueError(f"X must hold integers or floats, got dtype {arr.dtype}")
+    if arr.ndim != 2 or arr.shape[0] == 0 or arr.shape[1] == 0:
+        raise ValueError(
+            f"X must be a non-empty 2-D array (samples x features), got shape {arr.shape}; "
+            "reshape 1-D data with X.reshape(-1, 1) or X.reshape(1, -1)"
+        )
+    arr = arr.astype(np.float64)
+    _check_finite(arr, "X", lambda r, c: f"X[{r}, {c}]")
+    id_list: list[str] | None = None
+    if ids is not None:
+        if ext == ".npy":
+            raise ValueError(f"ids cannot be stored in a .npy file ({str(p)!r}); write a .csv or .tsv file instead")
+        id_list = [str(v) for v in ids]
+        if len(id_list) != arr.shape[0]:
+            raise ValueError(f"ids has {len(id_list)} entries but X has {arr.shape[0]} rows; give one id per row")
+    if ext == ".npy":
+        with _atomic_open(p, binary=True) as fh:
+            np.save(fh, arr, allow_pickle=False)
+        return
+    with _atomic_open(p, binary=False) as fh:
+        writer = csv.writer(fh, delimiter="," if ext == ".csv" else "\t", lineterminator="\n")
+        header = [f"x{j}" for j in range(arr.shape[1])]
+        writer.writerow(header if id_list is None else ["id", *header])
+        for i, row in enumerate(arr.tolist()):
+            cells = [repr(v) for v in row]
+            writer.writerow(cells if id_list is None else [id_list[i], *cells])
+
+
+# --------------------------------------------------------------- model archives
+
+
+def _array_checksum(arr: np.ndarray) -> str:
+    """sha256 over dtype, shape and C-order bytes of ``arr``."""
+    h = hashlib.sha256()
+    h.update(json.dumps([np.lib.format.dtype_to_descr(arr.dtype), list(arr.shape)]).encode())
+    h.update(np.ascontiguousarray(arr).tobytes())
+    return h.hexdigest()
+
+
+def _gwpred_version() -> str:
+    try:
+        import gwpred
+
+        return str(getattr(gwpred, "__version__", "unknown"))
+    except Exception:  # the package may be mid-construction; the version is informative only
+        return "unknown"
+
+
+def save_archive(path: StrPath, arrays: Mapping[str, np.ndarray], manifest: Mapping[str, Any]) -> None:
+    """Save named arrays and a JSON manifest as one gwpred model archive (``.npz``).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Target file, used exactly as given (no extension is appended). An
+        existing file is replaced.
+    arrays : mapping of str to numpy.ndarray
+        Arrays to store. Names must be non-empty strings other than
+        ``"__manifest__"``; arrays must not have an object dtype.
+    manifest : mapping
+        JSON-serialisable metadata (numbers, strings, booleans, None, lists,
+        dicts with string keys; no NaN or infinity).
+
+    Returns
+    -------
+    None
+
+    Raises
+    ------
+    TypeError
+        If an entry of ``arrays`` is not a numpy array or has an object dtype
+        (the message names it), or ``manifest`` is not JSON-serialisable.
+    ValueError
+        If an array name is empty or reserved, or ``manifest`` holds NaN or
+        infinity.
+    FileNotFoundError
+        If the target directory does not exist.
+
+    Notes
+    -----
+    The archive is a standard ``.npz`` (a zip of ``.npy`` members, readable by
+    :func:`numpy.load` with ``allow_pickle=False``), deflate-compressed like
+    :func:`numpy.savez_compressed`, with one extra member ``__manifest__``: the
+    UTF-8 JSON manifest as a ``uint8`` array. The stored manifest gets the
+    entries ``format`` (:data:`ARCHIVE_FORMAT`), ``format_version``
+    (:data:`ARCHIVE_VERSION`), ``gwpred_version`` and ``checksums`` (array name
+    -> sha256 hex of dtype, shape and bytes); these four keys are always set
+    by this function, replacing any values given in ``manifest``, so a
+    manifest returned by :func:`load_archive` can be saved again. Members are
+    written in name order with a fixed timestamp, so equal inputs give
+    identical files.
+
+    Examples
+    --------
+    >>> import os, tempfile, numpy as np
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     save_archive(os.path.join(d, "m.npz"), {"W": np.ones((2, 2))}, {"alpha": 0.5})
+    ...     arrays, man = load_archive(os.path.join(d, "m.npz"))
+    >>> arrays["W"].shape, man["alpha"], man["format"]
+    ((2, 2), 0.5, 'gwpred-model')
+    """
+    p = Path(path)
+    if not isinstance(arrays, Mapping):
+        raise TypeError(f"arrays must be a dict of name -> numpy.ndarray, got {type(arrays).__name__}")
+    if not isinstance(manifest, Mapping):
+        raise TypeError(f"manifest must be a dict, got {type(manifest).__name__}")
+    checksums: dict[str, str] = {}
+    for name, arr in arrays.items():
+        if not isinstance(name, str) or not name:
+            raise ValueError(f"array names must be non-empty strings, got {name!r}")
+        if name == _MANIFEST_KEY:
+            raise ValueError(f"array name {_MANIFEST_KEY!r} is reserved for the manifest; rename the array")
+        if not isinstance(arr, np.ndarray):
+            raise TypeError(
+                f"arrays[{name!r}] is a {type(arr).__name__}, not a numpy.ndarray; convert it with np.asarray"
+            )
+        if arr.dtype.hasobject:
+            raise TypeError(
+                f"arrays[{name!r}] has dtype {arr.dtype}, which holds Python objects; model archives "
+                "never store pickled data: convert it to a numeric or fixed-width string array"
+            )
+        checksums[name] = _array_checksum(arr)
+    full = dict(manifest)
+    full.update(
+        format=ARCHIVE_FORMAT,
+        format_version=ARCHIVE_VERSION,
+        gwpred_version=_gwpred_version(),
+        checksums=checksums,
+    )
+    try:
+        text = json.dumps(full, allow_nan=False, ensure_ascii=False, sort_keys=True)
+    except TypeError as err:
+        raise TypeError(f"manifest is not JSON-serialisable: {err}; use numbers, strings, lists and dicts") from err
+    except ValueError as err:
+        raise ValueError(f"manifest holds NaN or infinity ({err}); JSON cannot store it") from err
+    members = {_MANIFEST_KEY: np.frombuffer(text.encode("utf-8"), dtype=np.uint8)}
+    members.update((name, arrays[name]) for name in sorted(arrays))
+    with _atomic_open(p, binary=True) as fh:
+        with zipfile.ZipFile(fh, mode="w", compression=zipfile.ZIP_DEFLATED) as zf:
+            for name, arr in members.items():
+                info = zipfile.ZipInfo(name + ".npy", date_time=_ZIP_EPOCH)
+                info.compress_type = zipfile.ZIP_DEFLATED
+                with zf.open(info, "w", force_zip64=True) as member:
+                    np.lib.format.write_array(member, np.asanyarray(arr), allow_pickle=False)
+
+
+def load_archive(path: StrPath) -> tuple[dict[str, np.ndarray], dict[str, Any]]:
+    """Load a gwpred model archive written by :func:`save_archive`.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Archive file.
+
+    Returns
+    -------
+    arrays : dict of str to numpy.ndarray
+        The stored arrays, checksums verified.
+    manifest : dict
+        The stored manifest, including ``format``, ``format_version``,
+        ``gwpred_version`` and ``checksums``.
+
+    Raises
+    ------
+    FileNotFoundError
+        If ``path`` does not exist.
+    ValueError
+        If the file is not a zip/npz (truncated or corrupted file, or not a
+        gwpred model), a member cannot be read, the manifest is missing or
+        invalid, the format name is wrong, the format version is newer than
+        :data:`ARCHIVE_VERSION` (upgrade gwpred), an array listed in the
+        manifest is missing, an array is not listed in the manifest, or an
+        array does not match its checksum.
+
+    Notes
+    -----
+    Nothing is unpickled: members are read with ``allow_pickle=False``.
+
+    Examples
+    --------
+    >>> import os, tempfile, numpy as np
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     save_archive(os.path.join(d, "m.npz"), {"b": np.arange(3)}, {})
+    ...     load_archive(os.path.join(d, "m.npz"))[0]["b"]
+    array([0, 1, 2])
+    """
+    p = Path(path)
+    _require_file(p, "model archive")
+    where = repr(str(p))
+    if not zipfile.is_zipfile(p):
+        raise ValueError(
+            f"{where} is not a valid .npz (zip) file; the file may be truncated or corrupted, "
+            "or it is not a gwpred model"
+        )
+    read_errors = (zipfile.BadZipFile, zlib.error, ValueError, EOFError, OSError, KeyError)
+    try:
+        npz = np.load(p, allow_pickle=False)
+    except read_errors as err:
+        raise ValueError(
+            f"{where} could not be opened as .npz ({err}); the file may be truncated or corrupted, "
+            "or it is not a gwpred model"
+        ) from err
+    if not isinstance(npz, np.lib.npyio.NpzFile):
+        raise ValueError(f"{where} is not a gwpred model archive (not an .npz file)")
+    with npz:
+
+        def member(name: str) -> np.ndarray:
+            try:
+                return npz[name]
+            except read_errors as err:
+                if isinstance(err, ValueError) and "allow_pickle" in str(err):
+                    raise ValueError(
+                        f"{where}: member {name!r} holds Python objects (pickled data), which "
+                        "gwpred never loads; the file was not written by gwpred.io.save_archive"
+                    ) from err
+                raise ValueError(
+                    f"{where}: member {name!r} could not be read ({type(err).__name__}: {err}); "
+                    "the file is corrupted or truncated: save the model again"
+                ) from err
+
+        names = list(npz.files)
+        if _MANIFEST_KEY not in names:
+            raise ValueError(
+                f"{where} has no {_MANIFEST_KEY!r} entry; it is not a gwpred model archive "
+                "(write models with gwpred.io.save_archive)"
+            )
+        raw = member(_MANIFEST_KEY)
+        try:
+            if raw.dtype != np.uint8 or raw.ndim != 1:
+                raise ValueError(f"manifest entry has dtype {raw.dtype} and shape {raw.shape}, expected 1-D uint8")
+            manifest = json.loads(raw.tobytes().decode("utf-8"))
+            if not isinstance(manifest, dict):
+                raise ValueError(f"manifest is a JSON {type(manifest).__name__}, expected an object")
+        except (ValueError, UnicodeDecodeError) as err:
+            raise ValueError(f"{where}: invalid manifest ({err}); the file is corrupted or not a gwpred model") from err
+        fmt = manifest.get("format")
+        if fmt != ARCHIVE_FORMAT:
+            raise ValueError(
+                f"{where} has manifest format {fmt!r}, expected {ARCHIVE_FORMAT!r}; it is not a gwpred model archive"
+            )
+        version = manifest.get("format_version")
+        if isinstance(version, bool) or not isinstance(version, int) or version < 1:
+            raise ValueError(f"{where} has an invalid format_version {version!r}; expected a positive integer")
+        if version > ARCHIVE_VERSION:
+            raise ValueError(
+                f"{where} uses model format_version {version}, but this gwpred reads versions up to "
+                f"{ARCHIVE_VERSION}; upgrade gwpred to load it (written by gwpred "
+                f"{manifest.get('gwpred_version', 'unknown')})"
+            )
+        checksums = manifest.get("checksums")
+        if not isinstance(checksums, dict) or not all(isinstance(v, str) for v in checksums.values()):
+            raise ValueError(f"{where}: manifest 'checksums' must map array names to sha256 hex strings")
+        stored = [n for n in names if n != _MANIFEST_KEY]
+        missing = [n for n in checksums if n not in stored]
+        if missing:
+            raise ValueError(
+                f"{where} lacks array(s) {missing} listed in its manifest; the file is incomplete or corrupted"
+            )
+        unlisted = [n for n in stored if n not in checksums]
+        if unlisted:
+            raise ValueError(
+                f"{where} holds array(s) {unlisted} not listed in its manifest; the file was altered "
+                "after it was saved"
+            )
+        arrays: dict[str, np.ndarray] = {}
+        for name, expected in checksums.items():
+            arr = member(name)
+            if _array_checksum(arr) != expected:
+                raise ValueError(
+                    f"{where}: array {name!r} does not match its checksum; the file is corrupted: "
+                    "save the model again"
+                )
+            arrays[name] = arr
+    return arrays, manifest
