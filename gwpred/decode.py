@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-__all__ = ["DecodedGraph", "weighted_median", "edge_budget", "decode_barycenter"]
+__all__ = ["DecodedGraph", "weighted_median", "edge_budget", "decode_barycenter", "decode_anchored"]
 
 
 @dataclass(frozen=True)
@@ -232,3 +232,126 @@ def decode_barycenter(
     else:
         edge_classes = np.argmax(E[iu[keep], ju[keep]], axis=1).astype(np.int64)
     return DecodedGraph(node_classes, edges.reshape(-1, 2), edge_classes)
+
+
+def _reach(A: NDArray[np.bool_], start: int) -> NDArray[np.bool_]:
+    """Nodes reachable from ``start`` in the graph of a boolean adjacency (BFS)."""
+    seen = np.zeros(len(A), dtype=bool)
+    seen[start] = True
+    frontier = seen.copy()
+    while frontier.any():
+        frontier = A[frontier].any(0) & ~seen
+        seen |= frontier
+    return seen
+
+
+def decode_anchored(
+    structure: ArrayLike,
+    node_scores: ArrayLike,
+    edge_scores: ArrayLike,
+    anchor_structure: ArrayLike,
+    anchor_edge_classes: ArrayLike,
+    *,
+    consensus: float = 0.8,
+    connected: bool = True,
+    max_degree: ArrayLike | None = None,
+) -> DecodedGraph:
+    """Decode a barycenter that was started from a real graph (the anchor), as edits of it.
+
+    The barycenter's nodes are the anchor's nodes, so its pair scores say,
+    for each pair of anchor nodes, which share of the weighted training
+    graphs has an edge there.  Nodes take their highest-scoring label; the
+    anchor's edges stay unless their score is at most ``1 - consensus``; a
+    missing pair is added when its score is at least ``consensus``.
+
+    Parameters
+    ----------
+    structure : array-like of shape (n, n)
+        Soft adjacency of the barycenter.
+    node_scores : array-like of shape (n, n_node_labels)
+    edge_scores : array-like of shape (n, n, n_edge_labels)
+        Labels of added edges come from here.
+    anchor_structure : array-like of shape (n, n)
+        0/1 adjacency of the anchor graph (same node order).
+    anchor_edge_classes : array-like of shape (n, n)
+        Edge label index of each anchor edge (kept edges keep it).
+    consensus : float, default=0.8
+        Agreement needed to change the anchor, in ``[0.5, 1]``; 1 keeps the
+        anchor's edges as they are.
+    connected : bool, default=True
+        Never remove an edge whose removal disconnects the graph.
+    max_degree : array-like of shape (n_node_labels,), default=None
+        Largest degree per node label; additions beyond it are skipped.
+
+    Returns
+    -------
+    DecodedGraph
+
+    Raises
+    ------
+    ValueError
+        On inconsistent shapes, non-finite scores or ``consensus`` outside ``[0.5, 1]``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> A = np.array([[0, 1, 0], [1, 0, 1], [0, 1, 0]])
+    >>> C = np.array([[0, .9, .9], [.9, 0, .1], [.9, .1, 0]])
+    >>> out = decode_anchored(C, np.eye(3), np.ones((3, 3, 1)), A, np.zeros((3, 3)))
+    >>> out.edges.tolist()
+    [[0, 1], [0, 2]]
+    """
+    C = np.asarray(structure, dtype=np.float64)
+    A0 = np.asarray(anchor_structure, dtype=np.float64) > 0.5
+    n = C.shape[0]
+    if A0.shape != (n, n) or np.shape(anchor_edge_classes) != (n, n):
+        raise ValueError(
+            f"anchor_structure and anchor_edge_classes must be ({n}, {n}) like structure; "
+            f"got {A0.shape} and {np.shape(anchor_edge_classes)}."
+        )
+    if not 0.5 <= consensus <= 1.0:
+        raise ValueError(f"consensus must lie in [0.5, 1]; got {consensus}.")
+    base = decode_barycenter(C, node_scores, edge_scores, n_edges=0, connected=False, max_degree=max_degree)
+    node_classes = base.node_classes
+    E = np.asarray(edge_scores, dtype=np.float64)
+    labels = np.asarray(anchor_edge_classes, dtype=np.int64).copy()
+    caps = (
+        np.full(n, n, dtype=np.int64)
+        if max_degree is None
+        else np.asarray(max_degree, dtype=np.int64)[node_classes]
+    )
+    iu, ju = np.triu_indices(n, 1)
+    score = 0.5 * (C[iu, ju] + C[ju, iu])
+    anchor_pair = A0[iu, ju]
+    # 1. drop the anchor edges the weighted graphs disagree with
+    keep = anchor_pair & (score > 1.0 - consensus)
+    A = np.zeros((n, n), dtype=bool)
+    A[iu[keep], ju[keep]] = A[ju[keep], iu[keep]] = True
+    degree = A.sum(1)
+    # 2. add the pairs they agree on, strongest first, within the degree caps
+    for k in np.argsort(-score, kind="stable"):
+        i, j = iu[k], ju[k]
+        if score[k] < consensus:
+            break
+        if not A[i, j] and degree[i] < caps[i] and degree[j] < caps[j]:
+            A[i, j] = A[j, i] = True
+            degree[i] += 1
+            degree[j] += 1
+            if not anchor_pair[k]:
+                labels[i, j] = int(np.argmax(E[i, j]))
+    # 3. reconnect: dropped anchor edges first, then any pair, strongest first
+    if connected and n > 1 and not _reach(A, 0).all():
+        for k in np.lexsort((-score, ~anchor_pair)):
+            i, j = iu[k], ju[k]
+            if A[i, j]:
+                continue
+            if _reach(A, i)[j]:
+                continue  # already joined: the edge would only close a cycle
+            A[i, j] = A[j, i] = True
+            if not anchor_pair[k]:
+                labels[i, j] = int(np.argmax(E[i, j]))
+            if _reach(A, 0).all():
+                break
+    keep = np.flatnonzero(A[iu, ju])
+    edges = np.stack([iu[keep], ju[keep]], axis=1).astype(np.int64).reshape(-1, 2)
+    return DecodedGraph(node_classes, edges, labels[iu[keep], ju[keep]])

@@ -388,6 +388,7 @@ def fgw_barycenter(
     tol_inner: float = 1e-7,
     fixed_features: bool = False,
     fixed_structure: bool = False,
+    init_from: int | None = None,
 ) -> BarycenterResult:
     r"""FGW barycenter of weighted graphs with fixed size and node masses.
 
@@ -442,6 +443,11 @@ def fgw_barycenter(
         Relative tolerance of the inner solver.
     fixed_features, fixed_structure : bool, default=False
         Keep the features or the structure at their initial values.
+    init_from : int or None, default=None
+        Index of the input graph that ``init_structure`` and ``init_features``
+        copy (same node order).  Its first plan is then the diagonal coupling,
+        which is optimal for it; other starts can settle on a permuted copy,
+        and the barycenter's nodes would no longer be that graph's nodes.
 
     Returns
     -------
@@ -496,6 +502,13 @@ def fgw_barycenter(
     S, m = Cs.shape[0], Cs.shape[1]
     M = feature_costs(F, Fs)
     T = _initial_plans(init_plans, h, qs, M, sizes)
+    if init_from is not None:
+        if not (0 <= init_from < S and sizes[init_from] == n):
+            raise ValueError(
+                f"init_from={init_from} must index an input graph with {n} nodes (the size of init_structure)."
+            )
+        T[init_from] = 0.0
+        T[init_from, :, :n] = np.diag(h)
     hh = np.outer(h, h)
     history: list[float] = []
     converged = False

@@ -246,6 +246,8 @@ class KernelRidgeWeights:
         ``ridge``: kernel ridge coefficients.  ``knn``: the kernel values
         themselves (so that :func:`sparsify` keeps the nearest neighbours
         weighted by similarity).
+    random_state : int, default=0
+        Seed of the subsample used by the bandwidth heuristic.
 
     Attributes
     ----------
@@ -272,11 +274,13 @@ class KernelRidgeWeights:
         gamma: float | None = None,
         ridge: float = 1e-3,
         method: str = "ridge",
+        random_state: int = 0,
     ) -> None:
         self.kernel = kernel
         self.gamma = gamma
         self.ridge = ridge
         self.method = method
+        self.random_state = random_state
 
     def _k(self, X: Array, Y: Array) -> Array:
         return kernel_matrix(X, Y, self.kernel, self.gamma_)
@@ -323,7 +327,7 @@ class KernelRidgeWeights:
             if self.gamma is not None:
                 self.gamma_ = float(self.gamma)
             elif self.kernel in ("rbf", "laplacian"):
-                self.gamma_ = median_gamma(X, self.kernel)
+                self.gamma_ = median_gamma(X, self.kernel, random_state=self.random_state)
             else:  # the other kernels have no bandwidth
                 self.gamma_ = 1.0
             self.X_fit_ = X

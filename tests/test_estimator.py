@@ -1,0 +1,516 @@
+"""Tests for gwpred.estimator.BarycenterGraphPredictor.
+
+Outside references used here:
+
+- scikit-learn: the estimator conventions of its developer guide ("Developing
+  scikit-learn estimators": ``__init__`` only stores parameters, validation in
+  ``fit``, ``get_params``/``set_params``, ``clone``, ``NotFittedError``) and the
+  public checks of ``sklearn.utils.estimator_checks`` that need no target;
+  ``Pipeline``, ``StandardScaler`` and ``GridSearchCV`` as the consumers.
+- scikit-learn ``KernelRidge``: fitted on identity targets, its predictions
+  are the kernel ridge coefficients ``(K + a I)^{-1} k(x)``; the reference for
+  the weights the estimator puts on the training graphs.
+- networkx: ``is_isomorphic`` with label matchers (VF2) for "same labeled
+  graph", ``is_connected``, ``number_of_selfloops``, and
+  ``graph_edit_distance`` for the score on small graphs.
+- QM9 heavy-atom graphs and broadened spectra from ``gwpred.datasets.load_demo``
+  (built from the QM9 data of the PyPI package qm9pack).
+
+No expected value below is made up: the toy chain graphs only feed error
+paths and the networkx GED cross-check.
+"""
+
+from __future__ import annotations
+
+import inspect
+import math
+
+import networkx as nx
+import numpy as np
+import pytest
+import sklearn
+from networkx.algorithms.isomorphism import categorical_edge_match, categorical_node_match
+from sklearn.base import clone
+from sklearn.exceptions import NotFittedError
+from sklearn.kernel_ridge import KernelRidge
+from sklearn.model_selection import GridSearchCV
+from sklearn.pipeline import Pipeline
+from sklearn.preprocessing import StandardScaler
+from sklearn.utils import estimator_checks
+
+from gwpred import BarycenterGraphPredictor, SoftGraph
+from gwpred.datasets import load_demo
+from gwpred.metrics import edit_distance
+from gwpred.weights import kernel_matrix
+
+N_TRAIN = 300
+N_TEST = 20
+TOP_K = 3  # small: keeps the barycenters and the exact GEDs cheap
+
+NODE_MATCH = categorical_node_match("label", None)
+EDGE_MATCH = categorical_edge_match("label", None)
+
+
+# --------------------------------------------------------------------------
+# data and helpers
+# --------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def demo():
+    """First 300 QM9 molecules for training, the next 20 as queries."""
+    X, graphs = load_demo()
+    return (
+        X[:N_TRAIN],
+        graphs[:N_TRAIN],
+        X[N_TRAIN : N_TRAIN + N_TEST],
+        graphs[N_TRAIN : N_TRAIN + N_TEST],
+    )
+
+
+@pytest.fixture(scope="module")
+def fitted(demo):
+    Xtr, Gtr, _, _ = demo
+    return BarycenterGraphPredictor(top_k=TOP_K, random_state=0).fit(Xtr, Gtr)
+
+
+@pytest.fixture(scope="module")
+def predicted(fitted, demo):
+    return fitted.predict(demo[2])
+
+
+def same_labeled_graph(g: nx.Graph, h: nx.Graph) -> bool:
+    # reference: networkx VF2 isomorphism with node and edge label matching
+    return nx.is_isomorphic(g, h, node_match=NODE_MATCH, edge_match=EDGE_MATCH)
+
+
+def node_link(graphs: list[nx.Graph]) -> list[dict]:
+    """Exact identity of graphs: node order, labels and edges (networkx node-link data)."""
+    return [nx.node_link_data(g, edges="edges") for g in graphs]
+
+
+def chain(n: int, node_label="C", edge_label=1) -> nx.Graph:
+    g = nx.path_graph(n)
+    nx.set_node_attributes(g, node_label, "label")
+    if edge_label is not None:
+        nx.set_edge_attributes(g, edge_label, "label")
+    return g
+
+
+def toy():
+    """Six chains of 2..7 nodes against a 1-D input, for error paths and small GEDs."""
+    X = np.arange(6.0).reshape(-1, 1)
+    graphs = [chain(k + 2, edge_label=1 + k % 2) for k in range(6)]
+    return X, graphs
+
+
+# --------------------------------------------------------------------------
+# scikit-learn conventions
+# --------------------------------------------------------------------------
+@pytest.mark.parametrize(
+    "check",
+    [
+        # scikit-learn's own public checks that need no target values
+        "check_no_attributes_set_in_init",
+        "check_parameters_default_constructible",
+        "check_get_params_invariance",
+        "check_set_params",
+        "check_estimator_cloneable",
+        "check_estimator_repr",
+        "check_do_not_raise_errors_in_init_or_set_params",
+    ],
+)
+def test_sklearn_public_checks(check):
+    fn = getattr(estimator_checks, check, None)
+    if fn is None:  # older scikit-learn releases lack some of these checks
+        pytest.skip(f"scikit-learn {sklearn.__version__} has no {check}")
+    # older releases took the class, newer ones an instance
+    takes_class = "Estimator" in inspect.signature(fn).parameters
+    fn("BarycenterGraphPredictor", BarycenterGraphPredictor if takes_class else BarycenterGraphPredictor())
+
+
+def test_init_only_stores_parameters():
+    # scikit-learn developer guide: __init__ sets exactly its arguments, no
+    # validation; invalid values are reported by fit.
+    est = BarycenterGraphPredictor(alpha=2, top_k=0, kernel="nope")
+    assert set(vars(est)) == set(est.get_params())
+    assert est.alpha == 2 and est.top_k == 0 and est.kernel == "nope"
+    assert not any(k.endswith("_") for k in vars(est))
+
+
+def test_get_set_params_round_trip():
+    est = BarycenterGraphPredictor()
+    new = {
+        "kernel": "laplacian",
+        "gamma": 0.5,
+        "ridge": 0.1,
+        "weighting": "knn",
+        "top_k": 4,
+        "alpha": 0.25,
+        "n_nodes": 5,
+        "edges": "threshold",
+        "connect": False,
+        "decoding": "free",
+        "edge_label": None,
+        "random_state": 7,
+    }
+    assert est.set_params(**new) is est
+    params = est.get_params()
+    for k, v in new.items():
+        assert params[k] == v
+    # set_params(**get_params()) is the identity (scikit-learn convention)
+    again = BarycenterGraphPredictor().set_params(**params)
+    assert again.get_params() == params
+    with pytest.raises(ValueError, match="Invalid parameter 'no_such_param'"):
+        est.set_params(no_such_param=1)
+
+
+def test_clone_of_fitted_model_is_unfitted_with_same_params(fitted):
+    c = clone(fitted)
+    assert c is not fitted
+    assert c.get_params() == fitted.get_params()
+    assert not hasattr(c, "labels_") and not hasattr(c, "weights_")
+    with pytest.raises(NotFittedError, match="instance is not fitted yet"):
+        c.predict(np.zeros((1, fitted.n_features_in_)))
+
+
+def test_fit_returns_self_and_sets_fitted_attributes(demo):
+    Xtr, Gtr, _, _ = demo
+    est = BarycenterGraphPredictor(top_k=TOP_K)
+    assert est.fit(Xtr, Gtr) is est
+    assert est.n_features_in_ == Xtr.shape[1]
+    assert est.n_train_ == len(Gtr)
+    # node / edge counts cross-checked with networkx
+    assert est.sizes_.tolist() == [g.number_of_nodes() for g in Gtr]
+    assert est.n_edges_.tolist() == [g.number_of_edges() for g in Gtr]
+    assert est.connected_ == all(nx.is_connected(g) for g in Gtr)
+
+
+def test_pipeline_with_standard_scaler(demo):
+    # graphs travel as y through a scikit-learn Pipeline
+    Xtr, Gtr, Xte, Gte = demo
+    pipe = Pipeline(
+        [("scale", StandardScaler()), ("model", BarycenterGraphPredictor(top_k=TOP_K, random_state=0))]
+    )
+    assert pipe.fit(Xtr, Gtr) is pipe
+    got = pipe.predict(Xte[:5])
+    # reference: the same two steps done by hand
+    scaler = StandardScaler().fit(Xtr)
+    manual = BarycenterGraphPredictor(top_k=TOP_K, random_state=0).fit(scaler.transform(Xtr), Gtr)
+    assert node_link(got) == node_link(manual.predict(scaler.transform(Xte[:5])))
+    assert pipe.get_params()["model__top_k"] == TOP_K
+    pipe.set_params(model__alpha=0.5)
+    assert pipe.named_steps["model"].alpha == 0.5
+
+
+def test_grid_search_over_alpha_and_top_k():
+    # the 40 smallest molecules of the demo file keep the 160 exact GEDs
+    # (4 candidates x 2 folds x 20 held-out items) cheap
+    X, graphs = load_demo()
+    idx = np.argsort([g.number_of_nodes() for g in graphs], kind="stable")[:40]
+    X40, G40 = X[idx], [graphs[i] for i in idx]
+    grid = {"alpha": [0.5, 0.9], "top_k": [1, 2]}
+    search = GridSearchCV(BarycenterGraphPredictor(random_state=0), grid, cv=2, error_score="raise")
+    search.fit(X40, G40)
+    assert set(search.best_params_) == {"alpha", "top_k"}
+    assert search.best_params_["alpha"] in grid["alpha"]
+    assert search.best_params_["top_k"] in grid["top_k"]
+    scores = np.asarray(search.cv_results_["mean_test_score"], dtype=float)
+    assert scores.shape == (4,) and np.all(np.isfinite(scores))
+    # score is a negative mean GED: never positive, higher is better
+    assert np.all(scores <= 0)
+    assert search.best_score_ == pytest.approx(scores.max())
+    assert len(search.predict(X40[:2])) == 2
+
+
+# --------------------------------------------------------------------------
+# predictions
+# --------------------------------------------------------------------------
+def test_same_random_state_gives_identical_predictions(demo, predicted):
+    Xtr, Gtr, Xte, _ = demo
+    again = BarycenterGraphPredictor(top_k=TOP_K, random_state=0).fit(Xtr, Gtr).predict(Xte)
+    assert node_link(again) == node_link(predicted)
+
+
+@pytest.mark.parametrize("decoding", ["anchored", "free"])
+@pytest.mark.parametrize("edges", ["budget", "threshold"])
+def test_predictions_are_valid_graphs(demo, decoding, edges):
+    Xtr, Gtr, Xte, _ = demo
+    model = BarycenterGraphPredictor(top_k=TOP_K, decoding=decoding, edges=edges).fit(Xtr, Gtr)
+    pred = model.predict(Xte)
+    assert len(pred) == len(Xte)
+    node_set = {lab for g in Gtr for _, lab in g.nodes(data="label")}
+    edge_set = {lab for g in Gtr for _, _, lab in g.edges(data="label")}
+    # largest degree per element in training, computed with networkx
+    max_deg: dict = {}
+    for g in Gtr:
+        for v, d in g.degree():
+            lab = g.nodes[v]["label"]
+            max_deg[lab] = max(max_deg.get(lab, 0), d)
+    assert all(nx.is_connected(g) for g in Gtr)  # QM9 heavy-atom graphs are connected
+    for g in pred:
+        assert type(g) is nx.Graph  # undirected, simple
+        assert g.number_of_nodes() >= 1
+        assert {lab for _, lab in g.nodes(data="label")} <= node_set
+        assert {lab for _, _, lab in g.edges(data="label")} <= edge_set
+        assert nx.number_of_selfloops(g) == 0
+        assert nx.is_connected(g)
+        for v, d in g.degree():
+            assert d <= max_deg[g.nodes[v]["label"]]
+
+
+def test_fixed_n_nodes_with_free_decoding(demo):
+    Xtr, Gtr, Xte, _ = demo
+    model = BarycenterGraphPredictor(top_k=TOP_K, n_nodes=6, decoding="free").fit(Xtr, Gtr)
+    assert [g.number_of_nodes() for g in model.predict(Xte[:5])] == [6] * 5
+
+
+def test_predict_barycenters_soft_graph_invariants(fitted, demo):
+    _, _, Xte, _ = demo
+    softs = fitted.predict_barycenters(Xte)
+    assert len(softs) == len(Xte)
+    n_nl, n_el = fitted.labels_.n_node_labels, fitted.labels_.n_edge_labels
+    for s in softs:
+        assert isinstance(s, SoftGraph)
+        n = s.structure.shape[0]
+        assert s.structure.shape == (n, n)
+        np.testing.assert_allclose(s.structure, s.structure.T, atol=1e-9)
+        assert s.structure.min() >= -1e-9 and s.structure.max() <= 1 + 1e-9
+        assert s.node_scores.shape == (n, n_nl)
+        np.testing.assert_allclose(s.node_scores.sum(axis=1), 1.0, atol=1e-9)
+        assert s.edge_scores.shape == (n, n, n_el)
+        np.testing.assert_allclose(s.edge_scores.sum(axis=-1), s.structure, atol=1e-9)
+        k = len(s.neighbors)
+        assert 1 <= k <= TOP_K and s.weights.shape == (k,)
+        assert len(set(s.neighbors.tolist())) == k
+        assert np.all((s.neighbors >= 0) & (s.neighbors < fitted.n_train_))
+        assert np.all(s.weights > 0)
+        assert s.weights.sum() == pytest.approx(1.0, abs=1e-12)
+        assert np.all(np.diff(s.weights) <= 0)  # sorted by decreasing weight
+        sizes = fitted.sizes_[s.neighbors]
+        assert sizes.min() <= n <= sizes.max()
+        assert math.isfinite(s.objective) and s.objective >= -1e-9
+
+
+def test_weights_match_sklearn_kernel_ridge(fitted, demo):
+    # reference: scikit-learn KernelRidge fitted on identity targets predicts
+    # k(x)^T (K + a I)^{-1}, i.e. the kernel ridge coefficients of every
+    # training item; here a = n * ridge. Then keep the top_k, clip at zero,
+    # normalise (as documented for the estimator).
+    Xtr, _, Xte, _ = demo
+    n = len(Xtr)
+    gamma = fitted.weights_.gamma_
+    kr = KernelRidge(alpha=n * fitted.ridge, kernel="rbf", gamma=gamma).fit(Xtr, np.eye(n))
+    coef = kr.predict(Xte)
+    for row, s in zip(coef, fitted.predict_barycenters(Xte)):
+        order = np.argsort(-row, kind="stable")[: fitted.top_k]
+        w = np.clip(row[order], 0, None)
+        keep = w > 0
+        assert s.neighbors.tolist() == order[keep].tolist()
+        np.testing.assert_allclose(s.weights, w[keep] / w.sum(), rtol=1e-6)
+
+
+@pytest.mark.parametrize("decoding", ["anchored", "free"])
+def test_known_answer_training_input_returns_its_graph(demo, decoding):
+    # With a tiny ridge, kernel ridge interpolates: (K + n*lambda*I)^{-1} k(x_i)
+    # is close to the i-th unit vector (common practice), so top_k=1 keeps
+    # graph i alone, and the FGW barycenter of one graph is that graph.
+    Xtr, Gtr, _, _ = demo
+    model = BarycenterGraphPredictor(top_k=1, ridge=1e-8, decoding=decoding).fit(Xtr, Gtr)
+    rows = list(range(0, N_TRAIN, 15))
+    softs = model.predict_barycenters(Xtr[rows])
+    assert [s.neighbors.tolist() for s in softs] == [[i] for i in rows]
+    assert all(s.weights.tolist() == [1.0] for s in softs)
+    for i, g in zip(rows, model.predict(Xtr[rows])):
+        assert same_labeled_graph(g, Gtr[i]), f"training item {i}"
+
+
+def test_precomputed_kernel_matches_rbf(fitted, demo, predicted):
+    Xtr, Gtr, Xte, _ = demo
+    gamma = fitted.weights_.gamma_
+    pre = BarycenterGraphPredictor(kernel="precomputed", top_k=TOP_K, random_state=0)
+    pre.fit(kernel_matrix(Xtr, Xtr, "rbf", gamma), Gtr)
+    got = pre.predict(kernel_matrix(Xte, Xtr, "rbf", gamma))
+    assert node_link(got) == node_link(predicted)
+
+
+def test_score_is_minus_mean_edit_distance(fitted, demo):
+    _, _, Xte, Gte = demo
+    X5, G5 = Xte[:5], Gte[:5]
+    pred = fitted.predict(X5)
+    direct = [edit_distance(p, t).value for p, t in zip(pred, G5)]
+    assert fitted.score(X5, G5) == pytest.approx(-float(np.mean(direct)))
+
+
+def test_score_agrees_with_networkx_graph_edit_distance():
+    # reference: networkx.graph_edit_distance with unit insertion/deletion
+    # costs and substitution cost 0 for equal labels, 1 otherwise (its
+    # defaults when node_match / edge_match are given, per its documentation,
+    # recalled from memory); exact on graphs this small.
+    X, graphs = toy()
+    model = BarycenterGraphPredictor(top_k=2).fit(X, graphs)
+    Xq = np.array([[0.4], [2.5], [4.6]])
+    truth = [chain(3, "O", 1), chain(4, "C", 2), chain(6, "C", 1)]
+    pred = model.predict(Xq)
+    ged = [nx.graph_edit_distance(p, t, node_match=NODE_MATCH, edge_match=EDGE_MATCH) for p, t in zip(pred, truth)]
+    assert model.score(Xq, truth) == pytest.approx(-float(np.mean(ged)))
+
+
+def test_score_mismatched_lengths(fitted, demo):
+    _, _, Xte, Gte = demo
+    with pytest.raises(ValueError, match=r"X has 2 rows but 3 graphs were given; pass one graph per row"):
+        fitted.score(Xte[:2], Gte[:3])
+
+
+def test_score_ignores_edge_labels_when_edge_label_is_none():
+    X, graphs = toy()  # edges labelled 1 or 2
+    model = BarycenterGraphPredictor(top_k=1, ridge=1e-8, edge_label=None).fit(X, graphs)
+    pred = model.predict(X)
+    # the predictions are the training graphs up to edge labels (networkx VF2)
+    assert all(nx.is_isomorphic(p, g, node_match=NODE_MATCH) for p, g in zip(pred, graphs))
+    assert model.score(X, graphs) == 0.0
+
+
+def test_random_state_seeds_bandwidth_subsample():
+    # more than 1000 rows: the median heuristic works on a random subsample
+    X, graphs = load_demo()
+    gammas = [
+        BarycenterGraphPredictor(random_state=seed).fit(X[:1100], graphs[:1100]).weights_.gamma_
+        for seed in (0, 1)
+    ]
+    assert gammas[0] != gammas[1]
+
+
+# --------------------------------------------------------------------------
+# bad input
+# --------------------------------------------------------------------------
+def test_predict_before_fit():
+    est = BarycenterGraphPredictor()
+    msg = "This BarycenterGraphPredictor instance is not fitted yet"
+    with pytest.raises(NotFittedError, match=msg):
+        est.predict([[0.0]])
+    with pytest.raises(NotFittedError, match=msg):
+        est.predict_barycenters([[0.0]])
+    with pytest.raises(NotFittedError, match=msg):
+        est.score([[0.0]], [chain(2)])
+
+
+def test_nan_in_X_at_fit():
+    X, graphs = toy()
+    X[2, 0] = np.nan
+    with pytest.raises(ValueError, match=r"X has 1 NaN or infinite value\(s\), the first at row 2, column 0; impute"):
+        BarycenterGraphPredictor().fit(X, graphs)
+
+
+def test_inf_in_X_at_predict():
+    X, graphs = toy()
+    model = BarycenterGraphPredictor(top_k=1).fit(X, graphs)
+    with pytest.raises(ValueError, match=r"X has 2 NaN or infinite value\(s\), the first at row 1, column 0"):
+        model.predict([[0.0], [np.nan], [np.inf]])
+
+
+def test_one_dimensional_X():
+    _, graphs = toy()
+    with pytest.raises(ValueError, match=r"X must be 2-D \(n_samples, n_features\); got 1-D with shape \(6,\)\. Reshape"):
+        BarycenterGraphPredictor().fit(np.arange(6.0), graphs)
+
+
+def test_non_numeric_and_empty_X():
+    _, graphs = toy()
+    with pytest.raises(ValueError, match=r"X must be a numeric array of shape \(n_samples, n_features\)"):
+        BarycenterGraphPredictor().fit([["a"]] * 6, graphs)
+    with pytest.raises(ValueError, match=r"X has no rows; pass at least one sample"):
+        BarycenterGraphPredictor().fit(np.zeros((0, 2)), [])
+
+
+def test_mismatched_lengths_of_X_and_graphs():
+    X, graphs = toy()
+    with pytest.raises(ValueError, match=r"X has 6 rows but 5 graphs were given; pass one graph per input row"):
+        BarycenterGraphPredictor().fit(X, graphs[:5])
+
+
+def _bad_graph(kind: str):
+    if kind == "empty":
+        return nx.Graph()
+    if kind == "selfloop":
+        g = chain(3)
+        g.add_edge(1, 1, label=1)
+        return g
+    if kind == "directed":
+        return nx.DiGraph(chain(3))
+    if kind == "multigraph":
+        return nx.MultiGraph(chain(3))
+    if kind == "unlabeled":
+        g = chain(3)
+        del g.nodes[1]["label"]
+        return g
+    return "CCO"
+
+
+@pytest.mark.parametrize(
+    "kind, exc, match",
+    [
+        ("empty", ValueError, r"graphs\[1\] has no nodes; every graph needs at least one node"),
+        ("selfloop", ValueError, r"graphs\[1\] has 1 self-loop\(s\); gwpred does not model them"),
+        ("directed", TypeError, r"graphs\[1\] is directed; .*to_undirected\(\)"),
+        ("multigraph", TypeError, r"graphs\[1\] is a multigraph; gwpred needs simple graphs"),
+        ("unlabeled", ValueError, r"node 1 of graphs\[1\] has no 'label' attribute; every node needs one"),
+        ("not a graph", TypeError, r"graphs\[1\] must be a networkx\.Graph; got str"),
+    ],
+)
+def test_bad_training_graph(kind, exc, match):
+    X, graphs = toy()
+    graphs[1] = _bad_graph(kind)
+    with pytest.raises(exc, match=match):
+        BarycenterGraphPredictor().fit(X, graphs)
+
+
+def test_wrong_number_of_columns_at_predict():
+    X, graphs = toy()
+    model = BarycenterGraphPredictor(top_k=1).fit(np.hstack([X, X]), graphs)
+    with pytest.raises(ValueError, match=r"X has 3 columns but the model was fitted with 2; use the same features"):
+        model.predict(np.zeros((1, 3)))
+
+
+@pytest.mark.parametrize(
+    "params, match",
+    [
+        ({"alpha": 2}, r"alpha must be a number in \[0, 1\]; got 2\."),
+        ({"alpha": "0.5"}, r"alpha must be a number in \[0, 1\]; got '0\.5'"),
+        ({"top_k": 0}, r"top_k must be a positive integer; got 0\."),
+        ({"top_k": 2.5}, r"top_k must be a positive integer; got 2\.5"),
+        ({"top_k": True}, r"top_k must be a positive integer; got True"),
+        ({"max_outer": 0}, r"max_outer must be a positive integer; got 0"),
+        ({"max_inner": -1}, r"max_inner must be a positive integer; got -1"),
+        ({"kernel": "nope"}, r"kernel must be one of \[.*'rbf'.*'precomputed'\]; got 'nope'"),
+        ({"n_nodes": 0}, r"n_nodes must be 'vote' or a positive integer; got 0\."),
+        ({"n_nodes": "many"}, r"n_nodes must be 'vote' or a positive integer; got 'many'"),
+        ({"decoding": "x"}, r"decoding must be one of \['anchored', 'free'\]; got 'x'"),
+        ({"edges": "x"}, r"edges must be one of \['budget', 'threshold'\]; got 'x'"),
+        ({"connect": "x"}, r"connect must be one of \['auto', True, False\]; got 'x'"),
+        ({"weighting": "x"}, r"weighting must be one of \['ridge', 'knn'\]; got 'x'"),
+        ({"handle_unknown": "x"}, r"handle_unknown must be one of \['error', 'ignore'\]; got 'x'"),
+        ({"ridge": -1}, r"ridge must be a non-negative number; got -1\."),
+        ({"tol": -1e-3}, r"tol must be a non-negative number; got -0\.001"),
+    ],
+)
+def test_invalid_parameter_values(params, match):
+    X, graphs = toy()
+    est = BarycenterGraphPredictor(**params)  # stored without complaint
+    with pytest.raises(ValueError, match=match):
+        est.fit(X, graphs)
+
+
+@pytest.mark.parametrize("gamma", [-1.0, float("nan"), "abc"])
+def test_invalid_gamma_is_named(gamma):
+    X, graphs = toy()
+    with pytest.raises(ValueError, match=r"gamma"):
+        BarycenterGraphPredictor(gamma=gamma).fit(X, graphs)
+
+
+def test_precomputed_kernel_of_wrong_shape():
+    X, graphs = toy()
+    K = kernel_matrix(X, X, "rbf", 0.5)
+    with pytest.raises(ValueError, match=r"with kernel='precomputed', fit needs the square training kernel matrix; got shape \(6, 5\)"):
+        BarycenterGraphPredictor(kernel="precomputed").fit(K[:, :5], graphs)
+    model = BarycenterGraphPredictor(kernel="precomputed", top_k=1).fit(K, graphs)
+    with pytest.raises(ValueError, match=r"X has 5 columns but the model was fitted with 6; .*kernel to the training items"):
+        model.predict(K[:2, :5])
