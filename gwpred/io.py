@@ -47,6 +47,8 @@ __all__ = [
     "write_features",
     "save_archive",
     "load_archive",
+    "save_model",
+    "load_model",
 ]
 
 StrPath = Union[str, "os.PathLike[str]"]
@@ -946,3 +948,126 @@ def load_archive(path: StrPath) -> tuple[dict[str, np.ndarray], dict[str, Any]]:
                 )
             arrays[name] = arr
     return arrays, manifest
+
+
+# --------------------------------------------------------------------------- models
+
+_MODEL_KIND = "BarycenterGraphPredictor"
+
+
+def _plain(value: Any) -> Any:
+    """numpy scalars -> Python scalars, so that JSON can hold them."""
+    return value.item() if isinstance(value, np.generic) else value
+
+
+def save_model(model: Any, path: StrPath) -> None:
+    """Save a fitted :class:`~gwpred.BarycenterGraphPredictor` as a model archive.
+
+    The archive holds the constructor parameters and label categories (JSON
+    manifest), the training graphs as flat integer arrays, and the training
+    inputs (or the training kernel matrix with ``kernel="precomputed"``);
+    kernel factorisations are recomputed on loading.
+
+    Parameters
+    ----------
+    model : BarycenterGraphPredictor
+        A fitted model.
+    path : str or os.PathLike
+        Target ``.npz`` file.
+
+    Raises
+    ------
+    ValueError
+        If the model is not fitted.
+    """
+    from .estimator import BarycenterGraphPredictor
+
+    if not isinstance(model, BarycenterGraphPredictor) or not hasattr(model, "labels_"):
+        raise ValueError("save_model needs a fitted BarycenterGraphPredictor; call fit first.")
+    labels = model.labels_
+    nodes, edges, edge_cls, n_nodes, n_edges = [], [], [], [], []
+    for C, F, E in zip(model._structures, model._features, model._channels):
+        iu, ju = np.nonzero(np.triu(C, 1))
+        nodes.append(F[:, : labels.n_node_labels].argmax(1))
+        edges.append(np.stack([iu, ju], 1))
+        edge_cls.append(E[iu, ju].argmax(-1))
+        n_nodes.append(len(F))
+        n_edges.append(len(iu))
+    weights = model.weights_
+    arrays = {
+        "node_classes": np.concatenate(nodes).astype(np.int32),
+        "edges": np.concatenate(edges).astype(np.int32).reshape(-1, 2),
+        "edge_classes": np.concatenate(edge_cls).astype(np.int32),
+        "n_nodes": np.asarray(n_nodes, dtype=np.int32),
+        "n_edges": np.asarray(n_edges, dtype=np.int32),
+        "inputs": weights.K_fit_ if model.kernel == "precomputed" else weights.X_fit_,
+    }
+    gamma = float(weights.gamma_)
+    manifest = {
+        "kind": _MODEL_KIND,
+        "params": {k: _plain(v) for k, v in model.get_params().items()},
+        "node_labels": [_plain(v) for v in labels.node_labels_],
+        "edge_labels": [_plain(v) for v in labels.edge_labels_],
+        "gamma": gamma if np.isfinite(gamma) else None,
+    }
+    save_archive(path, arrays, manifest)
+
+
+def load_model(path: StrPath) -> Any:
+    """Load a model saved by :func:`save_model`.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+
+    Returns
+    -------
+    BarycenterGraphPredictor
+        A fitted model that predicts exactly as the saved one.
+
+    Raises
+    ------
+    ValueError
+        If the file is not a gwpred model, is corrupted or truncated, or was
+        written by a newer gwpred (see :func:`load_archive`), or its contents
+        are inconsistent.
+    """
+    from .estimator import BarycenterGraphPredictor
+
+    arrays, manifest = load_archive(path)
+    where = f"model file {os.fspath(path)!r}"
+    need = ("node_classes", "edges", "edge_classes", "n_nodes", "n_edges", "inputs")
+    missing = [k for k in need if k not in arrays]
+    if manifest.get("kind") != _MODEL_KIND or missing:
+        raise ValueError(
+            f"{where} is a gwpred archive but not a saved BarycenterGraphPredictor "
+            f"(kind={manifest.get('kind')!r}, missing arrays: {missing})."
+        )
+    try:
+        model = BarycenterGraphPredictor(**manifest["params"])
+        n_nodes, n_edges = arrays["n_nodes"], arrays["n_edges"]
+        node_off = np.concatenate([[0], np.cumsum(n_nodes)])
+        edge_off = np.concatenate([[0], np.cumsum(n_edges)])
+        if node_off[-1] != len(arrays["node_classes"]) or edge_off[-1] != len(arrays["edges"]):
+            raise ValueError("graph arrays do not add up")
+        from .codec import LabelSpace
+
+        labels = LabelSpace.from_categories(
+            manifest["node_labels"],
+            manifest["edge_labels"],
+            node_label=model.node_label,
+            edge_label=model.edge_label,
+            handle_unknown=model.handle_unknown,
+        )
+        graphs = [
+            labels.build_graph(
+                arrays["node_classes"][node_off[k] : node_off[k + 1]],
+                arrays["edges"][edge_off[k] : edge_off[k + 1]],
+                arrays["edge_classes"][edge_off[k] : edge_off[k + 1]],
+            )
+            for k in range(len(n_nodes))
+        ]
+        model._fit(arrays["inputs"], graphs, labels=labels, gamma=manifest["gamma"])
+    except (KeyError, IndexError, TypeError, ValueError) as err:
+        raise ValueError(f"{where} has inconsistent contents ({err}); it may be corrupted.") from err
+    return model
