@@ -1,0 +1,1230 @@
+r"""Scores for predicted labeled graphs: graph edit distance, exact match, summaries.
+
+A labeled graph here is an undirected, simple :class:`networkx.Graph` whose nodes carry a
+categorical label (any hashable value, e.g. an element symbol) and whose edges may carry a
+categorical label (e.g. a bond order 1/2/3). An edge without the label attribute counts as
+one more edge type, ``None``.
+
+The graph edit distance (GED) is NP-hard. :func:`edit_distance` first tries cheap answers
+(label isomorphism, lower bound equal to upper bound) and only then solves a binary linear
+program with HiGHS; pass ``time_limit`` to bound the cost of a call.
+:func:`edit_distance_bounds` returns only the cheap bounds.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+import time
+import warnings
+from collections import Counter
+from collections.abc import Hashable, Sequence
+from dataclasses import dataclass, field
+from fractions import Fraction
+from typing import Any
+
+import networkx as nx
+import numpy as np
+from numpy.typing import NDArray
+
+__all__ = [
+    "EditDistance",
+    "edit_distance",
+    "edit_distance_bounds",
+    "exact_match",
+    "summarize",
+]
+
+
+@dataclass(frozen=True)
+class EditDistance:
+    """Result of :func:`edit_distance`.
+
+    Attributes
+    ----------
+    value : float
+        The graph edit distance when ``exact`` is true, otherwise the best upper bound
+        found (the cost of the edit path described by ``mapping``).
+    lower : float
+        A proven lower bound on the graph edit distance.
+    upper : float
+        The cost of the best edit path found; equal to ``value``.
+    exact : bool
+        True when ``value`` is proven optimal (``lower == upper``).
+    mapping : dict
+        Node of the first graph -> node of the second graph it is substituted by, or
+        ``None`` when it is deleted. Nodes of the second graph that are not values of this
+        dict are inserted. Edges follow the nodes: an edge whose two end nodes are mapped
+        onto an edge is substituted, every other edge is deleted or inserted.
+    """
+
+    value: float
+    lower: float
+    upper: float
+    exact: bool
+    mapping: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class _Costs:
+    node_del: float
+    node_ins: float
+    node_sub: float
+    edge_del: float
+    edge_ins: float
+    edge_sub: float
+
+    @property
+    def unit(self) -> float | None:
+        """Largest q such that every cost is a whole multiple of q, or None.
+
+        Every edit distance is then a multiple of q too, so proven lower bounds can be
+        rounded up to the next multiple. None when no such q of a safe size exists
+        (for example costs such as 0.1 that floats cannot represent exactly).
+        """
+        values = [
+            Fraction(c)
+            for c in (
+                self.node_del,
+                self.node_ins,
+                self.node_sub,
+                self.edge_del,
+                self.edge_ins,
+                self.edge_sub,
+            )
+            if c > 0
+        ]
+        if not values:
+            return None
+        q = values[0]
+        for v in values[1:]:
+            # gcd of two fractions: gcd of numerators over lcm of denominators
+            q = Fraction(
+                math.gcd(q.numerator * v.denominator, v.numerator * q.denominator),
+                q.denominator * v.denominator,
+            )
+        if float(max(values) / q) > 1e6:
+            return None
+        return float(q)
+
+
+@dataclass(frozen=True)
+class _Labeled:
+    """A graph as index arrays: nodes 0..n-1, edges (i < j) and their labels."""
+
+    nodes: list
+    node_labels: list
+    edges: list[tuple[int, int]]
+    edge_labels: list
+    degree: list[int]
+    incident: list[list[int]]  # edge indices incident to each node
+
+
+# --------------------------------------------------------------------------- validation
+
+
+def _check_costs(**costs: float) -> _Costs:
+    values = {}
+    for name, value in costs.items():
+        if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
+            raise TypeError(
+                f"{name} must be a real number, got {value!r} of type "
+                f"{type(value).__name__}; pass a non-negative float"
+            )
+        v = float(value)
+        if not math.isfinite(v) or v < 0:
+            raise ValueError(f"{name} must be a finite number >= 0, got {value!r}")
+        values[name] = v
+    return _Costs(
+        node_del=values["node_del_cost"],
+        node_ins=values["node_ins_cost"],
+        node_sub=values["node_sub_cost"],
+        edge_del=values["edge_del_cost"],
+        edge_ins=values["edge_ins_cost"],
+        edge_sub=values["edge_sub_cost"],
+    )
+
+
+def _check_time_limit(time_limit: float | None) -> float | None:
+    if time_limit is None:
+        return None
+    if isinstance(time_limit, bool) or not isinstance(
+        time_limit, (int, float, np.integer, np.floating)
+    ):
+        raise TypeError(
+            f"time_limit must be a number of seconds or None, got {time_limit!r} of type "
+            f"{type(time_limit).__name__}"
+        )
+    if not float(time_limit) > 0 or math.isnan(float(time_limit)):
+        raise ValueError(
+            f"time_limit must be > 0 seconds (or None for no limit), got {time_limit!r}"
+        )
+    return float(time_limit)
+
+
+def _labeled(g: Any, name: str, node_label: Hashable, edge_label: Hashable) -> _Labeled:
+    """Validate ``g`` and return its index form."""
+    if not isinstance(g, nx.Graph):
+        raise TypeError(
+            f"{name} must be a networkx.Graph, got {type(g).__name__}; build one with "
+            f"networkx.Graph() and set the node attribute {node_label!r}"
+        )
+    if g.is_directed():
+        raise TypeError(
+            f"{name} is a directed graph ({type(g).__name__}); only undirected graphs are "
+            f"supported, convert it with {name}.to_undirected()"
+        )
+    if g.is_multigraph():
+        raise TypeError(
+            f"{name} is a multigraph ({type(g).__name__}); only simple graphs are supported, "
+            "convert it with networkx.Graph(...) after merging parallel edges"
+        )
+    nodes = list(g.nodes)
+    index = {u: i for i, u in enumerate(nodes)}
+    node_labels = []
+    for u, data in g.nodes(data=True):
+        label = data.get(node_label)
+        if label is None:
+            found = "it is None" if node_label in data else f"attributes: {sorted(map(str, data))}"
+            raise ValueError(
+                f"node {u!r} of {name} has no {node_label!r} attribute ({found}); set it on "
+                "every node or pass node_label=<the attribute name>"
+            )
+        _check_hashable(label, f"label {node_label!r} of node {u!r} of {name}")
+        node_labels.append(label)
+    edges: list[tuple[int, int]] = []
+    edge_labels = []
+    incident: list[list[int]] = [[] for _ in nodes]
+    for u, v, data in g.edges(data=True):
+        if u == v:
+            raise ValueError(
+                f"{name} has a self-loop at node {u!r}; self-loops are not supported, remove "
+                "them with g.remove_edges_from(networkx.selfloop_edges(g))"
+            )
+        label = data.get(edge_label)
+        _check_hashable(label, f"label {edge_label!r} of edge {(u, v)!r} of {name}")
+        i, j = sorted((index[u], index[v]))
+        incident[i].append(len(edges))
+        incident[j].append(len(edges))
+        edges.append((i, j))
+        edge_labels.append(label)
+    return _Labeled(
+        nodes=nodes,
+        node_labels=node_labels,
+        edges=edges,
+        edge_labels=edge_labels,
+        degree=[len(e) for e in incident],
+        incident=incident,
+    )
+
+
+def _check_hashable(label: Any, what: str) -> None:
+    try:
+        hash(label)
+    except TypeError:
+        raise TypeError(
+            f"{what} must be hashable (a categorical value such as a str or int), got "
+            f"{label!r} of type {type(label).__name__}"
+        ) from None
+
+
+# --------------------------------------------------------------------------- label isomorphism
+
+
+def _token_graphs(a: _Labeled, b: _Labeled) -> tuple[nx.Graph, nx.Graph]:
+    """Copies of both graphs whose labels are strings, equal iff the labels are equal.
+
+    The tokens come from one dict shared by both graphs, so labels that compare equal
+    (``1 == 1.0``) get the same token, which ``str`` alone would not give.
+    """
+    ids: dict[Hashable, str] = {}
+
+    def token(label: Hashable, kind: str) -> str:
+        return ids.setdefault((kind, label), f"{kind}{len(ids)}.")
+
+    out = []
+    for lab in (a, b):
+        h = nx.Graph()
+        h.add_nodes_from((i, {"t": token(x, "n")}) for i, x in enumerate(lab.node_labels))
+        h.add_edges_from(
+            (i, j, {"t": token(x, "e")}) for (i, j), x in zip(lab.edges, lab.edge_labels)
+        )
+        out.append(h)
+    return out[0], out[1]
+
+
+def _isomorphism(a: _Labeled, b: _Labeled) -> dict[int, int] | None:
+    """A label-preserving isomorphism (index -> index), or None when there is none."""
+    if len(a.nodes) != len(b.nodes) or len(a.edges) != len(b.edges):
+        return None
+    if sorted(a.degree) != sorted(b.degree):
+        return None
+    if Counter(a.node_labels) != Counter(b.node_labels):
+        return None
+    if Counter(a.edge_labels) != Counter(b.edge_labels):
+        return None
+    h1, h2 = _token_graphs(a, b)
+    # Weisfeiler-Lehman hashes differ -> not isomorphic; equal hashes prove nothing.
+    if nx.weisfeiler_lehman_graph_hash(
+        h1, node_attr="t", edge_attr="t"
+    ) != nx.weisfeiler_lehman_graph_hash(h2, node_attr="t", edge_attr="t"):
+        return None
+    matcher = nx.algorithms.isomorphism.GraphMatcher(
+        h1,
+        h2,
+        node_match=lambda x, y: x["t"] == y["t"],
+        edge_match=lambda x, y: x["t"] == y["t"],
+    )
+    if matcher.is_isomorphic():
+        return dict(matcher.mapping)
+    return None
+
+
+# --------------------------------------------------------------------------- costs
+
+
+def _multiset_cost(a: Sequence, b: Sequence, sub: float, dele: float, ins: float) -> float:
+    """Least cost of editing the label multiset ``a`` into ``b``.
+
+    Pairs as many items as possible (``min(len(a), len(b))``), equal labels first; a pair
+    of unequal labels costs ``min(sub, dele + ins)``, a left-over item of ``a`` costs
+    ``dele`` and one of ``b`` costs ``ins``.
+    """
+    n1, n2 = len(a), len(b)
+    if n1 == 0 or n2 == 0:
+        return n1 * dele + n2 * ins
+    common = sum((Counter(a) & Counter(b)).values())
+    paired = min(n1, n2)
+    return (paired - common) * min(sub, dele + ins) + (n1 - paired) * dele + (n2 - paired) * ins
+
+
+def _node_sub_matrix(a: _Labeled, b: _Labeled, costs: _Costs) -> NDArray[np.float64]:
+    # Compare labels with ==, not by hash (hash collisions must not count as equal).
+    eq = np.array([[x == y for y in b.node_labels] for x in a.node_labels], dtype=bool)
+    eq = eq.reshape(len(a.node_labels), len(b.node_labels))
+    return np.where(eq, 0.0, costs.node_sub)
+
+
+def _star_matrix(a: _Labeled, b: _Labeled, costs: _Costs) -> NDArray[np.float64]:
+    """Least cost of editing the incident edge labels of node i into those of node k."""
+    stars_a = [[a.edge_labels[e] for e in inc] for inc in a.incident]
+    stars_b = [[b.edge_labels[f] for f in inc] for inc in b.incident]
+    out = np.empty((len(stars_a), len(stars_b)))
+    for i, sa in enumerate(stars_a):
+        for k, sb in enumerate(stars_b):
+            out[i, k] = _multiset_cost(sa, sb, costs.edge_sub, costs.edge_del, costs.edge_ins)
+    return out
+
+
+def _assign(
+    sub: NDArray[np.float64], dele: NDArray[np.float64], ins: NDArray[np.float64]
+) -> NDArray[np.intp]:
+    """Solve the square (n1 + n2) assignment problem of Riesen & Bunke.
+
+    Returns, for each node of the first graph, the index of its image or -1.
+    """
+    from scipy.optimize import linear_sum_assignment
+
+    n1, n2 = sub.shape
+    big = float(np.abs(sub).sum() + np.abs(dele).sum() + np.abs(ins).sum() + 1.0)
+    c = np.zeros((n1 + n2, n1 + n2))
+    c[:n1, :n2] = sub
+    c[:n1, n2:] = big
+    c[np.arange(n1), n2 + np.arange(n1)] = dele
+    c[n1:, :n2] = big
+    c[n1 + np.arange(n2), np.arange(n2)] = ins
+    rows, cols = linear_sum_assignment(c)
+    image = np.full(n1, -1, dtype=np.intp)
+    keep = (rows < n1) & (cols < n2)
+    image[rows[keep]] = cols[keep]
+    return image
+
+
+def _path_cost(a: _Labeled, b: _Labeled, image: NDArray[np.intp], costs: _Costs) -> float:
+    """Cost of the edit path induced by a node map (index of image or -1 per node of a)."""
+    total = 0.0
+    mapped = 0
+    for i, k in enumerate(image):
+        if k < 0:
+            total += costs.node_del
+        else:
+            mapped += 1
+            if a.node_labels[i] != b.node_labels[k]:
+                total += costs.node_sub
+    total += (len(b.nodes) - mapped) * costs.node_ins
+    edges_b = {e: lab for e, lab in zip(b.edges, b.edge_labels)}
+    edge_sub = min(costs.edge_sub, costs.edge_del + costs.edge_ins)
+    kept = 0
+    for (i, j), lab in zip(a.edges, a.edge_labels):
+        k, l = image[i], image[j]
+        key = (min(k, l), max(k, l))
+        if k >= 0 and l >= 0 and key in edges_b:
+            kept += 1
+            if lab != edges_b[key]:
+                total += edge_sub
+        else:
+            total += costs.edge_del
+    total += (len(b.edges) - kept) * costs.edge_ins
+    return total
+
+
+def _round_lower(lower: float, costs: _Costs, from_solver: bool = True) -> float:
+    """Round a proven lower bound up to the next possible edit distance value.
+
+    With a cost unit q (see ``_Costs.unit``) the bound goes up to a multiple of q; the
+    1e-6 slack absorbs the solvers' floating-point tolerances. Without a unit a bound
+    that comes from a solver is lowered by a relative 1e-9 so that solver round-off never
+    makes it too high.
+    """
+    if not math.isfinite(lower):
+        return lower
+    q = costs.unit
+    if q is not None:
+        return math.ceil(lower / q - 1e-6) * q
+    return lower - 1e-9 * max(1.0, abs(lower)) if from_solver else lower
+
+
+def _closed(lower: float, upper: float) -> bool:
+    """Whether the bounds prove the upper bound optimal."""
+    return upper - lower <= 1e-8 * max(1.0, abs(upper))
+
+
+def _bounds(
+    a: _Labeled, b: _Labeled, costs: _Costs
+) -> tuple[float, float, NDArray[np.intp]]:
+    """Cheap lower bound, bipartite upper bound and the node map giving that upper bound."""
+    n1, n2 = len(a.nodes), len(b.nodes)
+    if n1 == 0 or n2 == 0:
+        # Nothing to pair: delete everything of a, insert everything of b.
+        cost = n1 * costs.node_del + n2 * costs.node_ins
+        cost += len(a.edges) * costs.edge_del + len(b.edges) * costs.edge_ins
+        return cost, cost, np.full(n1, -1, dtype=np.intp)
+
+    # Label multiset bound: node and edge labels edited as two independent multisets.
+    lower = _multiset_cost(
+        a.node_labels, b.node_labels, costs.node_sub, costs.node_del, costs.node_ins
+    ) + _multiset_cost(
+        a.edge_labels, b.edge_labels, costs.edge_sub, costs.edge_del, costs.edge_ins
+    )
+
+    sub = _node_sub_matrix(a, b, costs)
+    star = _star_matrix(a, b, costs)
+    deg_a = np.asarray(a.degree, dtype=float)
+    deg_b = np.asarray(b.degree, dtype=float)
+
+    # Branch (degree and incident-label) bound: every edge cost is split in halves between
+    # its two end nodes, so an assignment with half the local edge costs is a lower bound.
+    half = _assign(
+        sub + 0.5 * star,
+        costs.node_del + 0.5 * costs.edge_del * deg_a,
+        costs.node_ins + 0.5 * costs.edge_ins * deg_b,
+    )
+    sub_h = sub + 0.5 * star
+    lower_branch = 0.0
+    used = np.zeros(n2, dtype=bool)
+    for i, k in enumerate(half):
+        if k < 0:
+            lower_branch += costs.node_del + 0.5 * costs.edge_del * deg_a[i]
+        else:
+            used[k] = True
+            lower_branch += sub_h[i, k]
+    lower_branch += float(np.sum(costs.node_ins + 0.5 * costs.edge_ins * deg_b[~used]))
+    lower = max(lower, lower_branch)
+
+    # Bipartite upper bound (Riesen & Bunke): full local edge costs; the node map's true
+    # edit cost is an upper bound. The branch map is a second candidate.
+    full = _assign(
+        sub + star,
+        costs.node_del + costs.edge_del * deg_a,
+        costs.node_ins + costs.edge_ins * deg_b,
+    )
+    best_image, upper = full, _path_cost(a, b, full, costs)
+    other = _path_cost(a, b, half, costs)
+    if other < upper:
+        best_image, upper = half, other
+    lower = min(_round_lower(lower, costs, from_solver=False), upper)
+    return lower, upper, best_image
+
+
+# --------------------------------------------------------------------------- local search
+
+
+@dataclass(frozen=True)
+class _Padded:
+    """Both graphs padded to N = n1 + n2 nodes, for the swap local search.
+
+    A node of the first graph sent to a padding node (index >= n2) is deleted; a padding
+    node of the first graph (index >= n1) sent to a real node inserts that node.
+    """
+
+    node_cost: NDArray[np.float64]  # (N, N) cost of sending i to k
+    codes1: NDArray[np.intp]  # (N, N) edge label codes of the first graph, 0 = no edge
+    codes2: NDArray[np.intp]  # (N, N) the same for the second graph
+    edge_cost: NDArray[np.float64]  # (K + 1, K + 1) cost between two codes
+    n1: int
+    n2: int
+
+
+# Largest padded size for the local search: its work per step grows as N**3.
+_MAX_SEARCH_NODES = 150
+# Random starts of the local search tried before the linear relaxation, and after it
+# (before the integer program).
+_RESTARTS_FIRST = 4
+_RESTARTS_SECOND = 16
+
+
+def _padded(a: _Labeled, b: _Labeled, costs: _Costs) -> _Padded:
+    n1, n2 = len(a.nodes), len(b.nodes)
+    big_n = n1 + n2
+    node_cost = np.zeros((big_n, big_n))
+    node_cost[:n1, :n2] = _node_sub_matrix(a, b, costs)
+    node_cost[:n1, n2:] = costs.node_del
+    node_cost[n1:, :n2] = costs.node_ins
+    ids: dict[Hashable, int] = {}
+    codes = []
+    for lab in (a, b):
+        m = np.zeros((big_n, big_n), dtype=np.intp)
+        for (i, j), x in zip(lab.edges, lab.edge_labels):
+            m[i, j] = m[j, i] = ids.setdefault(x, len(ids) + 1)
+        codes.append(m)
+    k = len(ids) + 1
+    edge_cost = np.full((k, k), min(costs.edge_sub, costs.edge_del + costs.edge_ins))
+    np.fill_diagonal(edge_cost, 0.0)
+    edge_cost[1:, 0] = costs.edge_del
+    edge_cost[0, 1:] = costs.edge_ins
+    return _Padded(node_cost, codes[0], codes[1], edge_cost, n1, n2)
+
+
+def _to_perm(image: NDArray[np.intp], n2: int) -> NDArray[np.intp]:
+    """Extend a node map (image or -1 per node of the first graph) to a permutation."""
+    n1 = len(image)
+    perm = np.empty(n1 + n2, dtype=np.intp)
+    used = np.zeros(n1 + n2, dtype=bool)
+    real = image >= 0
+    perm[:n1][real] = image[real]
+    used[image[real]] = True
+    for i in np.flatnonzero(~real):
+        k = _next_free(used, n2)  # a padding node: i is deleted
+        perm[i] = k
+        used[k] = True
+    perm[n1:] = np.flatnonzero(~used)
+    return perm
+
+
+def _next_free(used: NDArray[np.bool_], start: int) -> int:
+    return int(start + np.flatnonzero(~used[start:])[0])
+
+
+def _local_search(
+    pad: _Padded, image: NDArray[np.intp], max_steps: int = 200
+) -> NDArray[np.intp]:
+    """Improve a node map by best-improvement swaps of two images until none helps.
+
+    The change of cost of every swap (a, b) is computed at once from
+    ``q[i, x, c]``, the cost of the edge slot (i, x) when x is sent to c and i stays.
+    """
+    big_n = pad.n1 + pad.n2
+    if big_n < 2 or big_n > _MAX_SEARCH_NODES:
+        return image
+    perm = _to_perm(image, pad.n2)
+    rows, cols = np.triu_indices(big_n, 1)
+    for _ in range(max_steps):
+        q = pad.edge_cost[pad.codes1[:, :, None], pad.codes2[perm][:, None, :]]
+        s = q.sum(axis=0)  # s[x, c] = sum_i q[i, x, c]
+        pa, pb = perm[rows], perm[cols]
+        # Edge cost of the slots (i, x), i outside the swapped pair, with x sent to c.
+        # The slot between the swapped pair itself keeps its cost.
+        slot_r_pb = s[rows, pb] - q[rows, rows, pb] - q[cols, rows, pb]
+        slot_c_pa = s[cols, pa] - q[rows, cols, pa] - q[cols, cols, pa]
+        slot_r_pa = s[rows, pa] - q[rows, rows, pa] - q[cols, rows, pa]
+        slot_c_pb = s[cols, pb] - q[rows, cols, pb] - q[cols, cols, pb]
+        delta = (
+            slot_r_pb + slot_c_pa - slot_r_pa - slot_c_pb
+            + pad.node_cost[rows, pb] + pad.node_cost[cols, pa]
+            - pad.node_cost[rows, pa] - pad.node_cost[cols, pb]
+        )
+        best = int(np.argmin(delta))
+        if not delta[best] < -1e-9:
+            break
+        r, c = rows[best], cols[best]
+        perm[r], perm[c] = perm[c], perm[r]
+    out = perm[: pad.n1].copy()
+    out[out >= pad.n2] = -1
+    return out
+
+
+# --------------------------------------------------------------------------- linear programs
+
+
+@dataclass(frozen=True)
+class _Program:
+    r"""The binary linear program F2 of Lerouge et al. (2017), for undirected graphs.
+
+    Variables: :math:`x_{ik} \in \{0,1\}` (node i of the first graph substituted by node k
+    of the second) and :math:`y_{ef}^o \in [0,1]` (edge e = (i, j) substituted by edge
+    f = (k, l) in orientation o: o = 0 sends i to k and j to l, o = 1 sends i to l and j to
+    k). With :math:`C_0 = n_1 c_{nd} + n_2 c_{ni} + m_1 c_{ed} + m_2 c_{ei}` (delete and
+    insert everything), minimise
+
+    .. math::
+        C_0 + \sum_{ik} (c_{ik} - c_{nd} - c_{ni}) x_{ik}
+            + \sum_{efo} (c_{ef} - c_{ed} - c_{ei}) y_{ef}^o
+
+    subject to :math:`\sum_k x_{ik} \le 1`, :math:`\sum_i x_{ik} \le 1`, and, for every end
+    node u of an edge e of the first graph and every node v of the second graph,
+    :math:`\sum_{(f, o) : u \to v} y_{ef}^o \le x_{uv}` (the edge moves with its end
+    node), and the same for every end node v of an edge f of the second graph and every
+    node u of the first graph: :math:`\sum_{(e, o) : u \to v} y_{ef}^o \le x_{uv}`. For
+    integral x these rows allow :math:`y_{ef}^o = 1` only when both end nodes of e are sent
+    onto those of f in orientation o, so y needs no integrality. Only pairs (e, f) whose
+    substitution is cheaper than deletion plus insertion get y variables; the last variable
+    is fixed to 1 and carries :math:`C_0`, so that the objective equals the edit cost.
+    """
+
+    c: NDArray[np.float64]
+    matrix: Any  # scipy.sparse.csr_array of the rows above
+    ub: NDArray[np.float64]
+    n_x: int
+    n_vars: int
+
+
+def _program(a: _Labeled, b: _Labeled, costs: _Costs) -> _Program:
+    from scipy.sparse import coo_array
+
+    n1, n2 = len(a.nodes), len(b.nodes)
+    m1, m2 = len(a.edges), len(b.edges)
+    const = n1 * costs.node_del + n2 * costs.node_ins + m1 * costs.edge_del + m2 * costs.edge_ins
+    c_x = (_node_sub_matrix(a, b, costs) - costs.node_del - costs.node_ins).ravel()
+    saving_equal = -costs.edge_del - costs.edge_ins
+    saving_unequal = costs.edge_sub - costs.edge_del - costs.edge_ins
+    n_x = n1 * n2
+    c_y: list[float] = []
+    # rows keyed by (edge of the first graph, u, v) and (edge of the second graph, u, v)
+    by_first: dict[tuple[int, int, int], list[int]] = {}
+    by_second: dict[tuple[int, int, int], list[int]] = {}
+    for e, la in enumerate(a.edge_labels):
+        i, j = a.edges[e]
+        for f, lb in enumerate(b.edge_labels):
+            cost = saving_equal if la == lb else saving_unequal
+            if not cost < 0:
+                continue
+            k, l = b.edges[f]
+            for pairs in (((i, k), (j, l)), ((i, l), (j, k))):
+                var = n_x + len(c_y)
+                c_y.append(cost)
+                for u, v in pairs:
+                    by_first.setdefault((e, u, v), []).append(var)
+                    by_second.setdefault((f, u, v), []).append(var)
+    n_vars = n_x + len(c_y) + 1
+
+    rows: list[int] = []
+    cols: list[int] = []
+    vals: list[float] = []
+    ub: list[float] = []
+
+    def add_row(entries: list[tuple[int, float]], bound: float) -> None:
+        for col, val in entries:
+            rows.append(len(ub))
+            cols.append(col)
+            vals.append(val)
+        ub.append(bound)
+
+    for i in range(n1):  # a node of the first graph has at most one image
+        add_row([(i * n2 + k, 1.0) for k in range(n2)], 1.0)
+    for k in range(n2):  # a node of the second graph has at most one preimage
+        add_row([(i * n2 + k, 1.0) for i in range(n1)], 1.0)
+    for group in (by_first, by_second):  # an edge moves with its end nodes
+        for (_, u, v), ys in group.items():
+            add_row([(y, 1.0) for y in ys] + [(u * n2 + v, -1.0)], 0.0)
+    matrix = coo_array((vals, (rows, cols)), shape=(len(ub), n_vars)).tocsr()
+    c = np.concatenate([c_x, np.asarray(c_y, dtype=float), [const]])
+    return _Program(c, matrix, np.asarray(ub, dtype=float), n_x, n_vars)
+
+
+def _variable_bounds(prog: _Program) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    lo = np.zeros(prog.n_vars)
+    lo[-1] = 1.0  # the constant C0
+    return lo, np.ones(prog.n_vars)
+
+
+def _round_x(x: NDArray[np.float64], n1: int, n2: int) -> NDArray[np.intp]:
+    """Node map that keeps the most of a (fractional) solution's x mass."""
+    x = np.clip(x.reshape(n1, n2), 0.0, 1.0)
+    return _assign(-x, -(1.0 - x.sum(axis=1)), -(1.0 - x.sum(axis=0)))
+
+
+def _relaxation(
+    prog: _Program, n1: int, n2: int, time_limit: float | None
+) -> tuple[float, NDArray[np.intp] | None]:
+    """Optimal value of the linear relaxation (a lower bound) and a node map rounded from it."""
+    from scipy.optimize import linprog
+
+    lo, hi = _variable_bounds(prog)
+    options: dict[str, Any] = {}
+    if time_limit is not None:
+        options["time_limit"] = time_limit
+    res = linprog(
+        prog.c,
+        A_ub=prog.matrix,
+        b_ub=prog.ub,
+        bounds=np.column_stack([lo, hi]),
+        # dual simplex is fastest on small programs, interior point on larger ones
+        method="highs-ds" if prog.n_vars <= 1000 else "highs-ipm",
+        options=options,
+    )
+    if res.status != 0 or res.x is None:
+        return -math.inf, None
+    return float(res.fun), _round_x(res.x[: prog.n_x], n1, n2)
+
+
+@dataclass(frozen=True)
+class _MilpOutcome:
+    image: NDArray[np.intp] | None  # a node map cheaper than the cutoff, or None
+    lower: float  # proven lower bound on the edit distance (may be -inf)
+    optimal: float  # objective of a solution proven optimal (gap 0), else nan
+
+
+def _solve_milp(
+    prog: _Program,
+    n1: int,
+    n2: int,
+    costs: _Costs,
+    upper: float,
+    time_limit: float | None,
+) -> _MilpOutcome:
+    """Search for an edit path cheaper than ``upper`` with HiGHS.
+
+    With a cost unit q the objective is capped at ``upper - q`` (only strictly better
+    paths are sought; infeasibility proves ``upper`` optimal) and the relative gap
+    tolerance is set so that the absolute gap at stop is below q. Without a unit the cap
+    is ``upper`` and the gap tolerance is 0.
+    """
+    from scipy.optimize import Bounds, LinearConstraint, milp
+
+    q = costs.unit
+    cutoff = upper - q if q is not None else upper
+    cutoff += 1e-7 * max(1.0, abs(upper))
+    gap = 0.999 * q / max(1.0, upper) if q is not None else 0.0
+    # Presolve and primal heuristics cost more than they save on these small programs
+    # whose good solutions the local search has already found (measured on QM9 pairs).
+    options: dict[str, Any] = {
+        "disp": False,
+        "mip_rel_gap": gap,
+        "presolve": False,
+        "mip_heuristic_effort": 0.0,
+    }
+    if time_limit is not None:
+        options["time_limit"] = time_limit
+    integrality = np.zeros(prog.n_vars)
+    integrality[: prog.n_x] = 1
+    lo, hi = _variable_bounds(prog)
+    with warnings.catch_warnings():
+        # scipy passes options it does not know (mip_heuristic_effort) on to HiGHS
+        # verbatim, with a RuntimeWarning saying so.
+        warnings.filterwarnings("ignore", "Unrecognized options", RuntimeWarning)
+        res = milp(
+            prog.c,
+            integrality=integrality,
+            bounds=Bounds(lo, hi),
+            constraints=[
+                LinearConstraint(prog.matrix, -np.inf, prog.ub),
+                LinearConstraint(prog.c.reshape(1, -1), -np.inf, cutoff),
+            ],
+            options=options,
+        )
+    if res.status == 2:
+        # No path cheaper than the cap: with a unit, `upper` is optimal.
+        return _MilpOutcome(None, upper if q is not None else -math.inf, math.nan)
+    image = None
+    if res.x is not None:
+        image = _round_x(np.asarray(res.x[: prog.n_x]), n1, n2)
+    dual = getattr(res, "mip_dual_bound", None)
+    lower = float(dual) if dual is not None and math.isfinite(float(dual)) else -math.inf
+    optimal = math.nan
+    if res.status == 0 and res.x is not None and q is None:
+        optimal = float(res.fun)  # optimal with zero gap tolerance
+    # Bounds of the capped program hold for the edit distance only below the cap.
+    return _MilpOutcome(image, min(lower, upper), optimal)
+
+
+# --------------------------------------------------------------------------- public API
+
+
+def _mapping_dict(a: _Labeled, b: _Labeled, image: NDArray[np.intp]) -> dict:
+    return {
+        u: (b.nodes[int(image[i])] if int(image[i]) >= 0 else None)
+        for i, u in enumerate(a.nodes)
+    }
+
+
+def _prepare(
+    g1: Any,
+    g2: Any,
+    node_label: Hashable,
+    edge_label: Hashable,
+    cost_kwargs: dict[str, float],
+) -> tuple[_Labeled, _Labeled, _Costs]:
+    costs = _check_costs(**cost_kwargs)
+    a = _labeled(g1, "g1", node_label, edge_label)
+    b = _labeled(g2, "g2", node_label, edge_label)
+    return a, b, costs
+
+
+def edit_distance_bounds(
+    g1: nx.Graph,
+    g2: nx.Graph,
+    *,
+    node_label: Hashable = "label",
+    edge_label: Hashable = "label",
+    node_del_cost: float = 1.0,
+    node_ins_cost: float = 1.0,
+    node_sub_cost: float = 1.0,
+    edge_del_cost: float = 1.0,
+    edge_ins_cost: float = 1.0,
+    edge_sub_cost: float = 1.0,
+) -> tuple[float, float]:
+    r"""Cheap lower and upper bounds on the graph edit distance.
+
+    Parameters
+    ----------
+    g1, g2 : networkx.Graph
+        Undirected simple graphs with a label on every node.
+    node_label : hashable, default="label"
+        Name of the node attribute holding the categorical node label.
+    edge_label : hashable, default="label"
+        Name of the edge attribute holding the categorical edge label; an edge without it
+        has label ``None``.
+    node_del_cost, node_ins_cost, node_sub_cost : float, default=1.0
+        Cost of deleting a node, inserting a node, and substituting a node by one with a
+        different label (equal labels cost 0).
+    edge_del_cost, edge_ins_cost, edge_sub_cost : float, default=1.0
+        The same for edges.
+
+    Returns
+    -------
+    lower : float
+        The larger of the label-multiset bound and the branch bound (node labels plus half
+        of the incident edge-label multiset cost, optimally assigned).
+    upper : float
+        Cost of the edit path induced by the bipartite node assignment of Riesen & Bunke [1]_
+        (node cost plus the full incident edge-label cost).
+
+    Raises
+    ------
+    TypeError
+        If a graph is not an undirected simple ``networkx.Graph``, a label is not hashable or
+        a cost is not a number.
+    ValueError
+        If a node has no label, a graph has a self-loop, or a cost is negative or not finite.
+
+    See Also
+    --------
+    edit_distance : exact value, with these bounds as a first step.
+
+    Notes
+    -----
+    Both bounds cost one or two linear sum assignments of size
+    :math:`(n_1 + n_2) \times (n_1 + n_2)`. The branch bound is described in [2]_. When all
+    costs are integers, the lower bound is rounded up to an integer.
+
+    References
+    ----------
+    .. [1] K. Riesen and H. Bunke, "Approximate graph edit distance computation by means of
+       bipartite graph matching", Image and Vision Computing 27(7), 950-959, 2009.
+    .. [2] D. B. Blumenthal and J. Gamper, "Improved lower bounds for graph edit distance",
+       IEEE Transactions on Knowledge and Data Engineering 30(3), 503-516, 2018.
+
+    Examples
+    --------
+    >>> import networkx as nx
+    >>> g = nx.path_graph(3)
+    >>> nx.set_node_attributes(g, "C", "label")
+    >>> edit_distance_bounds(g, nx.Graph())
+    (5.0, 5.0)
+    """
+    a, b, costs = _prepare(
+        g1,
+        g2,
+        node_label,
+        edge_label,
+        dict(
+            node_del_cost=node_del_cost,
+            node_ins_cost=node_ins_cost,
+            node_sub_cost=node_sub_cost,
+            edge_del_cost=edge_del_cost,
+            edge_ins_cost=edge_ins_cost,
+            edge_sub_cost=edge_sub_cost,
+        ),
+    )
+    lower, upper, _ = _bounds(a, b, costs)
+    return float(lower), float(upper)
+
+
+def edit_distance(
+    g1: nx.Graph,
+    g2: nx.Graph,
+    *,
+    node_label: Hashable = "label",
+    edge_label: Hashable = "label",
+    node_del_cost: float = 1.0,
+    node_ins_cost: float = 1.0,
+    node_sub_cost: float = 1.0,
+    edge_del_cost: float = 1.0,
+    edge_ins_cost: float = 1.0,
+    edge_sub_cost: float = 1.0,
+    time_limit: float | None = None,
+) -> EditDistance:
+    r"""Exact graph edit distance between two labeled graphs.
+
+    The edit distance is the least total cost of node and edge deletions, insertions and
+    label substitutions that turn ``g1`` into a graph label-isomorphic to ``g2``:
+
+    .. math::
+        \mathrm{GED}(G_1, G_2) = \min_{\varphi} \sum_{i} c_n(i, \varphi(i))
+            + \sum_{e} c_e(e, \varphi(e)) + \text{insertions}
+
+    where :math:`\varphi` is a partial injective map from the nodes of :math:`G_1` to those of
+    :math:`G_2` (unmapped nodes are deleted), edges follow their end nodes, and a
+    substitution costs 0 between equal labels.
+
+    Parameters
+    ----------
+    g1, g2 : networkx.Graph
+        Undirected simple graphs with a label on every node.
+    node_label : hashable, default="label"
+        Name of the node attribute holding the categorical node label.
+    edge_label : hashable, default="label"
+        Name of the edge attribute holding the categorical edge label; an edge without it
+        has label ``None``.
+    node_del_cost, node_ins_cost, node_sub_cost : float, default=1.0
+        Cost of deleting a node, inserting a node, and substituting a node by one with a
+        different label (equal labels cost 0).
+    edge_del_cost, edge_ins_cost, edge_sub_cost : float, default=1.0
+        The same for edges.
+    time_limit : float or None, default=None
+        Seconds for the search steps (local search restarts, linear relaxation, integer
+        program), counted from the start of the call; the cheap steps before them always
+        run. When time runs out the result has ``exact=False`` and brackets the distance
+        with ``lower`` and ``upper``. None means no limit; the integer program may then
+        take long on large unrelated graphs.
+
+    Returns
+    -------
+    EditDistance
+        ``value``, ``lower``, ``upper``, ``exact`` and the node ``mapping`` of the best edit
+        path found (``value == upper`` is that path's cost).
+
+    Raises
+    ------
+    TypeError
+        If a graph is directed, a multigraph or not a ``networkx.Graph``, a label is not
+        hashable, or a cost or ``time_limit`` is not a number.
+    ValueError
+        If a node has no label, a graph has a self-loop, a cost is negative or not finite,
+        or ``time_limit`` is not positive.
+
+    See Also
+    --------
+    edit_distance_bounds : the cheap bounds only.
+    exact_match : label isomorphism test.
+
+    Notes
+    -----
+    Steps, cheapest first; each stops as soon as the lower bound meets the cost of the
+    best edit path found:
+
+    1. Label isomorphism (count, degree and label checks, Weisfeiler-Lehman hash [4]_, then
+       VF2 from networkx): distance 0.
+    2. A lower bound (label multisets; branch bound of [3]_) and the upper bound of the
+       bipartite node assignment of Riesen & Bunke [2]_ (see :func:`edit_distance_bounds`).
+    3. Local search on node maps (best swap of two images, from the bipartite map and
+       from a few seeded random maps) for cheaper edit paths.
+    4. The linear relaxation of the binary linear program F2 of Lerouge et al. [1]_
+       (HiGHS through ``scipy.optimize.linprog``): a lower bound, and a node map rounded
+       from its solution as a start for the local search; then more random starts.
+    5. The binary linear program itself with ``scipy.optimize.milp`` (HiGHS), restricted
+       to edit paths cheaper than the best one found. Edge variables exist only for edge
+       pairs whose substitution is cheaper than deletion plus insertion, and are
+       continuous: integral node variables force them to 0 or 1.
+
+    When every cost is a whole multiple of one unit q (e.g. unit costs, or 0.25 and 1.5),
+    every edit distance is a multiple of q, so lower bounds are rounded up to a multiple of
+    q, and the integer program only has to rule out paths cheaper by q or more. Other costs
+    (e.g. 0.1, which floats do not hold exactly) rely on HiGHS's optimality, up to its
+    tolerances (about 1e-6).
+
+    An edge substitution costs ``min(edge_sub_cost, edge_del_cost + edge_ins_cost)``, since
+    an edit path may delete and re-insert an edge instead (networkx does the same).
+
+    References
+    ----------
+    .. [1] J. Lerouge, Z. Abu-Aisheh, R. Raveaux, P. Héroux and S. Adam, "New binary linear
+       programming formulation to compute the graph edit distance", Pattern Recognition 72,
+       254-265, 2017.
+    .. [2] K. Riesen and H. Bunke, "Approximate graph edit distance computation by means of
+       bipartite graph matching", Image and Vision Computing 27(7), 950-959, 2009.
+    .. [3] D. B. Blumenthal and J. Gamper, "Improved lower bounds for graph edit distance",
+       IEEE Transactions on Knowledge and Data Engineering 30(3), 503-516, 2018.
+    .. [4] N. Shervashidze, P. Schweitzer, E. J. van Leeuwen, K. Mehlhorn and
+       K. M. Borgwardt, "Weisfeiler-Lehman graph kernels", Journal of Machine Learning
+       Research 12, 2539-2561, 2011.
+
+    Examples
+    --------
+    >>> import networkx as nx
+    >>> p, c = nx.path_graph(4), nx.cycle_graph(4)
+    >>> nx.set_node_attributes(p, "C", "label")
+    >>> nx.set_node_attributes(c, "C", "label")
+    >>> r = edit_distance(p, c)
+    >>> r.value, r.exact
+    (1.0, True)
+    """
+    a, b, costs = _prepare(
+        g1,
+        g2,
+        node_label,
+        edge_label,
+        dict(
+            node_del_cost=node_del_cost,
+            node_ins_cost=node_ins_cost,
+            node_sub_cost=node_sub_cost,
+            edge_del_cost=edge_del_cost,
+            edge_ins_cost=edge_ins_cost,
+            edge_sub_cost=edge_sub_cost,
+        ),
+    )
+    time_limit = _check_time_limit(time_limit)
+    t0 = time.perf_counter()
+
+    def remaining() -> float | None:
+        return None if time_limit is None else time_limit - (time.perf_counter() - t0)
+
+    iso = _isomorphism(a, b)
+    if iso is not None:
+        image = np.array([iso[i] for i in range(len(a.nodes))], dtype=np.intp)
+        return EditDistance(0.0, 0.0, 0.0, True, _mapping_dict(a, b, image))
+
+    n1, n2 = len(a.nodes), len(b.nodes)
+    lower, upper, image = _bounds(a, b, costs)
+    if not _closed(lower, upper):
+        pad = _padded(a, b, costs)
+
+        def consider(candidate: NDArray[np.intp] | None) -> None:
+            nonlocal upper, image
+            if candidate is None:
+                return
+            candidate = _local_search(pad, candidate)
+            cost = _path_cost(a, b, candidate, costs)
+            if cost < upper:
+                upper, image = cost, candidate
+
+        # Random starts of the local search, seeded so that results are reproducible.
+        rng = np.random.default_rng(0)
+
+        def restarts(count: int) -> None:
+            for _ in range(count):
+                left = remaining()
+                if _closed(lower, upper) or (left is not None and left <= 0):
+                    return
+                start = rng.permutation(n1 + n2)[:n1]
+                consider(np.where(start < n2, start, -1).astype(np.intp))
+
+        consider(image)
+        restarts(_RESTARTS_FIRST)
+        if not _closed(lower, upper):
+            prog = _program(a, b, costs)
+            left = remaining()
+            if left is None or left > 0:
+                bound, candidate = _relaxation(prog, n1, n2, left)
+                lower = max(lower, _round_lower(bound, costs))
+                consider(candidate)
+            restarts(_RESTARTS_SECOND)
+            left = remaining()
+            if not _closed(lower, upper) and (left is None or left > 0):
+                outcome = _solve_milp(prog, n1, n2, costs, upper, left)
+                if outcome.image is not None:
+                    cost = _path_cost(a, b, outcome.image, costs)
+                    if cost < upper:
+                        upper, image = cost, outcome.image
+                    # Without a cost unit, trust HiGHS's zero-gap optimum up to its
+                    # feasibility tolerances when its path costs what it reported.
+                    if cost <= outcome.optimal + 1e-6 * max(1.0, abs(outcome.optimal)):
+                        lower = upper
+                lower = max(lower, _round_lower(outcome.lower, costs))
+    exact = _closed(lower, upper)
+    lower = upper if exact else min(lower, upper)
+    return EditDistance(
+        value=float(upper),
+        lower=float(lower),
+        upper=float(upper),
+        exact=bool(exact),
+        mapping=_mapping_dict(a, b, image),
+    )
+
+
+def exact_match(
+    g1: nx.Graph,
+    g2: nx.Graph,
+    *,
+    node_label: Hashable = "label",
+    edge_label: Hashable = "label",
+) -> bool:
+    """Whether two labeled graphs are isomorphic with equal node and edge labels.
+
+    Parameters
+    ----------
+    g1, g2 : networkx.Graph
+        Undirected simple graphs with a label on every node.
+    node_label : hashable, default="label"
+        Name of the node attribute holding the categorical node label.
+    edge_label : hashable, default="label"
+        Name of the edge attribute holding the categorical edge label; an edge without it
+        has label ``None``.
+
+    Returns
+    -------
+    bool
+        True when a bijection of the nodes keeps every node label, every edge and every
+        edge label.
+
+    Raises
+    ------
+    TypeError
+        If a graph is directed, a multigraph or not a ``networkx.Graph``, or a label is not
+        hashable.
+    ValueError
+        If a node has no label or a graph has a self-loop.
+
+    Notes
+    -----
+    Counts, degree sequences and label multisets are compared first, then the
+    Weisfeiler-Lehman hashes of networkx [1]_ (computed on string tokens of the labels, so
+    integer labels and missing edge labels work), and only then the VF2 isomorphism test.
+
+    References
+    ----------
+    .. [1] N. Shervashidze, P. Schweitzer, E. J. van Leeuwen, K. Mehlhorn and
+       K. M. Borgwardt, "Weisfeiler-Lehman graph kernels", Journal of Machine Learning
+       Research 12, 2539-2561, 2011.
+
+    Examples
+    --------
+    >>> import networkx as nx
+    >>> g = nx.Graph([(0, 1, {"label": 2})])
+    >>> nx.set_node_attributes(g, {0: "C", 1: "O"}, "label")
+    >>> h = nx.Graph([("a", "b", {"label": 2})])
+    >>> nx.set_node_attributes(h, {"a": "O", "b": "C"}, "label")
+    >>> exact_match(g, h)
+    True
+    """
+    a = _labeled(g1, "g1", node_label, edge_label)
+    b = _labeled(g2, "g2", node_label, edge_label)
+    return _isomorphism(a, b) is not None
+
+
+def summarize(
+    predicted: Sequence[nx.Graph],
+    true: Sequence[nx.Graph],
+    *,
+    node_label: Hashable = "label",
+    edge_label: Hashable = "label",
+    time_limit: float | None = None,
+    progress: bool = False,
+) -> dict:
+    """Score a list of predicted graphs against the true graphs, pair by pair.
+
+    Parameters
+    ----------
+    predicted : sequence of networkx.Graph
+        Predicted graphs.
+    true : sequence of networkx.Graph
+        True graphs, in the same order and of the same length.
+    node_label : hashable, default="label"
+        Name of the node attribute holding the categorical node label.
+    edge_label : hashable, default="label"
+        Name of the edge attribute holding the categorical edge label.
+    time_limit : float or None, default=None
+        Seconds per edit distance given to the integer program solver; see
+        :func:`edit_distance`.
+    progress : bool, default=False
+        Show a progress bar on standard error.
+
+    Returns
+    -------
+    dict
+        ``n`` (number of pairs), ``mean_ged``, ``median_ged`` (of the best values found),
+        ``exact_match_rate``, ``right_size_rate`` (same node count), ``connected_rate``
+        (predicted graphs that are connected; an empty graph is not), ``exact_share`` (share
+        of edit distances proven exact) and ``items``: one dict per pair with ``ged``,
+        ``exact``, ``match``, ``n_pred``, ``n_true`` and ``connected``.
+
+    Raises
+    ------
+    ValueError
+        If the two sequences differ in length or are empty; see also :func:`edit_distance`.
+
+    Notes
+    -----
+    Unit costs are used. A pair is an exact match when its edit distance is proven 0, which
+    with positive costs is the same as label isomorphism.
+
+    Examples
+    --------
+    >>> import networkx as nx
+    >>> g = nx.path_graph(3)
+    >>> nx.set_node_attributes(g, "C", "label")
+    >>> h = nx.cycle_graph(3)
+    >>> nx.set_node_attributes(h, "C", "label")
+    >>> s = summarize([g, h], [g, g])
+    >>> s["n"], s["mean_ged"], s["exact_match_rate"], s["items"][1]["ged"]
+    (2, 0.5, 0.5, 1.0)
+    """
+    from tqdm.auto import tqdm
+
+    if isinstance(predicted, nx.Graph) or isinstance(true, nx.Graph):
+        raise TypeError(
+            "predicted and true must be sequences of networkx.Graph, got a single graph; "
+            "wrap it in a list"
+        )
+    predicted = list(predicted)
+    true = list(true)
+    if len(predicted) != len(true):
+        raise ValueError(
+            f"predicted and true must have the same length, got len(predicted)="
+            f"{len(predicted)} and len(true)={len(true)}"
+        )
+    if not predicted:
+        raise ValueError("predicted and true are empty; pass at least one pair of graphs")
+    items = []
+    for gp, gt in tqdm(
+        zip(predicted, true),
+        total=len(predicted),
+        disable=not progress,
+        file=sys.stderr,
+        desc="edit distance",
+    ):
+        r = edit_distance(
+            gp, gt, node_label=node_label, edge_label=edge_label, time_limit=time_limit
+        )
+        n_pred = gp.number_of_nodes()
+        items.append(
+            {
+                "ged": r.value,
+                "exact": r.exact,
+                "match": bool(r.exact and r.value == 0.0),
+                "n_pred": n_pred,
+                "n_true": gt.number_of_nodes(),
+                "connected": bool(n_pred > 0 and nx.is_connected(gp)),
+            }
+        )
+    geds = np.array([it["ged"] for it in items], dtype=float)
+    return {
+        "n": len(items),
+        "mean_ged": float(np.mean(geds)),
+        "median_ged": float(np.median(geds)),
+        "exact_match_rate": float(np.mean([it["match"] for it in items])),
+        "right_size_rate": float(np.mean([it["n_pred"] == it["n_true"] for it in items])),
+        "connected_rate": float(np.mean([it["connected"] for it in items])),
+        "exact_share": float(np.mean([it["exact"] for it in items])),
+        "items": items,
+    }
