@@ -1,0 +1,435 @@
+"""Tests for the ``gwpred`` command line (gwpred.cli).
+
+Commands run in-process through ``gwpred.cli.main`` (one check goes through
+``python -m gwpred.cli`` in a subprocess).
+
+Outside references used here:
+
+- Python's ``csv`` and ``json`` modules write the input files and read the
+  CSV/JSON outputs; networkx node-link data (``node_link_data`` /
+  ``node_link_graph``) and networkx's ``GraphMLReader`` read the graph files.
+- networkx ``is_connected`` / ``number_of_nodes`` for the right-size and
+  connectivity rates; a graph's edit distance to itself is 0 (definition of
+  a distance).
+- RDKit (``Chem.MolFromSmiles``) parses the SMILES the demo writes next to the
+  true graphs: same heavy atoms as the graph.
+- matplotlib's ``imread`` decodes the demo's PNG; the PNG signature is from
+  the PNG specification (RFC 2083).
+- QM9 heavy-atom graphs and spectra from ``gwpred.datasets.load_demo`` (built
+  from the QM9 data of the PyPI package qm9pack).
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import os
+import subprocess
+import sys
+from collections import Counter
+from pathlib import Path
+
+import networkx as nx
+import numpy as np
+import pytest
+from networkx.readwrite.graphml import GraphMLReader
+
+import gwpred
+from gwpred import BarycenterGraphPredictor
+from gwpred.cli import main
+from gwpred.datasets import load_demo
+from gwpred.io import write_graphs
+
+REPO = Path(__file__).resolve().parents[1]
+TRAIN = list(range(0, 3000, 50))  # 60 molecules spread over the demo file
+TEST = list(range(25, 3000, 600))  # 5 others
+SUMMARY_KEYS = {"n", "mean_ged", "median_ged", "exact_match_rate", "right_size_rate", "connected_rate", "exact_share"}
+ITEM_COLUMNS = ["index", "ged", "exact", "match", "n_pred", "n_true", "connected"]
+MODEL_OPTS = ["--top-k", "3", "--alpha", "0.5", "--seed", "0"]
+
+
+# --------------------------------------------------------------------------
+# helpers
+# --------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def demo():
+    X, graphs = load_demo()
+    return X[TRAIN], [graphs[i] for i in TRAIN], X[TEST], [graphs[i] for i in TEST]
+
+
+def write_csv(path: Path, X: np.ndarray) -> Path:
+    """Features with a header row and an ``id`` column (Python's csv module)."""
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(["id"] + [f"w{j}" for j in range(X.shape[1])])
+        for i, row in enumerate(X):
+            w.writerow([f"mol{i}"] + [repr(float(v)) for v in row])
+    return path
+
+
+def write_jsonl(path: Path, graphs: list[nx.Graph]) -> Path:
+    """One networkx node-link record per line (json module)."""
+    with open(path, "w", encoding="utf-8") as fh:
+        for g in graphs:
+            fh.write(json.dumps(nx.node_link_data(g, edges="edges")) + "\n")
+    return path
+
+
+def read_any(path: Path) -> list[nx.Graph]:
+    """Read graph files with networkx only."""
+    if path.suffix == ".jsonl":
+        lines = [ln for ln in path.read_text(encoding="utf-8").splitlines() if ln.strip()]
+        return [nx.node_link_graph(json.loads(ln), edges="edges") for ln in lines]
+    return list(GraphMLReader(node_type=int)(path=str(path)))
+
+
+def run(capsys, *argv: str) -> tuple[int, str, str]:
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def same_labeled_graph(g: nx.Graph, h: nx.Graph) -> bool:
+    match = lambda a, b: a.get("label") == b.get("label")  # noqa: E731
+    return nx.is_isomorphic(g, h, node_match=match, edge_match=match)
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory, demo):
+    """Training / test files and a model fitted through the CLI."""
+    Xtr, Gtr, Xte, Gte = demo
+    d = tmp_path_factory.mktemp("cli")
+    paths = {
+        "train_x": write_csv(d / "train.csv", Xtr),
+        "train_g": d / "train.graphml",
+        "train_gj": write_jsonl(d / "train.jsonl", Gtr),
+        "test_x": write_csv(d / "test.csv", Xte),
+        "truth": write_jsonl(d / "truth.jsonl", Gte),
+        "model": d / "model.npz",
+    }
+    write_graphs(paths["train_g"], Gtr)  # several graphs in one GraphML document
+    code = main(["fit", "--features", str(paths["train_x"]), "--graphs", str(paths["train_g"]),
+                 "--model", str(paths["model"]), "-q", *MODEL_OPTS])
+    assert code == 0
+    return paths
+
+
+# --------------------------------------------------------------------------
+# help and entry points
+# --------------------------------------------------------------------------
+def test_top_level_help(capsys):
+    with pytest.raises(SystemExit) as exc:
+        main(["--help"])
+    assert exc.value.code == 0
+    out = capsys.readouterr().out
+    assert out.startswith("usage: gwpred")
+    for word in ("fit", "predict", "evaluate", "demo", "--version"):
+        assert word in out
+
+
+@pytest.mark.parametrize(
+    "command, options",
+    [
+        ("fit", ["--features", "--graphs", "--model", "--kernel", "--gamma", "--ridge", "--weighting",
+                 "--top-k", "--alpha", "--decoding", "--seed", "--quiet"]),
+        ("predict", ["--model", "--features", "--out", "--quiet"]),
+        ("evaluate", ["predicted", "truth", "--time-limit", "--summary", "--items", "--quiet"]),
+        ("demo", ["--out", "--test-size", "--show", "--time-limit", "--kernel", "--top-k", "--alpha",
+                  "--seed", "--quiet"]),
+    ],
+)
+def test_subcommand_help(capsys, command, options):
+    with pytest.raises(SystemExit) as exc:
+        main([command, "--help"])
+    assert exc.value.code == 0
+    out = capsys.readouterr().out
+    assert out.startswith(f"usage: gwpred {command}")
+    for opt in options:
+        assert opt in out, opt
+
+
+def test_version(capsys):
+    with pytest.raises(SystemExit) as exc:
+        main(["--version"])
+    assert exc.value.code == 0
+    assert capsys.readouterr().out.strip() == f"gwpred {gwpred.__version__}"
+
+
+def test_no_subcommand_prints_help_and_returns_2(capsys):
+    code, out, _ = run(capsys)
+    assert code == 2
+    assert out.startswith("usage: gwpred")
+    assert "fit" in out and "demo" in out
+
+
+@pytest.mark.parametrize("argv, code", [(["--help"], 0), ([], 2)])
+def test_module_entry_point(argv, code):
+    env = dict(os.environ)
+    env["PYTHONPATH"] = os.pathsep.join([str(REPO), env.get("PYTHONPATH", "")]).rstrip(os.pathsep)
+    proc = subprocess.run(
+        [sys.executable, "-m", "gwpred.cli", *argv],
+        capture_output=True, text=True, env=env, timeout=120, check=False,
+    )
+    assert proc.returncode == code, proc.stderr
+    assert proc.stdout.startswith("usage: gwpred")
+    assert "evaluate" in proc.stdout
+
+
+# --------------------------------------------------------------------------
+# fit -> predict -> evaluate
+# --------------------------------------------------------------------------
+def test_fit_writes_a_loadable_model(capsys, tmp_path, files, demo):
+    model_path = tmp_path / "m.npz"
+    code, out, err = run(capsys, "fit", "--features", files["train_x"], "--graphs", files["train_gj"],
+                         "--model", model_path, "-q", *MODEL_OPTS)
+    assert code == 0, err
+    assert f"fitted on {len(TRAIN)} graphs" in out
+    assert f"model written to {model_path}" in out
+    from gwpred.io import load_model
+
+    model = load_model(model_path)
+    assert (model.top_k, model.alpha, model.random_state) == (3, 0.5, 0)
+    assert model.n_train_ == len(TRAIN)
+    # .jsonl and .graphml training files give the same model
+    assert model_path.read_bytes() == files["model"].read_bytes()
+
+
+@pytest.mark.parametrize("ext", [".jsonl", ".graphml"])
+def test_fit_predict_evaluate(capsys, tmp_path, files, demo, ext):
+    _, _, Xte, Gte = demo
+    pred_path = tmp_path / f"pred{ext}"
+    code, out, err = run(capsys, "predict", "--model", files["model"], "--features", files["test_x"],
+                         "--out", pred_path, "-q")
+    assert code == 0, err
+    assert pred_path.is_file()
+    assert f"{len(TEST)} predicted graphs written to {pred_path}" in out
+    assert "hypotheses" in out and "lab-safety" in out
+    pred = read_any(pred_path)
+    assert len(pred) == len(TEST)
+    # the CLI predicts what the library predicts with the same options
+    ref = BarycenterGraphPredictor(top_k=3, alpha=0.5, random_state=0).fit(demo[0], demo[1]).predict(Xte)
+    assert all(same_labeled_graph(p, r) for p, r in zip(pred, ref))
+
+    summary_path, items_path = tmp_path / "summary.json", tmp_path / "items.csv"
+    code, out, err = run(capsys, "evaluate", pred_path, files["truth"], "--summary", summary_path,
+                         "--items", items_path, "--time-limit", "5", "-q")
+    assert code == 0, err
+    assert "mean GED" in out and "GED solved exactly for" in out
+    summary = json.loads(summary_path.read_text())
+    assert set(summary) == SUMMARY_KEYS
+    assert summary["n"] == len(TEST)
+    with open(items_path, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert list(rows[0]) == ITEM_COLUMNS
+    assert [int(r["index"]) for r in rows] == list(range(len(TEST)))
+    geds = [float(r["ged"]) for r in rows]
+    assert summary["mean_ged"] == pytest.approx(np.mean(geds))
+    assert summary["median_ged"] == pytest.approx(np.median(geds))
+    assert all(g >= 0 for g in geds)
+    # sizes and connectivity recomputed with networkx
+    assert [int(r["n_pred"]) for r in rows] == [g.number_of_nodes() for g in pred]
+    assert [int(r["n_true"]) for r in rows] == [g.number_of_nodes() for g in Gte]
+    assert summary["right_size_rate"] == pytest.approx(
+        np.mean([p.number_of_nodes() == t.number_of_nodes() for p, t in zip(pred, Gte)])
+    )
+    assert summary["connected_rate"] == pytest.approx(np.mean([nx.is_connected(p) for p in pred]))
+    # the table row shows the summary
+    assert f"{summary['mean_ged']:.2f}" in out
+
+
+def test_precomputed_kernel_files(capsys, tmp_path, demo):
+    # kernel matrices from scikit-learn's rbf_kernel, passed as feature files
+    from sklearn.metrics.pairwise import rbf_kernel
+
+    Xtr, Gtr, Xte, _ = demo
+    k_train = write_csv(tmp_path / "k_train.csv", rbf_kernel(Xtr, Xtr, gamma=1.0))
+    k_test = write_csv(tmp_path / "k_test.csv", rbf_kernel(Xte, Xtr, gamma=1.0))
+    graphs = write_jsonl(tmp_path / "train.jsonl", Gtr)
+    model, pred_path = tmp_path / "k.npz", tmp_path / "pred.jsonl"
+    code, _, err = run(capsys, "fit", "--features", k_train, "--graphs", graphs, "--model", model,
+                       "--kernel", "precomputed", "-q", *MODEL_OPTS)
+    assert code == 0, err
+    code, _, err = run(capsys, "predict", "--model", model, "--features", k_test, "--out", pred_path, "-q")
+    assert code == 0, err
+    ref = BarycenterGraphPredictor(gamma=1.0, top_k=3, alpha=0.5).fit(Xtr, Gtr).predict(Xte)
+    assert all(same_labeled_graph(p, r) for p, r in zip(read_any(pred_path), ref))
+
+
+def test_evaluate_truth_against_itself(capsys, tmp_path, files):
+    summary_path = tmp_path / "self.json"
+    code, _, err = run(capsys, "evaluate", files["truth"], files["truth"], "--summary", summary_path, "-q")
+    assert code == 0, err
+    s = json.loads(summary_path.read_text())
+    # a distance from a graph to itself is 0; every pair is an exact match
+    assert (s["mean_ged"], s["exact_match_rate"], s["right_size_rate"], s["exact_share"]) == (0.0, 1.0, 1.0, 1.0)
+
+
+# --------------------------------------------------------------------------
+# bad input: exit code 2 and a message on stderr
+# --------------------------------------------------------------------------
+def expect_usage_error(capsys, argv: list, *fragments: str) -> str:
+    code, out, err = run(capsys, *argv)
+    assert code == 2
+    assert err.startswith(f"gwpred {argv[0]}: error: "), err
+    for fragment in fragments:
+        assert fragment in err, (fragment, err)
+    assert "Traceback" not in err
+    return err
+
+
+def test_missing_features_file(capsys, tmp_path, files):
+    missing = tmp_path / "missing.csv"
+    expect_usage_error(capsys, ["fit", "--features", missing, "--graphs", files["train_g"],
+                                "--model", tmp_path / "m.npz", "-q"],
+                       "feature file not found", str(missing))
+    assert not (tmp_path / "m.npz").exists()
+
+
+def test_missing_graphs_file(capsys, tmp_path, files):
+    missing = tmp_path / "missing.jsonl"
+    expect_usage_error(capsys, ["fit", "--features", files["train_x"], "--graphs", missing,
+                                "--model", tmp_path / "m.npz", "-q"],
+                       "graph file not found", str(missing))
+
+
+def test_missing_model_file(capsys, tmp_path, files):
+    missing = tmp_path / "missing.npz"
+    expect_usage_error(capsys, ["predict", "--model", missing, "--features", files["test_x"],
+                                "--out", tmp_path / "p.jsonl", "-q"],
+                       "model archive file not found", str(missing))
+    assert not (tmp_path / "p.jsonl").exists()
+
+
+def test_unsupported_graph_extension(capsys, tmp_path, files):
+    expect_usage_error(capsys, ["predict", "--model", files["model"], "--features", files["test_x"],
+                                "--out", tmp_path / "p.txt", "-q"],
+                       "unsupported graph file extension '.txt'", ".jsonl, .graphml")
+
+
+def test_evaluate_mismatched_counts(capsys, tmp_path, demo, files):
+    short = write_jsonl(tmp_path / "short.jsonl", demo[3][:4])
+    expect_usage_error(capsys, ["evaluate", short, files["truth"], "-q"],
+                       f"{short} holds 4 graphs but {files['truth']} holds {len(TEST)}",
+                       "one prediction per true graph")
+
+
+@pytest.mark.parametrize("command", ["fit", "predict"])
+def test_nan_in_features(capsys, tmp_path, demo, files, command):
+    X = (demo[0] if command == "fit" else demo[2]).copy()
+    X[1, 0] = np.nan
+    bad = write_csv(tmp_path / "nan.csv", X)
+    if command == "fit":
+        argv = ["fit", "--features", bad, "--graphs", files["train_g"], "--model", tmp_path / "m.npz", "-q"]
+    else:
+        argv = ["predict", "--model", files["model"], "--features", bad, "--out", tmp_path / "p.jsonl", "-q"]
+    # the csv module wrote 'nan' on line 3 (header is line 1), column 2 (after the id)
+    expect_usage_error(capsys, argv, "contains 1 non-finite value(s) (NaN or inf)", "line 3, column 2",
+                       "impute or drop them")
+
+
+@pytest.mark.parametrize("damage", ["truncated", "flipped"])
+def test_corrupted_model_file(capsys, tmp_path, files, damage):
+    raw = bytearray(files["model"].read_bytes())
+    if damage == "truncated":
+        raw = raw[: len(raw) // 2]
+        fragment = "is not a valid .npz (zip) file; the file may be truncated or corrupted"
+    else:
+        raw[len(raw) // 3] ^= 0xFF  # inside the compressed training inputs
+        fragment = "the file is corrupted"
+    bad = tmp_path / "bad.npz"
+    bad.write_bytes(bytes(raw))
+    expect_usage_error(capsys, ["predict", "--model", bad, "--features", files["test_x"],
+                                "--out", tmp_path / "p.jsonl", "-q"], fragment)
+
+
+def test_fit_features_and_graphs_differ_in_length(capsys, tmp_path, files, demo):
+    short = write_jsonl(tmp_path / "short.jsonl", demo[1][:-1])
+    expect_usage_error(capsys, ["fit", "--features", files["train_x"], "--graphs", short,
+                                "--model", tmp_path / "m.npz", "-q"],
+                       f"X has {len(TRAIN)} rows but {len(TRAIN) - 1} graphs were given")
+
+
+def test_predict_with_wrong_number_of_columns(capsys, tmp_path, files, demo):
+    narrow = write_csv(tmp_path / "narrow.csv", demo[2][:, :2])
+    expect_usage_error(capsys, ["predict", "--model", files["model"], "--features", narrow,
+                                "--out", tmp_path / "p.jsonl", "-q"],
+                       f"X has 2 columns but the model was fitted with {demo[2].shape[1]}")
+
+
+def test_invalid_model_option_value(capsys, tmp_path, files):
+    expect_usage_error(capsys, ["fit", "--features", files["train_x"], "--graphs", files["train_g"],
+                                "--model", tmp_path / "m.npz", "--alpha", "2", "-q"],
+                       "alpha must be a number in [0, 1]; got 2.0")
+
+
+@pytest.mark.parametrize(
+    "argv, fragment",
+    [
+        (["fit", "--features", "x.csv", "--graphs", "g.jsonl", "--model", "m.npz", "--kernel", "nope"],
+         "invalid choice: 'nope'"),
+        (["fit", "--features", "x.csv", "--graphs", "g.jsonl"], "the following arguments are required: --model"),
+        (["fit", "--features", "x.csv", "--graphs", "g.jsonl", "--model", "m.npz", "--top-k", "many"],
+         "argument --top-k: invalid int value: 'many'"),
+        (["evaluate", "only_one.jsonl"], "the following arguments are required: truth"),
+    ],
+)
+def test_argparse_errors_exit_2(capsys, argv, fragment):
+    with pytest.raises(SystemExit) as exc:
+        main(argv)
+    assert exc.value.code == 2
+    assert fragment in capsys.readouterr().err
+
+
+def test_demo_rejects_bad_test_size(capsys, tmp_path):
+    expect_usage_error(capsys, ["demo", "--test-size", "0", "--out", tmp_path / "d", "-q"],
+                       "--test-size must be between 1 and 2999; got 0")
+
+
+def test_demo_rejects_bad_show(capsys, tmp_path):
+    expect_usage_error(capsys, ["demo", "--test-size", "2", "--show", "0", "--top-k", "1",
+                                "--out", tmp_path / "d", "-q"], "--show")
+
+
+# --------------------------------------------------------------------------
+# demo
+# --------------------------------------------------------------------------
+def test_demo_small_run(capsys, tmp_path):
+    out_dir = tmp_path / "demo"
+    code, out, err = run(capsys, "demo", "--test-size", "10", "--show", "2", "--out", out_dir, "-q")
+    assert code == 0, err
+    # table rows and the caution line
+    lines = out.splitlines()
+    ours = [ln for ln in lines if ln.startswith("gwpred (FGW barycenter)")]
+    base = [ln for ln in lines if ln.startswith("1-NN retrieval")]
+    assert len(ours) == 1 and len(base) == 1
+    assert lines[-1] == gwpred.cli.CAUTION
+    assert "hypotheses" in lines[-1] and "lab-safety" in lines[-1]
+    assert "2990 training and 10 held-out" in out
+
+    pred = read_any(out_dir / "predicted.jsonl")
+    truth = read_any(out_dir / "truth.jsonl")
+    assert len(pred) == len(truth) == 10
+    assert all({lab for _, lab in g.nodes(data="label")} <= {"C", "N", "O", "F"} for g in pred)
+
+    summary = json.loads((out_dir / "summary.json").read_text())
+    assert (summary["train_size"], summary["test_size"]) == (2990, 10)
+    assert summary["gwpred"]["n"] == summary["nearest_neighbour"]["n"] == 10
+    assert SUMMARY_KEYS <= set(summary["gwpred"])
+    assert f"{summary['gwpred']['mean_ged']:.2f}" in ours[0]
+    assert f"{summary['nearest_neighbour']['mean_ged']:.2f}" in base[0]
+
+    png = out_dir / "predictions.png"
+    data = png.read_bytes()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (RFC 2083, from memory)
+    import matplotlib.image
+
+    img = matplotlib.image.imread(png)
+    assert img.ndim == 3 and img.shape[0] > 100 and img.shape[1] > 100
+    assert img.std() > 0  # not a blank image
+
+    # the SMILES stored with each true graph describe the same heavy atoms (RDKit)
+    Chem = pytest.importorskip("rdkit.Chem")
+    for g in truth:
+        mol = Chem.MolFromSmiles(g.graph["smiles"])
+        assert mol is not None
+        assert Counter(a.GetSymbol() for a in mol.GetAtoms()) == Counter(lab for _, lab in g.nodes(data="label"))
