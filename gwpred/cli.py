@@ -34,6 +34,9 @@ def _model_params(args: argparse.Namespace) -> dict[str, Any]:
         "top_k": args.top_k,
         "alpha": args.alpha,
         "decoding": args.decoding,
+        "consensus": args.consensus,
+        "node_label": args.node_label,
+        "edge_label": None if args.edge_label.lower() == "none" else args.edge_label,
         "random_state": args.seed,
         "verbose": not args.quiet,
     }
@@ -54,6 +57,11 @@ def _add_model_options(p: argparse.ArgumentParser) -> None:
                    help="FGW trade-off: 0 labels only, 1 structure only (default: 0.9)")
     g.add_argument("--decoding", default="anchored", choices=["anchored", "free"],
                    help="decode as edits of the start graph (anchored) or from the barycenter alone (free)")
+    g.add_argument("--consensus", type=float, default=0.8,
+                   help="agreement needed to edit the start graph's edges, in [0.5, 1] (default: 0.8)")
+    g.add_argument("--node-label", default="label", help="node attribute holding labels (default: label)")
+    g.add_argument("--edge-label", default="label",
+                   help="edge attribute holding labels; 'none' ignores edge labels (default: label)")
     g.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
 
 
@@ -108,7 +116,9 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
             f"{args.predicted} holds {len(pred)} graphs but {args.truth} holds {len(true)}; "
             "they must be in the same order, one prediction per true graph."
         )
-    summary = summarize(pred, true, time_limit=args.time_limit, progress=not args.quiet)
+    edge_label = None if args.edge_label.lower() == "none" else args.edge_label
+    summary = summarize(pred, true, node_label=args.node_label, edge_label=edge_label,
+                        time_limit=args.time_limit, progress=not args.quiet)
     print(_table([(Path(args.predicted).name, summary)]))
     print(f"GED solved exactly for {100 * summary['exact_share']:.1f}% of pairs")
     if args.summary:
@@ -222,6 +232,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="seconds per GED before settling for bounds (default: 10)")
     p.add_argument("--summary", help="write the summary as JSON here")
     p.add_argument("--items", help="write per-pair scores as CSV here")
+    p.add_argument("--node-label", default="label", help="node attribute holding labels (default: label)")
+    p.add_argument("--edge-label", default="label",
+                   help="edge attribute holding labels; 'none' ignores edge labels (default: label)")
     common(p)
     p.set_defaults(func=cmd_evaluate)
 
