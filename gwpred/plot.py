@@ -87,7 +87,7 @@ def comparison_grid(
     node_label: str = "label",
     edge_label: str = "label",
 ) -> None:
-    """Write a PNG with one row per item: predicted graph beside the true graph.
+    """Write a PNG grid of predicted graphs, each beside its true graph (two pairs a row).
 
     Parameters
     ----------
@@ -105,20 +105,25 @@ def comparison_grid(
     matplotlib.use("Agg", force=False)
     import matplotlib.pyplot as plt
 
-    rows = len(predicted)
+    per_row = 2 if len(predicted) > 1 else 1  # two (predicted, true) pairs side by side
+    rows = -(-len(predicted) // per_row)
     labels = [d.get(node_label) for g in list(predicted) + list(true) for _, d in g.nodes(data=True)]
     colours = _label_colours(labels)
-    fig, axes = plt.subplots(rows, 2, figsize=(5.2, 2.4 * rows + 0.6), squeeze=False)
-    for r, (p, t) in enumerate(zip(predicted, true)):
-        head = f"predicted ({titles[r]})" if titles else "predicted"
-        draw_graph(p, axes[r, 0], node_label=node_label, edge_label=edge_label, colours=colours, title=head)
-        draw_graph(t, axes[r, 1], node_label=node_label, edge_label=edge_label, colours=colours, title="true")
+    height = 2.4 * rows + 0.6
+    fig, axes = plt.subplots(rows, 2 * per_row, figsize=(5.2 * per_row, height), squeeze=False)
+    for ax in axes.ravel():
+        ax.set_axis_off()
+    for k, (p, t) in enumerate(zip(predicted, true)):
+        r, c = divmod(k, per_row)
+        head = f"predicted ({titles[k]})" if titles else "predicted"
+        draw_graph(p, axes[r, 2 * c], node_label=node_label, edge_label=edge_label, colours=colours, title=head)
+        draw_graph(t, axes[r, 2 * c + 1], node_label=node_label, edge_label=edge_label, colours=colours, title="true")
     handles = [plt.Line2D([], [], marker="o", linestyle="", markersize=9, markerfacecolor=c,
                           markeredgecolor="black", label=str(lab)) for lab, c in colours.items()]
     fig.legend(handles=handles, loc="upper center", ncol=len(handles), frameon=False, fontsize=8,
                title="node label (edge width = edge label 1/2/3)", title_fontsize=8)
     if caption:
         fig.text(0.5, 0.005, caption, ha="center", va="bottom", fontsize=6.5, wrap=True)
-    fig.tight_layout(rect=(0, 0.03 if caption else 0, 1, 1 - 0.5 / (2.4 * rows + 0.6)))
+    fig.tight_layout(rect=(0, 0.5 / height if caption else 0, 1, 1 - 0.5 / height))
     fig.savefig(path, dpi=110)
     plt.close(fig)
