@@ -66,11 +66,15 @@ def main() -> None:
           f"--alpha {args.alpha} --top-k {args.top_k}")
     print(f"# {len(train)} training / {len(test)} test molecules; barycenters: "
           f"{1000 * t_bary / len(test):.1f} ms per input")
-    print(f"{'prediction':<28}{'mean GED':>9}{'exact match':>13}{'right size':>12}{'connected':>11}")
+    print(f"{'prediction':<28}{'mean GED':>9}{'exact match':>13}{'right size':>12}{'connected':>11}"
+          f"{'edges - true':>14}{'|edges - true|':>16}")
+    m_true = np.array([g.number_of_edges() for g in truth])
     for name, pred in rows:
         s = summarize(pred, truth, time_limit=args.time_limit)
+        dm = np.array([g.number_of_edges() for g in pred]) - m_true
         print(f"{name:<28}{s['mean_ged']:>9.3f}{100 * s['exact_match_rate']:>12.1f}%"
-              f"{100 * s['right_size_rate']:>11.1f}%{100 * s['connected_rate']:>10.1f}%", flush=True)
+              f"{100 * s['right_size_rate']:>11.1f}%{100 * s['connected_rate']:>10.1f}%"
+              f"{dm.mean():>+14.2f}{np.abs(dm).mean():>16.2f}", flush=True)
 
 
 if __name__ == "__main__":
