@@ -352,6 +352,9 @@ class BarycenterGraphPredictor(BaseEstimator):
             alpha=self.alpha,
             init_plans="features",
             init_from=int(pos) if self.sizes_[anchor] == n else None,
+            # anchored decoding needs the barycenter's nodes to stay the anchor's
+            # nodes: warm starts only (benchmarks/bench_decoding.py)
+            restarts=0 if self.decoding == "anchored" else 2,
             max_outer=self.max_outer,
             tol_outer=self.tol,
             max_inner=self.max_inner,

@@ -60,20 +60,13 @@ except Exception:  # pragma: no cover - depends on the POT version
 
 def _emd(a: Array, b: Array, M: Array, max_iter: int = 100_000) -> Array:
     """Exact optimal transport plan between histograms ``a`` and ``b``."""
-    M = np.ascontiguousarray(M, dtype=np.float64)
-    b = b * (a.sum() / b.sum())  # exact mass balance, as ot.emd does
+    M = np.ascontiguousarray(M)
+    b = b * a.sum() / b.sum()  # exact mass balance, rounded as ot.emd does
     if _emd_c is not None:
         return _emd_c(a, b, M, max_iter, 1, None, None)[0]
     import ot  # pragma: no cover
 
     return ot.emd(a, b, M, numItermax=max_iter)  # pragma: no cover
-
-
-def _quad_step(a: float, b: float) -> float:
-    """Minimiser of ``a t^2 + b t`` on ``[0, 1]`` (exact line search)."""
-    if a > 0:
-        return min(1.0, max(0.0, -b / (2.0 * a)))
-    return 1.0 if a + b < 0 else 0.0
 
 
 def feature_costs(F1: ArrayLike, F2: ArrayLike) -> Array:
@@ -96,6 +89,10 @@ def feature_costs(F1: ArrayLike, F2: ArrayLike) -> Array:
     """
     F1 = np.asarray(F1, dtype=np.float64)
     F2 = np.asarray(F2, dtype=np.float64)
+    if F1.ndim < 2 or F2.ndim < 2 or F1.shape[-1] != F2.shape[-1]:
+        raise ValueError(
+            f"F1 and F2 must be (..., n, d) arrays with the same d; got shapes {F1.shape} and {F2.shape}."
+        )
     n1 = (F1 * F1).sum(-1)[..., :, None]
     n2 = (F2 * F2).sum(-1)[..., None, :]
     M = n1 + n2 - 2.0 * F1 @ np.swapaxes(F2, -1, -2)
@@ -124,10 +121,33 @@ class FGWResult:
     converged: bool
 
 
+def _check_plans(T: Array, h: Array, qs: Array, name: str) -> None:
+    """Refuse starting plans that are not couplings of ``h`` and ``qs``."""
+    if not np.all(np.isfinite(T)) or np.any(T < -1e-12):
+        raise ValueError(f"{name} must be finite and non-negative.")
+    if not (np.allclose(T.sum(2), h[None], atol=1e-8) and np.allclose(T.sum(1), qs, atol=1e-8)):
+        raise ValueError(
+            f"{name} must be a coupling: rows must sum to the first graph's masses and columns to "
+            "the second's (for example np.outer(p, q))."
+        )
+
+
+def _check_masses(masses: ArrayLike, size: int, name: str) -> Array:
+    """Node masses: one per node, non-negative, summing to one."""
+    h = np.asarray(masses, dtype=np.float64).ravel()
+    if h.shape != (size,) or not np.all(np.isfinite(h)) or np.any(h < 0) or not np.isclose(h.sum(), 1.0):
+        raise ValueError(
+            f"{name} must hold {size} non-negative masses summing to 1; got {np.round(h, 4).tolist()}."
+        )
+    return h
+
+
 def _check_pair(M, C1, C2, p, q) -> tuple[Array, Array, Array, Array, Array]:
     M = np.asarray(M, dtype=np.float64)
     C1 = np.asarray(C1, dtype=np.float64)
     C2 = np.asarray(C2, dtype=np.float64)
+    if C1.ndim != 2 or C2.ndim != 2:
+        raise ValueError(f"C1 and C2 must be square matrices; got shapes {C1.shape} and {C2.shape}.")
     n, m = C1.shape[0], C2.shape[0]
     p = np.full(n, 1.0 / n) if p is None else np.asarray(p, dtype=np.float64)
     q = np.full(m, 1.0 / m) if q is None else np.asarray(q, dtype=np.float64)
@@ -225,6 +245,7 @@ def fgw_distance(
     G = np.outer(p, q) if init_plan is None else np.array(init_plan, dtype=np.float64)
     if G.shape != M.shape:
         raise ValueError(f"init_plan must have shape {M.shape}; got {G.shape}.")
+    _check_plans(G[None], p, q[None], "init_plan")
     plans, values, iters, conv = _cg_batch(
         M[None], C1, C2[None], p, q[None], G[None], alpha, max_iter, tol_rel, tol_abs
     )
@@ -260,38 +281,50 @@ def _cg_batch(
     if sizes is None:
         sizes = np.full(S, m, dtype=np.int64)
     G = G.copy()
-    # marginal term of the square loss (POT's init_matrix), fixed along the iterations
-    constC = ((C1 * C1) @ p)[None, :, None] + np.einsum("skl,sl->sk", C2 * C2, q)[:, None, :]
+    # marginal term of the square loss, computed as POT's init_matrix does so
+    # that the linear programs see the same numbers and break ties alike
+    constC = ((C1 * C1) @ p)[None, :, None] + np.matmul(q[:, None, :], np.swapaxes(C2 * C2, 1, 2))
     linM = (1.0 - alpha) * M
     twoC2 = 2.0 * C2
-    # the arithmetic follows POT's cg so that LP ties are broken alike
     CGC = C1 @ G @ twoC2
-    cost = np.einsum("snm,snm->s", linM, G) + alpha * np.einsum("snm,snm->s", constC - CGC, G)
+    cost = (linM * G).sum((1, 2)) + alpha * ((constC - CGC) * G).sum((1, 2))
     n_iter = np.zeros(S, dtype=np.int64)
     done = np.zeros(S, dtype=bool)
     active = np.arange(S)
+    target = np.zeros((S, n, m))
+    every = True  # all problems still active: plain views instead of fancy-index copies
     while active.size:
-        # gradient (1-a) M + 2a (constC - 2 C1 G C2)
-        grad = linM[active] + alpha * (2.0 * (constC[active] - CGC[active]))
+        sel = slice(None) if every else active
+        # gradient (1-a) M + 2a (constC - 2 C1 G C2); one exact LP per problem
+        grad = linM[sel] + alpha * (2.0 * (constC[sel] - CGC[sel]))
         for j, s in enumerate(active):
             k = sizes[s]
-            target = np.zeros((n, m))
-            target[:, :k] = _emd(p, q[s, :k], grad[j, :, :k])
-            dG = target - G[s]
-            dC = C1 @ dG @ twoC2[s]
-            # exact line search on a t^2 + b t (Vayer et al. 2019, Alg. 2);
-            # <constC, dG> vanishes because dG has zero marginals
-            a = -alpha * float(np.sum(dC * dG))
-            b = float(np.sum(linM[s] * dG)) - 2.0 * alpha * float(np.sum(dC * G[s]))
-            t = _quad_step(a, b)
-            new_cost = cost[s] + a * t * t + b * t
-            G[s] = G[s] + t * dG
-            n_iter[s] += 1
-            delta = abs(new_cost - cost[s])
-            cost[s] = new_cost
-            if delta < tol_abs or (new_cost != 0.0 and delta / abs(new_cost) < tol_rel):
-                done[s] = True
-        active = active[(~done[active]) & (n_iter[active] < max_iter)]
+            target[s, :, :k] = _emd(p, q[s, :k], grad[j, :, :k])
+        Ga = G[sel]
+        dG = target[sel] - Ga
+        dC = C1 @ dG @ twoC2[sel]
+        # exact line search on a t^2 + b t for every problem at once (Vayer et al.
+        # 2019, Alg. 2); <constC, dG> vanishes because dG has zero marginals
+        qa = -alpha * (dC * dG).sum((1, 2))
+        qb = (linM[sel] * dG).sum((1, 2)) - 2.0 * alpha * (dC * Ga).sum((1, 2))
+        t = np.where(qa + qb < 0, 1.0, 0.0)
+        convex = qa > 0
+        if convex.any():
+            t[convex] = np.clip(-qb[convex] / (2.0 * qa[convex]), 0.0, 1.0)
+        step = qa * t * t + qb * t
+        new_cost = cost[sel] + step
+        G[sel] = Ga + t[:, None, None] * dG
+        n_iter[sel] += 1
+        cost[sel] = new_cost
+        delta = np.abs(step)
+        scale = np.abs(new_cost)
+        done[sel] = (delta < tol_abs) | ((scale > 0) & (delta < tol_rel * scale))
+        keep = (~done[active]) & (n_iter[active] < max_iter)
+        if keep.all():
+            CGC[sel] = C1 @ G[sel] @ twoC2[sel]
+            continue
+        every = False
+        active = active[keep]
         if active.size:
             CGC[active] = C1 @ G[active] @ twoC2[active]
     return G, cost, n_iter, done
@@ -357,8 +390,19 @@ def pad_graphs(
             f"need one feature array per structure and at least one graph; got "
             f"{len(structures)} structures and {len(features)} feature arrays."
         )
-    sizes = np.array([np.shape(c)[0] for c in structures], dtype=np.int64)
-    d = np.shape(features[0])[1]
+    shapes = [np.shape(c) for c in structures]
+    if any(len(sh) != 2 or sh[0] != sh[1] or sh[0] == 0 for sh in shapes):
+        raise ValueError(f"every structure must be a non-empty square matrix; got shapes {shapes}.")
+    sizes = np.array([sh[0] for sh in shapes], dtype=np.int64)
+    d = np.shape(features[0])[1] if np.ndim(features[0]) == 2 else -1
+    bad = [s for s, f in enumerate(features) if np.shape(f) != (sizes[s], d)]
+    if d < 0 or bad:
+        raise ValueError(
+            f"features[s] must have shape (len(structures[s]), d) with one d for all; "
+            f"graph {bad[0] if bad else 0} has {np.shape(features[bad[0] if bad else 0])}."
+        )
+    if masses is not None and len(masses) != len(structures):
+        raise ValueError(f"masses needs one array per graph; got {len(masses)} for {len(structures)} graphs.")
     S, m = len(structures), int(sizes.max())
     C = np.zeros((S, m, m))
     F = np.zeros((S, m, d))
@@ -367,7 +411,7 @@ def pad_graphs(
         k = sizes[s]
         C[s, :k, :k] = c
         F[s, :k] = f
-        q[s, :k] = 1.0 / k if masses is None else masses[s]
+        q[s, :k] = 1.0 / k if masses is None else _check_masses(masses[s], k, f"masses[{s}]")
     return C, F, q, sizes
 
 
@@ -385,10 +429,11 @@ def fgw_barycenter(
     max_outer: int = 10,
     tol_outer: float = 1e-7,
     max_inner: int = 200,
-    tol_inner: float = 1e-7,
+    tol_inner: float = 1e-5,
     fixed_features: bool = False,
     fixed_structure: bool = False,
     init_from: int | None = None,
+    restarts: int = 2,
 ) -> BarycenterResult:
     r"""FGW barycenter of weighted graphs with fixed size and node masses.
 
@@ -439,8 +484,8 @@ def fgw_barycenter(
         Stop when the objective decreases by less than this (relative).
     max_inner : int, default=200
         Conditional-gradient iteration limit per plan.
-    tol_inner : float, default=1e-7
-        Relative tolerance of the inner solver.
+    tol_inner : float, default=1e-5
+        Relative tolerance of the inner solver (POT's barycenter uses the same).
     fixed_features, fixed_structure : bool, default=False
         Keep the features or the structure at their initial values.
     init_from : int or None, default=None
@@ -448,6 +493,12 @@ def fgw_barycenter(
         copy (same node order).  Its first plan is then the diagonal coupling,
         which is optimal for it; other starts can settle on a permuted copy,
         and the barycenter's nodes would no longer be that graph's nodes.
+    restarts : int, default=2
+        In this many outer iterations after the first, solve each plan both
+        from the previous plan and from the product coupling, and keep the
+        better.  Twice the work in those iterations; it escapes local minima
+        (lower objective), while warm starts alone keep the barycenter close
+        to where it started.
 
     Returns
     -------
@@ -460,10 +511,12 @@ def fgw_barycenter(
 
     Notes
     -----
-    All inputs are solved together: zero-mass padding lets the gradient
-    computations run as batched matrix products, and plans are warm-started
-    from one outer iteration to the next, so later iterations need only one
-    or two linear programs each.
+    All inputs are solved together: zero-mass padding lets the gradient and
+    line-search computations run as batched array operations, leaving one
+    exact linear program per input and step.  Plans are warm-started from one
+    outer iteration to the next, so that iterations without restarts need
+    few steps; the first (cold) iteration and the restarts take most of the
+    time.
 
     Examples
     --------
@@ -495,7 +548,7 @@ def fgw_barycenter(
             f"init_structure must be (n, n) and init_features (n, {Fs.shape[2]}); got "
             f"{C.shape} and {F.shape}."
         )
-    h = np.full(n, 1.0 / n) if bary_masses is None else np.asarray(bary_masses, float)
+    h = np.full(n, 1.0 / n) if bary_masses is None else _check_masses(bary_masses, n, "bary_masses")
     for name, arr in (("structures", Cs), ("features", Fs), ("init_structure", C), ("init_features", F)):
         if not np.all(np.isfinite(arr)):
             raise ValueError(f"{name} contains NaN or infinite values; clean the input first.")
@@ -510,14 +563,17 @@ def fgw_barycenter(
         T[init_from] = 0.0
         T[init_from, :, :n] = np.diag(h)
     hh = np.outer(h, h)
+    product = h[None, :, None] * qs[:, None, :]
     history: list[float] = []
     converged = False
     objective = np.inf
     it = 0
     for it in range(1, max_outer + 1):
-        T, values, _, _ = _cg_batch(
-            M, C, Cs, h, qs, T, alpha, max_inner, tol_inner, 0.0, sizes
-        )
+        T, values, _, _ = _cg_batch(M, C, Cs, h, qs, T, alpha, max_inner, tol_inner, 0.0, sizes)
+        if 1 < it <= 1 + int(restarts):  # also solve from the product plan; keep the better
+            T2, values2, _, _ = _cg_batch(M, C, Cs, h, qs, product, alpha, max_inner, tol_inner, 0.0, sizes)
+            better = values2 < values
+            T[better], values[better] = T2[better], values2[better]
         objective_prev, objective = objective, float(w @ values)
         history.append(objective)
         if not fixed_features:
@@ -550,6 +606,7 @@ def _initial_plans(
     T = np.array(init_plans, dtype=np.float64)
     if T.shape != (S, n, m):
         raise ValueError(f"init_plans must have shape {(S, n, m)}; got {T.shape}.")
+    _check_plans(T, h, qs, "init_plans")
     return T
 
 
