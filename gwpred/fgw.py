@@ -587,10 +587,10 @@ def fgw_barycenter(
         objective_prev, objective = objective, float(w @ values)
         history.append(objective)
         if not fixed_features:
-            F = np.einsum("s,snm,smd->nd", w, T, Fs) / h[:, None]
+            F = np.tensordot(w, T @ Fs, axes=1) / h[:, None]
             M = feature_costs(F, Fs)
         if not fixed_structure:
-            C = np.einsum("s,sij,sjk,slk->il", w, T, Cs, T, optimize=True) / hh
+            C = np.tensordot(w, T @ Cs @ np.swapaxes(T, 1, 2), axes=1) / hh
         if objective_prev - objective <= tol_outer * max(abs(objective), 1e-12):
             converged = True
             break
@@ -703,5 +703,6 @@ def transport_average(plans: ArrayLike, tensors: ArrayLike, weights: ArrayLike, 
     w = np.asarray(weights, dtype=np.float64)
     h = np.asarray(bary_masses, dtype=np.float64)
     w = w / w.sum()
-    out = np.einsum("s,sij,sjkc,slk->ilc", w, T, E, T, optimize=True)
+    per_channel = T[:, None] @ np.moveaxis(E, 3, 1) @ np.swapaxes(T, 1, 2)[:, None]  # (S, L, n, n)
+    out = np.moveaxis(np.tensordot(w, per_channel, axes=1), 0, 2)
     return out / np.outer(h, h)[:, :, None]
