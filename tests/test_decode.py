@@ -21,7 +21,7 @@ import pytest
 
 from gwpred.codec import LabelSpace
 from gwpred.datasets import load_demo
-from gwpred.decode import DecodedGraph, decode_barycenter, edge_budget, weighted_median
+from gwpred.decode import DecodedGraph, decode_anchored, decode_barycenter, edge_budget, weighted_median
 
 
 # --------------------------------------------------------------------------
@@ -441,3 +441,58 @@ def test_weighted_median_length_mismatch() -> None:
 def test_edge_budget_zero_weights() -> None:
     with pytest.raises(ValueError, match=r"weights"):
         edge_budget(3, [2], [1], [0.0])
+
+
+# --------------------------------------------------------------------------
+# anchored decoding: edits of the start graph
+# --------------------------------------------------------------------------
+def test_anchored_returns_each_qm9_graph_from_its_own_structure(qm9_graphs):
+    """Known answer: a barycenter equal to its anchor decodes to the anchor.
+
+    Reference: the QM9 heavy-atom graphs (networkx isomorphism on labels).
+    """
+    for g in qm9_graphs[:300]:
+        n = g.number_of_nodes()
+        A = nx.to_numpy_array(g, nodelist=range(n), weight=None)
+        E = np.zeros((n, n), dtype=int)
+        for u, v, d in g.edges(data=True):
+            E[u, v] = E[v, u] = d["label"] - 1
+        scores = np.eye(4)[[["C", "N", "O", "F"].index(g.nodes[v]["label"]) for v in range(n)]]
+        out = decode_anchored(A, scores, np.zeros((n, n, 3)), A, E)
+        assert edge_set(out) == {(min(u, v), max(u, v)) for u, v in g.edges}
+        assert [int(c) for c in out.edge_classes] == [E[a, b] for a, b in out.edges]
+
+
+def test_anchored_edits_only_where_the_weighted_graphs_agree():
+    A = adjacency(4, [(0, 1), (1, 2), (2, 3)])  # a path
+    C = A.copy()
+    C[1, 2] = C[2, 1] = 0.1  # the weighted graphs disagree with the anchor's middle edge
+    C[0, 3] = C[3, 0] = 0.9  # and agree on closing a ring
+    C[0, 2] = C[2, 0] = 0.7  # not enough agreement at consensus 0.8
+    E = np.zeros((4, 4, 2))
+    E[0, 3, 1] = E[3, 0, 1] = 0.9  # the added edge takes its best-scoring label
+    out = decode_anchored(C, np.eye(4), E, A, np.zeros((4, 4)), consensus=0.8)
+    assert edge_set(out) == {(0, 1), (2, 3), (0, 3)}
+    assert dict(zip(map(tuple, out.edges.tolist()), out.edge_classes.tolist()))[(0, 3)] == 1
+    # consensus 1 keeps the anchor's edges as they are
+    assert edge_set(decode_anchored(C, np.eye(4), E, A, np.zeros((4, 4)), consensus=1.0)) == edge_set(
+        decode_anchored(A, np.eye(4), E, A, np.zeros((4, 4)))
+    )
+
+
+def test_anchored_keeps_the_graph_connected_and_respects_degree_caps():
+    A = adjacency(3, [(0, 1), (1, 2)])
+    C = np.zeros((3, 3))  # every anchor edge is contested
+    out = decode_anchored(C, np.eye(3), np.zeros((3, 3, 1)), A, np.zeros((3, 3)))
+    assert nx.is_connected(as_nx(3, out))
+    C = np.ones((3, 3)) - np.eye(3)
+    out = decode_anchored(C, np.eye(3), np.zeros((3, 3, 1)), A, np.zeros((3, 3)), max_degree=[1, 2, 1])
+    assert edge_set(out) == {(0, 1), (1, 2)}  # (0, 2) would exceed the caps of nodes 0 and 2
+
+
+def test_anchored_errors():
+    A = adjacency(3, [(0, 1)])
+    with pytest.raises(ValueError, match=r"consensus must lie in \[0.5, 1\]; got 0.3"):
+        decode_anchored(A, np.eye(3), np.zeros((3, 3, 1)), A, np.zeros((3, 3)), consensus=0.3)
+    with pytest.raises(ValueError, match=r"anchor_structure and anchor_edge_classes must be \(3, 3\)"):
+        decode_anchored(A, np.eye(3), np.zeros((3, 3, 1)), A[:2, :2], np.zeros((3, 3)))
