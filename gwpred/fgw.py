@@ -562,7 +562,7 @@ def fgw_barycenter(
     for name, arr in (("structures", Cs), ("features", Fs), ("init_structure", C), ("init_features", F)):
         if not np.all(np.isfinite(arr)):
             raise ValueError(f"{name} contains NaN or infinite values; clean the input first.")
-    S, m = Cs.shape[0], Cs.shape[1]
+    S = Cs.shape[0]
     M = feature_costs(F, Fs)
     T = _initial_plans(init_plans, h, qs, M, sizes)
     if init_from is not None:

@@ -382,7 +382,7 @@ def test_deterministic_ties() -> None:
 def test_shape_errors(C_shape, F_shape) -> None:
     with pytest.raises(
         ValueError,
-        match=rf"structure must be \(n, n\) and node_scores \(n, k\); got " + re.escape(f"{C_shape} and {F_shape}"),
+        match=r"structure must be \(n, n\) and node_scores \(n, k\); got " + re.escape(f"{C_shape} and {F_shape}"),
     ):
         decode_barycenter(np.zeros(C_shape), np.zeros(F_shape))
 

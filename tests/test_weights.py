@@ -362,7 +362,7 @@ def test_precomputed_query_shape(shape) -> None:
     model = KernelRidgeWeights("precomputed").fit(np.eye(3))
     with pytest.raises(
         ValueError,
-        match=rf"pass the \(n_queries, 3\) kernel between queries and training items; got shape " + re.escape(str(shape)),
+        match=r"pass the \(n_queries, 3\) kernel between queries and training items; got shape " + re.escape(str(shape)),
     ):
         model.raw_weights(np.ones(shape))
 
