@@ -1122,6 +1122,191 @@ def exact_match(
     return _isomorphism(a, b) is not None
 
 
+# --------------------------------------------------------------------------- summaries
+
+# Cut-offs k of the top-k accuracy that summarize reports when ranked candidates are given.
+_TOP_K = (1, 5, 10)
+
+
+def _ratio(hits: int, total: int, other: int) -> float:
+    """``hits / total``; when ``total`` is 0: 1.0 if ``other`` is 0 too, else 0.0."""
+    if total == 0:
+        return 1.0 if other == 0 else 0.0
+    return hits / total
+
+
+def _mapping_scores(
+    gp: nx.Graph, gt: nx.Graph, mapping: dict, node_label: Hashable, edge_label: Hashable
+) -> dict[str, float]:
+    """Node label accuracy and edge precision, recall and F1 under a node map gp -> gt.
+
+    See the Notes of :func:`summarize` for the definitions and the empty cases.
+    """
+    inverse = {v: u for u, v in mapping.items() if v is not None}
+    right_nodes = sum(
+        1
+        for v, data in gt.nodes(data=True)
+        if v in inverse and gp.nodes[inverse[v]].get(node_label) == data.get(node_label)
+    )
+    # The map is injective, so the right predicted edges land on distinct true edges:
+    # one count serves both precision and recall.
+    right_edges = 0
+    for u, w, data in gp.edges(data=True):
+        x, y = mapping.get(u), mapping.get(w)
+        if (
+            x is not None
+            and y is not None
+            and gt.has_edge(x, y)
+            and gt.edges[x, y].get(edge_label) == data.get(edge_label)
+        ):
+            right_edges += 1
+    e_pred, e_true = gp.number_of_edges(), gt.number_of_edges()
+    precision = _ratio(right_edges, e_pred, e_true)
+    recall = _ratio(right_edges, e_true, e_pred)
+    # 2PR / (P + R) = 2 right / (predicted + true): the harmonic mean without round-off.
+    f1 = 2 * right_edges / (e_pred + e_true) if e_pred + e_true else 1.0
+    return {
+        "node_label_accuracy": _ratio(right_nodes, gt.number_of_nodes(), gp.number_of_nodes()),
+        "edge_precision": precision,
+        "edge_recall": recall,
+        "edge_f1": f1,
+    }
+
+
+def _hit_rank(
+    candidates: list[nx.Graph],
+    gt: nx.Graph,
+    index: int,
+    node_label: Hashable,
+    edge_label: Hashable,
+) -> int | None:
+    """1-based position of the first candidate label-isomorphic to ``gt``, or None."""
+    b = _labeled(gt, f"true[{index}]", node_label, edge_label)
+    for j, cand in enumerate(candidates):
+        a = _labeled(cand, f"ranked[{index}][{j}]", node_label, edge_label)
+        if _isomorphism(a, b) is not None:
+            return j + 1
+    return None
+
+
+def _score_pair(
+    index: int,
+    gp: nx.Graph,
+    gt: nx.Graph,
+    candidates: list[nx.Graph] | None,
+    node_label: Hashable,
+    edge_label: Hashable,
+    time_limit: float | None,
+) -> tuple[int, dict]:
+    """All per-pair scores of :func:`summarize`, with the pair's index (for reordering)."""
+    r = edit_distance(gp, gt, node_label=node_label, edge_label=edge_label, time_limit=time_limit)
+    n_pred = gp.number_of_nodes()
+    item: dict[str, Any] = {
+        "ged": r.value,
+        "exact": r.exact,
+        "match": bool(r.exact and r.value == 0.0),
+        "n_pred": n_pred,
+        "n_true": gt.number_of_nodes(),
+        "connected": bool(n_pred > 0 and nx.is_connected(gp)),
+    }
+    item.update(_mapping_scores(gp, gt, r.mapping, node_label, edge_label))
+    if candidates is not None:
+        item["hit_rank"] = _hit_rank(candidates, gt, index, node_label, edge_label)
+    return index, item
+
+
+def _check_n_jobs(n_jobs: Any) -> int:
+    if isinstance(n_jobs, bool) or not isinstance(n_jobs, (int, np.integer)):
+        raise TypeError(
+            f"n_jobs must be an int, got {n_jobs!r} of type {type(n_jobs).__name__}; pass 1 "
+            "for no parallelism or -1 for one worker per processor"
+        )
+    if n_jobs == 0:
+        raise ValueError(
+            "n_jobs must be a non-zero int (1 = no parallelism, k > 1 = k workers, -1 = one "
+            "worker per processor), got 0"
+        )
+    return int(n_jobs)
+
+
+def _check_ranked(ranked: Any, n: int) -> list[list[nx.Graph]]:
+    """Validate ``ranked`` and keep the first ``max(_TOP_K)`` candidates of each list."""
+    if isinstance(ranked, (nx.Graph, str, bytes)) or not isinstance(ranked, Sequence):
+        raise TypeError(
+            f"ranked must be a list with one list of candidate graphs per pair, got "
+            f"{type(ranked).__name__}"
+        )
+    if len(ranked) != n:
+        raise ValueError(
+            f"ranked must hold one candidate list per pair, got len(ranked)={len(ranked)} and "
+            f"len(predicted)={n}; pass ranked[i] = the candidates for true[i], best first"
+        )
+    out = []
+    for i, candidates in enumerate(ranked):
+        if isinstance(candidates, nx.Graph):
+            raise TypeError(f"ranked[{i}] is a single graph; wrap it in a list")
+        if isinstance(candidates, (str, bytes)) or not isinstance(candidates, Sequence):
+            raise TypeError(
+                f"ranked[{i}] must be a list of networkx.Graph (best first), got "
+                f"{type(candidates).__name__}"
+            )
+        head = list(candidates[: max(_TOP_K)])
+        for j, cand in enumerate(head):
+            if not isinstance(cand, nx.Graph):
+                raise TypeError(
+                    f"ranked[{i}][{j}] must be a networkx.Graph, got {type(cand).__name__}"
+                )
+        out.append(head)
+    return out
+
+
+def _generator_mode() -> str | None:
+    """The best ``return_as`` generator mode of the installed joblib, or None (joblib < 1.3)."""
+    from joblib import Parallel
+
+    for mode in ("generator_unordered", "generator"):
+        try:
+            Parallel(n_jobs=1, return_as=mode)
+        except (TypeError, ValueError):
+            continue
+        return mode
+    return None
+
+
+def _score_all(tasks: list[tuple], n_jobs: int, bar: Any) -> list[dict]:
+    """Run :func:`_score_pair` on every task; items in task order, ``bar`` ticks per pair."""
+    items: list[dict] = [{} for _ in tasks]
+    if n_jobs == 1:
+        for task in tasks:
+            index, item = _score_pair(*task)
+            items[index] = item
+            bar.update(1)
+        return items
+
+    from joblib import Parallel, delayed, effective_n_jobs
+
+    mode = _generator_mode()
+    if mode is not None:
+        # Results arrive as pairs finish (in order with "generator"): tick per result.
+        results = Parallel(n_jobs=n_jobs, return_as=mode)(
+            delayed(_score_pair)(*task) for task in tasks
+        )
+        for index, item in results:
+            items[index] = item
+            bar.update(1)
+        return items
+    # Older joblib: batches of a few pairs per worker, the bar ticks per batch.
+    size = 4 * effective_n_jobs(n_jobs)
+    with Parallel(n_jobs=n_jobs) as parallel:
+        for start in range(0, len(tasks), size):
+            for index, item in parallel(
+                delayed(_score_pair)(*task) for task in tasks[start : start + size]
+            ):
+                items[index] = item
+                bar.update(1)
+    return items
+
+
 def summarize(
     predicted: Sequence[nx.Graph],
     true: Sequence[nx.Graph],
@@ -1130,8 +1315,10 @@ def summarize(
     edge_label: Hashable = "label",
     time_limit: float | None = None,
     progress: bool = False,
+    n_jobs: int = 1,
+    ranked: Sequence[Sequence[nx.Graph]] | None = None,
 ) -> dict:
-    """Score a list of predicted graphs against the true graphs, pair by pair.
+    r"""Score a list of predicted graphs against the true graphs, pair by pair.
 
     Parameters
     ----------
@@ -1147,7 +1334,13 @@ def summarize(
         Seconds per edit distance given to the integer program solver; see
         :func:`edit_distance`.
     progress : bool, default=False
-        Show a progress bar on standard error.
+        Show a progress bar on standard error, ticking as pairs are scored.
+    n_jobs : int, default=1
+        Worker processes (joblib) scoring pairs in parallel; 1 scores them in this process,
+        -1 uses one worker per processor (joblib's convention for negative values).
+    ranked : sequence of sequences of networkx.Graph, optional
+        One list of candidate graphs per pair, best first (e.g. the k best guesses of a
+        predictor). When given, the summary reports the top-k accuracy.
 
     Returns
     -------
@@ -1155,18 +1348,63 @@ def summarize(
         ``n`` (number of pairs), ``mean_ged``, ``median_ged`` (of the best values found),
         ``exact_match_rate``, ``right_size_rate`` (same node count), ``connected_rate``
         (predicted graphs that are connected; an empty graph is not), ``exact_share`` (share
-        of edit distances proven exact) and ``items``: one dict per pair with ``ged``,
-        ``exact``, ``match``, ``n_pred``, ``n_true`` and ``connected``.
+        of edit distances proven exact), the means over pairs ``node_label_accuracy``,
+        ``edge_precision``, ``edge_recall`` and ``edge_f1``, and ``items``: one dict per
+        pair with ``ged``, ``exact``, ``match``, ``n_pred``, ``n_true``, ``connected``,
+        ``node_label_accuracy``, ``edge_precision``, ``edge_recall`` and ``edge_f1``.
+        With ``ranked``, also ``top_k_accuracy``, a dict ``{1: ..., 5: ..., 10: ...}``, and
+        per pair ``hit_rank``: the 1-based position of the first of the first 10 candidates
+        that is label-isomorphic to the true graph, or None.
 
     Raises
     ------
     ValueError
-        If the two sequences differ in length or are empty; see also :func:`edit_distance`.
+        If the two sequences differ in length or are empty, ``n_jobs`` is 0, or ``ranked``
+        does not hold one list per pair; see also :func:`edit_distance`.
+    TypeError
+        If ``predicted`` or ``true`` is a single graph, ``n_jobs`` is not an int, or
+        ``ranked`` (or one of its lists) is not a sequence of graphs.
+
+    See Also
+    --------
+    edit_distance : the distance and node map behind each item.
+    exact_match : the label isomorphism test behind ``match`` and ``hit_rank``.
 
     Notes
     -----
     Unit costs are used. A pair is an exact match when its edit distance is proven 0, which
     with positive costs is the same as label isomorphism.
+
+    The node and edge scores read the node map :math:`\varphi` (predicted -> true) of the
+    edit path that :func:`edit_distance` returns: an optimal one when the distance is exact
+    (when several edit paths are optimal, the scores are those of the one it returns), the
+    best one found otherwise.
+
+    * ``node_label_accuracy``: share of the nodes of the true graph that are the image of a
+      predicted node with the same label. True nodes that no predicted node maps to (they
+      are inserted by the edit path) count as wrong; deleted predicted nodes are not
+      counted (they show in the edge precision and the edit distance).
+    * A predicted edge :math:`(u, v)` is right when both ends are mapped and
+      :math:`(\varphi(u), \varphi(v))` is an edge of the true graph with the same edge label.
+      ``edge_precision`` = right edges / predicted edges, ``edge_recall`` = right edges /
+      true edges (the map is injective, so right predicted edges hit distinct true edges),
+      ``edge_f1`` = their harmonic mean :math:`2PR / (P + R)`, 0 when :math:`P + R = 0`.
+    * Empty cases: a ratio over zero items is 1.0 when the other graph is empty too (no
+      true and no predicted edges: precision = recall = F1 = 1; no nodes on either side:
+      accuracy 1) and 0.0 otherwise (e.g. no predicted edges but some true ones: precision
+      = recall = F1 = 0; an empty true graph against a non-empty prediction: accuracy 0).
+
+    The summary values are plain means over pairs, so the mean ``edge_f1`` is in general
+    not the harmonic mean of the mean precision and the mean recall.
+
+    ``top_k_accuracy[k]`` is the share of pairs whose true graph is label-isomorphic
+    (:func:`exact_match`) to one of the first k graphs of ``ranked[i]``; a list shorter
+    than k counts with all its graphs. Only the first 10 candidates of each list are read.
+
+    With ``n_jobs != 1`` the pairs go to joblib workers (loky processes), so the graphs
+    must be picklable, and the results are the same as with ``n_jobs=1`` because
+    :func:`edit_distance` is deterministic. The exception is ``time_limit``: a search cut
+    short by the clock can end elsewhere when workers share the processors.
 
     Examples
     --------
@@ -1178,6 +1416,10 @@ def summarize(
     >>> s = summarize([g, h], [g, g])
     >>> s["n"], s["mean_ged"], s["exact_match_rate"], s["items"][1]["ged"]
     (2, 0.5, 0.5, 1.0)
+    >>> s["items"][1]["edge_precision"], s["items"][1]["edge_recall"]
+    (0.6666666666666666, 1.0)
+    >>> summarize([h], [g], ranked=[[h, g]])["top_k_accuracy"]
+    {1: 0.0, 5: 1.0, 10: 1.0}
     """
     from tqdm.auto import tqdm
 
@@ -1195,36 +1437,42 @@ def summarize(
         )
     if not predicted:
         raise ValueError("predicted and true are empty; pass at least one pair of graphs")
-    items = []
-    for gp, gt in tqdm(
-        zip(predicted, true),
-        total=len(predicted),
-        disable=not progress,
-        file=sys.stderr,
-        desc="edit distance",
-    ):
-        r = edit_distance(
-            gp, gt, node_label=node_label, edge_label=edge_label, time_limit=time_limit
-        )
-        n_pred = gp.number_of_nodes()
-        items.append(
-            {
-                "ged": r.value,
-                "exact": r.exact,
-                "match": bool(r.exact and r.value == 0.0),
-                "n_pred": n_pred,
-                "n_true": gt.number_of_nodes(),
-                "connected": bool(n_pred > 0 and nx.is_connected(gp)),
-            }
-        )
+    n_jobs = _check_n_jobs(n_jobs)
+    candidates: list[list[nx.Graph]] | list[None]
+    if ranked is None:
+        candidates = [None] * len(predicted)
+    else:
+        candidates = _check_ranked(ranked, len(predicted))
+    tasks = [
+        (i, gp, gt, cands, node_label, edge_label, time_limit)
+        for i, (gp, gt, cands) in enumerate(zip(predicted, true, candidates))
+    ]
+    with tqdm(
+        total=len(tasks), disable=not progress, file=sys.stderr, desc="edit distance"
+    ) as bar:
+        items = _score_all(tasks, n_jobs, bar)
+
+    def mean(key: str) -> float:
+        return float(np.mean([it[key] for it in items]))
+
     geds = np.array([it["ged"] for it in items], dtype=float)
-    return {
+    summary: dict[str, Any] = {
         "n": len(items),
         "mean_ged": float(np.mean(geds)),
         "median_ged": float(np.median(geds)),
-        "exact_match_rate": float(np.mean([it["match"] for it in items])),
+        "exact_match_rate": mean("match"),
         "right_size_rate": float(np.mean([it["n_pred"] == it["n_true"] for it in items])),
-        "connected_rate": float(np.mean([it["connected"] for it in items])),
-        "exact_share": float(np.mean([it["exact"] for it in items])),
-        "items": items,
+        "connected_rate": mean("connected"),
+        "exact_share": mean("exact"),
+        "node_label_accuracy": mean("node_label_accuracy"),
+        "edge_precision": mean("edge_precision"),
+        "edge_recall": mean("edge_recall"),
+        "edge_f1": mean("edge_f1"),
     }
+    if ranked is not None:
+        summary["top_k_accuracy"] = {
+            k: float(np.mean([it["hit_rank"] is not None and it["hit_rank"] <= k for it in items]))
+            for k in _TOP_K
+        }
+    summary["items"] = items
+    return summary

@@ -43,8 +43,10 @@ from gwpred.io import write_graphs
 REPO = Path(__file__).resolve().parents[1]
 TRAIN = list(range(0, 3000, 50))  # 60 molecules spread over the demo file
 TEST = list(range(25, 3000, 600))  # 5 others
-SUMMARY_KEYS = {"n", "mean_ged", "median_ged", "exact_match_rate", "right_size_rate", "connected_rate", "exact_share"}
-ITEM_COLUMNS = ["index", "ged", "exact", "match", "n_pred", "n_true", "connected"]
+NODE_EDGE_SCORES = ["node_label_accuracy", "edge_precision", "edge_recall", "edge_f1"]
+SUMMARY_KEYS = {"n", "mean_ged", "median_ged", "exact_match_rate", "right_size_rate", "connected_rate", "exact_share",
+                *NODE_EDGE_SCORES}
+ITEM_COLUMNS = ["index", "ged", "exact", "match", "n_pred", "n_true", "connected", *NODE_EDGE_SCORES]
 MODEL_OPTS = ["--top-k", "3", "--alpha", "0.5", "--seed", "0"]
 
 
@@ -133,7 +135,7 @@ def test_top_level_help(capsys):
         ("fit", ["--features", "--graphs", "--model", "--kernel", "--gamma", "--ridge", "--weighting",
                  "--top-k", "--alpha", "--decoding", "--seed", "--quiet"]),
         ("predict", ["--model", "--features", "--out", "--quiet"]),
-        ("evaluate", ["predicted", "truth", "--time-limit", "--summary", "--items", "--quiet"]),
+        ("evaluate", ["predicted", "truth", "--time-limit", "--summary", "--items", "--n-jobs", "--quiet"]),
         ("demo", ["--out", "--test-size", "--show", "--time-limit", "--kernel", "--top-k", "--alpha",
                   "--seed", "--quiet"]),
     ],
@@ -262,6 +264,72 @@ def test_evaluate_truth_against_itself(capsys, tmp_path, files):
     s = json.loads(summary_path.read_text())
     # a distance from a graph to itself is 0; every pair is an exact match
     assert (s["mean_ged"], s["exact_match_rate"], s["right_size_rate"], s["exact_share"]) == (0.0, 1.0, 1.0, 1.0)
+
+
+def evaluate_files(capsys, tmp_path, pred_path, truth_path, *extra: str) -> tuple[str, dict, list[dict]]:
+    """Run evaluate; return its stdout, the summary JSON and the items CSV rows."""
+    summary_path, items_path = tmp_path / f"summary{len(extra)}.json", tmp_path / f"items{len(extra)}.csv"
+    code, out, err = run(capsys, "evaluate", pred_path, truth_path, "--summary", summary_path,
+                         "--items", items_path, "-q", *extra)
+    assert code == 0, err
+    with open(items_path, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    return out, json.loads(summary_path.read_text()), rows
+
+
+def test_evaluate_node_and_edge_scores(capsys, tmp_path, demo, files):
+    # Each true QM9 graph against the next one (unrelated molecules of up to 9 heavy atoms).
+    _, _, _, Gte = demo
+    pred_path = write_jsonl(tmp_path / "shifted.jsonl", Gte[1:] + Gte[:1])
+    out, summary, rows = evaluate_files(capsys, tmp_path, pred_path, files["truth"])
+    assert set(summary) == SUMMARY_KEYS
+    assert list(rows[0]) == ITEM_COLUMNS
+    for key in NODE_EDGE_SCORES:
+        per_pair = [float(r[key]) for r in rows]
+        assert all(0.0 <= v <= 1.0 for v in per_pair)
+        assert summary[key] == pytest.approx(np.mean(per_pair))  # summary = mean over pairs
+    for r in rows:
+        # F1 is the harmonic mean of precision and recall (common practice)
+        p, rec = float(r["edge_precision"]), float(r["edge_recall"])
+        assert float(r["edge_f1"]) == pytest.approx(2 * p * rec / (p + rec) if p + rec else 0.0)
+    # the line under the table shows the rates in percent
+    line = next(ln for ln in out.splitlines() if ln.startswith("node label accuracy"))
+    assert f"node label accuracy {100 * summary['node_label_accuracy']:.1f}%" in line
+    for name, key in [("precision", "edge_precision"), ("recall", "edge_recall"), ("F1", "edge_f1")]:
+        assert f"{name} {100 * summary[key]:.1f}%" in line
+    assert out.index("mean GED") < out.index("node label accuracy")
+
+
+def test_evaluate_truth_against_itself_scores_one(capsys, tmp_path, files):
+    # a graph against itself: every node and edge is right (definition of the scores)
+    out, summary, rows = evaluate_files(capsys, tmp_path, files["truth"], files["truth"])
+    assert [summary[k] for k in NODE_EDGE_SCORES] == [1.0] * 4
+    assert all(float(r[k]) == 1.0 for r in rows for k in NODE_EDGE_SCORES)
+    assert "node label accuracy 100.0%" in out and "F1 100.0%" in out
+
+
+def test_evaluate_n_jobs_gives_the_same_scores(capsys, tmp_path, demo, files):
+    _, _, _, Gte = demo
+    pred_path = write_jsonl(tmp_path / "shifted.jsonl", Gte[2:] + Gte[:2])
+    out1, summary1, rows1 = evaluate_files(capsys, tmp_path, pred_path, files["truth"])
+    out2, summary2, rows2 = evaluate_files(capsys, tmp_path, pred_path, files["truth"], "--n-jobs", "2")
+    assert summary1["exact_share"] == 1.0  # no pair stopped by the clock, so results are comparable
+    assert summary2 == summary1
+    assert rows2 == rows1
+    assert out2 == out1
+
+
+@pytest.mark.parametrize("value", ["0", "-3"])
+def test_evaluate_rejects_bad_n_jobs(capsys, files, value):
+    expect_usage_error(capsys, ["evaluate", files["truth"], files["truth"], "--n-jobs", value, "-q"],
+                       f"--n-jobs must be a number of worker processes >= 1, or -1 for one per processor; got {value}.")
+
+
+def test_evaluate_n_jobs_must_be_an_integer(capsys, files):
+    with pytest.raises(SystemExit) as exc:
+        main(["evaluate", str(files["truth"]), str(files["truth"]), "--n-jobs", "two"])
+    assert exc.value.code == 2
+    assert "argument --n-jobs: invalid int value: 'two'" in capsys.readouterr().err
 
 
 # --------------------------------------------------------------------------

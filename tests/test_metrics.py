@@ -502,10 +502,24 @@ def test_summarize_values():
     assert s["right_size_rate"] == 0.5
     assert s["connected_rate"] == 0.5  # the empty graph counts as not connected
     assert s["exact_share"] == 1.0
-    assert s["items"][2] == {
+    # Node and edge scores, worked by hand from the definitions in summarize's Notes:
+    # C3/C3: all 1. P3/C3: 3 of 3 nodes right, 2 of 2 predicted edges right, 2 of 3 true
+    # edges found: P = 1, R = 2/3, F1 = 0.8. Two isolated nodes/P3: 2 of 3 true nodes
+    # right, no predicted edges against 2 true ones: P = R = F1 = 0. Empty/P3: nothing.
+    assert [it["node_label_accuracy"] for it in s["items"]] == pytest.approx([1, 1, 2 / 3, 0])
+    assert [it["edge_precision"] for it in s["items"]] == pytest.approx([1, 1, 0, 0])
+    assert [it["edge_recall"] for it in s["items"]] == pytest.approx([1, 2 / 3, 0, 0])
+    assert [it["edge_f1"] for it in s["items"]] == pytest.approx([1, 0.8, 0, 0])
+    assert s["node_label_accuracy"] == pytest.approx((1 + 1 + 2 / 3) / 4)
+    assert s["edge_precision"] == pytest.approx(0.5)
+    assert s["edge_recall"] == pytest.approx((1 + 2 / 3) / 4)
+    assert s["edge_f1"] == pytest.approx(1.8 / 4)
+    assert "top_k_accuracy" not in s  # only with ranked candidates
+    assert s["items"][2] == pytest.approx({
         "ged": 3.0, "exact": True, "match": False, "n_pred": 2, "n_true": 3,
-        "connected": False,
-    }
+        "connected": False, "node_label_accuracy": 2 / 3, "edge_precision": 0.0,
+        "edge_recall": 0.0, "edge_f1": 0.0,
+    })
 
 
 def test_summarize_progress_bar_goes_to_stderr(capsys):
@@ -609,3 +623,352 @@ def test_summarize_empty_is_rejected():
 def test_summarize_single_graph_is_rejected():
     with pytest.raises(TypeError, match=r"got a single graph; wrap it in a list"):
         summarize(_g(), [_g()])
+
+
+# --------------------------------------------------------------------------- summarize: node
+# and edge scores under the edit path's node map
+
+
+def molecule_graph(atoms: dict, bonds: list) -> nx.Graph:
+    g = nx.Graph()
+    for u, symbol in atoms.items():
+        g.add_node(u, label=symbol)
+    for u, v, order in bonds:
+        g.add_edge(u, v, label=order)
+    return g
+
+
+def test_node_and_edge_scores_hand_worked_example():
+    # Worked by hand from the definitions (and the unique optimal map confirmed by brute
+    # force over all partial node maps, below):
+    #   true       x:C - y:C (single), y:C = z:O (double), y:C - w:N (single)
+    #   predicted  a:C - b:C (single), b:C - c:O (single), b:C - d:F (single),
+    #              a:C - e:C (single)
+    # Optimal map a->x, b->y, c->z, d->w, e deleted; GED 4 = substitute F by N, substitute
+    # the bond b-c (single) by y=z (double), delete e, delete the bond a-e. (Sending c->w
+    # and d->z costs 5.)
+    #   node label accuracy: x, y, z right, w (F for N) wrong -> 3/4
+    #   right predicted edges: a-b, b-d (b-c has the wrong order, a-e has an end deleted)
+    #   precision 2/4, recall 2/3, F1 = 2 (1/2)(2/3) / (1/2 + 2/3) = 4/7
+    true = molecule_graph({"x": "C", "y": "C", "z": "O", "w": "N"},
+                          [("x", "y", 1), ("y", "z", 2), ("y", "w", 1)])
+    pred = molecule_graph({"a": "C", "b": "C", "c": "O", "d": "F", "e": "C"},
+                          [("a", "b", 1), ("b", "c", 1), ("b", "d", 1), ("a", "e", 1)])
+    assert optimal_mappings(pred, true) == [{"a": "x", "b": "y", "c": "z", "d": "w", "e": None}]
+    s = summarize([pred], [true])
+    item = s["items"][0]
+    assert item["ged"] == 4.0
+    assert item["node_label_accuracy"] == 0.75
+    assert item["edge_precision"] == 0.5
+    assert item["edge_recall"] == pytest.approx(2 / 3)
+    assert item["edge_f1"] == pytest.approx(4 / 7)
+    assert s["edge_f1"] == item["edge_f1"]
+    # Bond orders ignored (edge_label=None: every edge has label None): same map, GED 3,
+    # and b-c becomes right: precision 3/4, recall 3/3, F1 = 2 (3/4) / (7/4) = 6/7.
+    item = summarize([pred], [true], edge_label=None)["items"][0]
+    assert (item["ged"], item["node_label_accuracy"], item["edge_precision"],
+            item["edge_recall"]) == (3.0, 0.75, 0.75, 1.0)
+    assert item["edge_f1"] == pytest.approx(6 / 7)
+
+
+@pytest.mark.parametrize(
+    "pred_edges, true_edges, expected",
+    [
+        # Empty cases as defined in summarize's Notes (a ratio over nothing is 1 when the
+        # other side is empty too, else 0).
+        ([], [], (1.0, 1.0, 1.0)),
+        ([], [(0, 1)], (0.0, 0.0, 0.0)),
+        ([(0, 1)], [], (0.0, 0.0, 0.0)),
+    ],
+)
+def test_edge_scores_empty_cases(pred_edges, true_edges, expected):
+    pred = labeled(nx.empty_graph(2))
+    pred.add_edges_from(pred_edges)
+    true = labeled(nx.empty_graph(2))
+    true.add_edges_from(true_edges)
+    item = summarize([pred], [true])["items"][0]
+    assert (item["edge_precision"], item["edge_recall"], item["edge_f1"]) == expected
+    assert item["node_label_accuracy"] == 1.0
+
+
+def test_node_label_accuracy_empty_cases():
+    # No nodes on either side: 1; empty true graph against a non-empty prediction: 0;
+    # empty prediction against a non-empty true graph: every true node is inserted, 0.
+    one = labeled(nx.empty_graph(1))
+    s = summarize([nx.Graph(), one, nx.Graph()], [nx.Graph(), nx.Graph(), one])
+    assert [it["node_label_accuracy"] for it in s["items"]] == [1.0, 0.0, 0.0]
+
+
+def optimal_mappings(g1: nx.Graph, g2: nx.Graph, costs: dict = UNIT) -> list[dict]:
+    """Every partial injective node map of least edit cost (brute force, the definition)."""
+    nodes1, nodes2 = list(g1), list(g2)
+    found: list[tuple[float, dict]] = []
+    for images in itertools.product([None, *nodes2], repeat=len(nodes1)):
+        used = [v for v in images if v is not None]
+        if len(used) == len(set(used)):
+            mapping = dict(zip(nodes1, images))
+            found.append((mapping_cost(g1, g2, mapping, costs), mapping))
+    best = min(c for c, _ in found)
+    return [m for c, m in found if c == best]
+
+
+_NO_EDGE = object()
+
+
+def scores_of_node_path(pred: nx.Graph, true: nx.Graph, node_path) -> tuple:
+    """(node label accuracy, edge precision, recall, F1) of an edit path's node pairs.
+
+    Written from the definitions in summarize's Notes, independently of gwpred. The path
+    is networkx's: (u, v) substitutes u by v, (u, None) deletes u, (None, v) inserts v.
+    """
+    image = {u: v for u, v in node_path if u is not None}
+    source = {v: u for u, v in node_path if v is not None}
+
+    def ratio(hits, total, other):
+        return hits / total if total else (1.0 if other == 0 else 0.0)
+
+    right_nodes = sum(
+        1 for v in true
+        if source.get(v) is not None and pred.nodes[source[v]]["label"] == true.nodes[v]["label"]
+    )
+    true_edges = {frozenset((x, y)): d.get("label") for x, y, d in true.edges(data=True)}
+    right_edges = sum(
+        1 for u, w, d in pred.edges(data=True)
+        if image.get(u) is not None and image.get(w) is not None
+        and true_edges.get(frozenset((image[u], image[w])), _NO_EDGE) == d.get("label")
+    )
+    ep, et = pred.number_of_edges(), true.number_of_edges()
+    p, r = ratio(right_edges, ep, et), ratio(right_edges, et, ep)
+    f1 = 2 * p * r / (p + r) if p + r else 0.0
+    return ratio(right_nodes, true.number_of_nodes(), pred.number_of_nodes()), p, r, f1
+
+
+def networkx_optimal_node_path(g1: nx.Graph, g2: nx.Graph):
+    """Last (cheapest) node path of networkx.optimize_edit_paths, unit costs, and its cost."""
+    best = None
+    for node_path, _edge_path, cost in nx.optimize_edit_paths(
+        g1,
+        g2,
+        node_subst_cost=lambda a, b: 0.0 if a["label"] == b["label"] else 1.0,
+        node_del_cost=lambda a: 1.0,
+        node_ins_cost=lambda a: 1.0,
+        edge_subst_cost=lambda a, b: 0.0 if a.get("label") == b.get("label") else 1.0,
+        edge_del_cost=lambda a: 1.0,
+        edge_ins_cost=lambda a: 1.0,
+    ):
+        best = (node_path, cost)
+    return best
+
+
+def scores(item: dict) -> tuple:
+    return (item["node_label_accuracy"], item["edge_precision"], item["edge_recall"],
+            item["edge_f1"])
+
+
+def perturbed(g: nx.Graph, rng: random.Random, edits: int) -> nx.Graph:
+    """A copy of g after a few random edits (labels, edges, nodes), with new node names."""
+    h = nx.relabel_nodes(g, {u: f"p{u}" for u in g})
+    for step in range(edits):
+        kind = rng.choice(["node label", "edge label", "edge", "delete node", "add node"])
+        nodes = list(h)
+        if kind == "node label" and nodes:
+            h.nodes[rng.choice(nodes)]["label"] = rng.choice("CNOFS")
+        elif kind == "edge label" and h.number_of_edges():
+            u, v = rng.choice(list(h.edges))
+            h.edges[u, v]["label"] = rng.choice([1, 2, 3])
+        elif kind == "edge" and len(nodes) >= 2:
+            u, v = rng.sample(nodes, 2)
+            if h.has_edge(u, v):
+                h.remove_edge(u, v)
+            else:
+                h.add_edge(u, v, label=rng.choice([1, 2, 3]))
+        elif kind == "delete node" and nodes:
+            h.remove_node(rng.choice(nodes))
+        else:
+            new = f"q{step}"
+            h.add_node(new, label=rng.choice("CNOFS"))
+            if nodes:
+                h.add_edge(new, rng.choice(nodes), label=rng.choice([1, 2, 3]))
+    return h
+
+
+def test_node_and_edge_scores_match_networkx_edit_paths():
+    # 200 pairs of 1-6 nodes with 5 node labels and 3 edge labels (few symmetries, so the
+    # optimal node map is often unique): 100 unrelated random pairs and 100 true graphs
+    # against copies with 1-3 random edits. Reference: the optimal node path of
+    # networkx.optimize_edit_paths, scored by the independent scores_of_node_path. When
+    # the optimal map is unique (brute force) the scores must be equal; in every case
+    # ours must be the scores of some optimal map.
+    rng = random.Random(2024)
+
+    def relabeled(g: nx.Graph) -> nx.Graph:
+        nx.set_node_attributes(g, {u: rng.choice("CNOFS") for u in g}, "label")
+        return g
+
+    pairs = []
+    for _ in range(100):
+        pairs.append((relabeled(random_graph(rng, 1, 5)), relabeled(random_graph(rng, 1, 5))))
+    for _ in range(100):
+        true = relabeled(random_graph(rng, 2, 5))
+        pairs.append((perturbed(true, rng, rng.randint(1, 3)), true))
+    s = summarize([p for p, _ in pairs], [t for _, t in pairs])
+    unique = 0
+    for (pred, true), item in zip(pairs, s["items"]):
+        node_path, cost = networkx_optimal_node_path(pred, true)
+        assert item["exact"] and cost == item["ged"]
+        optima = optimal_mappings(pred, true)
+        candidates = [scores_of_node_path(pred, true, list(m.items())) for m in optima]
+        assert any(scores(item) == pytest.approx(c) for c in candidates)
+        if len(optima) == 1:
+            unique += 1
+            assert scores(item) == pytest.approx(scores_of_node_path(pred, true, node_path))
+    assert unique >= 60  # 81 of the 200 optimal maps were unique (measured when written)
+
+
+@settings(max_examples=60, deadline=None)
+@given(graphs(), st.randoms(use_true_random=False))
+def test_identical_graphs_score_one_everywhere(g, rnd):
+    # A relabeled copy is the same labeled graph: every score is 1 (elementary).
+    nodes = list(g)
+    perm = nodes[:]
+    rnd.shuffle(perm)
+    h = nx.relabel_nodes(g, {u: f"n{v}" for u, v in zip(nodes, perm)})
+    s = summarize([h], [g])
+    assert scores(s["items"][0]) == (1.0, 1.0, 1.0, 1.0)
+    assert (s["node_label_accuracy"], s["edge_precision"], s["edge_recall"], s["edge_f1"]) == (
+        1.0, 1.0, 1.0, 1.0)
+
+
+@settings(max_examples=100, deadline=None)
+@given(graphs(5), graphs(5))
+def test_edge_f1_is_the_harmonic_mean(g1, g2):
+    # F1 = 2PR / (P + R), 0 when P = R = 0 (common practice); all scores lie in [0, 1],
+    # and an exact match scores 1 everywhere.
+    item = summarize([g1], [g2])["items"][0]
+    p, r, f1 = item["edge_precision"], item["edge_recall"], item["edge_f1"]
+    assert f1 == pytest.approx(2 * p * r / (p + r) if p + r else 0.0)
+    assert all(0.0 <= x <= 1.0 for x in scores(item))
+    if item["match"]:
+        assert scores(item) == (1.0, 1.0, 1.0, 1.0)
+
+
+# --------------------------------------------------------------------------- summarize: n_jobs
+
+
+def _parallel_case() -> tuple[list, list, list]:
+    rng = random.Random(21)
+    pred = [random_graph(rng, 0, 7) for _ in range(24)]
+    true = [random_graph(rng, 0, 7) for _ in range(24)]
+    ranked = [[random_graph(rng, 0, 4), t.copy()][: i % 3] for i, t in enumerate(true)]
+    return pred, true, ranked
+
+
+def test_summarize_in_parallel_equals_serial(capsys):
+    # Same numbers with 2 joblib workers as in one process (edit_distance is seeded).
+    pred, true, ranked = _parallel_case()
+    serial = summarize(pred, true, ranked=ranked)
+    parallel = summarize(pred, true, ranked=ranked, n_jobs=2, progress=True)
+    assert parallel == serial
+    out, err = capsys.readouterr()
+    assert out == "" and "24/24" in err
+
+
+def test_summarize_in_parallel_without_generator_support(monkeypatch, capsys):
+    # joblib < 1.3 has no return_as generators: batches, same numbers, full progress bar.
+    import gwpred.metrics
+
+    pred, true, ranked = _parallel_case()
+    serial = summarize(pred, true, ranked=ranked)
+    monkeypatch.setattr(gwpred.metrics, "_generator_mode", lambda: None)
+    assert summarize(pred, true, ranked=ranked, n_jobs=2, progress=True) == serial
+    assert "24/24" in capsys.readouterr().err
+
+
+def test_summarize_in_parallel_reports_worker_errors():
+    g = _g()
+    del g.nodes[1]["label"]
+    with pytest.raises(ValueError, match=r"node 1 of g1 has no 'label' attribute"):
+        summarize([_g(), g], [_g(), _g()], n_jobs=2)
+
+
+# --------------------------------------------------------------------------- summarize: top-k
+
+
+def near_miss(g: nx.Graph) -> nx.Graph:
+    """The graph with one node label changed: not the same labeled graph."""
+    h = g.copy()
+    u = next(iter(h))
+    h.nodes[u]["label"] = "S" if h.nodes[u]["label"] != "S" else "C"
+    return h
+
+
+def same_labeled(g: nx.Graph, h: nx.Graph) -> bool:
+    """Reference: networkx.is_isomorphic with label matchers."""
+    return nx.is_isomorphic(
+        g, h,
+        node_match=lambda a, b: a["label"] == b["label"],
+        edge_match=lambda a, b: a.get("label") == b.get("label"),
+    )
+
+
+def test_top_k_accuracy():
+    rng = random.Random(8)
+    true = [random_graph(rng, 3, 6) for _ in range(6)]
+    copies = [nx.relabel_nodes(t, {u: f"c{u}" for u in t}) for t in true]
+    misses = [near_miss(t) for t in true]
+    # (position of the copy, 1-based, or None; list length)
+    layout = [(1, 10), (3, 10), (7, 12), (11, 12), (None, 0), (2, 2)]
+    ranked = []
+    for t, copy, miss, (pos, length) in zip(true, copies, misses, layout):
+        cands = [copy if pos == j + 1 else miss for j in range(length)]
+        assert [same_labeled(c, t) for c in cands] == [pos == j + 1 for j in range(length)]
+        ranked.append(cands)
+    s = summarize(misses, true, ranked=ranked)
+    # hit ranks: 1, 3, 7, none among the first 10, none, 2 -> top-1 1/6, top-5 3/6, top-10 4/6
+    assert [it["hit_rank"] for it in s["items"]] == [1, 3, 7, None, None, 2]
+    assert s["top_k_accuracy"] == pytest.approx({1: 1 / 6, 5: 3 / 6, 10: 4 / 6})
+    # hit_rank agrees with exact_match
+    for t, cands, it in zip(true, ranked, s["items"]):
+        hits = [j + 1 for j, c in enumerate(cands[:10]) if exact_match(c, t)]
+        assert it["hit_rank"] == (hits[0] if hits else None)
+
+
+def test_top_k_accuracy_with_tuples_and_custom_labels():
+    g = nx.Graph([(0, 1, {"order": 2})])
+    nx.set_node_attributes(g, {0: 6, 1: 8}, "z")
+    h = nx.Graph([(5, 4, {"order": 2})])
+    nx.set_node_attributes(h, {4: 6, 5: 8}, "z")
+    s = summarize([g], [g], node_label="z", edge_label="order", ranked=((h,),))
+    assert s["top_k_accuracy"] == {1: 1.0, 5: 1.0, 10: 1.0}
+
+
+def test_ranked_length_mismatch_is_rejected():
+    with pytest.raises(ValueError, match=r"got len\(ranked\)=1 and len\(predicted\)=2"):
+        summarize([_g(), _g()], [_g(), _g()], ranked=[[_g()]])
+
+
+@pytest.mark.parametrize(
+    "ranked, error, message",
+    [
+        (_g(), TypeError,
+         r"ranked must be a list with one list of candidate graphs per pair, got Graph"),
+        ([[_g()], _g()], TypeError, r"ranked\[1\] is a single graph; wrap it in a list"),
+        ([3, [_g()]], TypeError,
+         r"ranked\[0\] must be a list of networkx.Graph \(best first\), got int"),
+        ([[_g(), [(0, 1)]], []], TypeError,
+         r"ranked\[0\]\[1\] must be a networkx.Graph, got list"),
+        ([[nx.path_graph(2)], []], ValueError, r"node 0 of ranked\[0\]\[0\] has no 'label'"),
+    ],
+)
+def test_bad_ranked_is_rejected(ranked, error, message):
+    with pytest.raises(error, match=message):
+        summarize([_g(), _g()], [_g(), _g()], ranked=ranked)
+
+
+def test_bad_n_jobs_is_rejected():
+    with pytest.raises(ValueError, match=r"n_jobs must be a non-zero int .*, got 0"):
+        summarize([_g()], [_g()], n_jobs=0)
+    with pytest.raises(TypeError, match=r"n_jobs must be an int, got '2' of type str"):
+        summarize([_g()], [_g()], n_jobs="2")
+    with pytest.raises(TypeError, match=r"n_jobs must be an int, got True of type bool"):
+        summarize([_g()], [_g()], n_jobs=True)
