@@ -36,10 +36,20 @@ def _model_params(args: argparse.Namespace) -> dict[str, Any]:
         "decoding": args.decoding,
         "consensus": args.consensus,
         "node_label": args.node_label,
-        "edge_label": None if args.edge_label.lower() == "none" else args.edge_label,
+        "edge_label": _edge_label(args),
         "random_state": args.seed,
         "verbose": not args.quiet,
     }
+
+
+def _add_label_options(p: Any) -> None:
+    p.add_argument("--node-label", default="label", help="node attribute holding labels (default: label)")
+    p.add_argument("--edge-label", default="label",
+                   help="edge attribute holding labels; 'none' ignores edge labels (default: label)")
+
+
+def _edge_label(args: argparse.Namespace) -> str | None:
+    return None if args.edge_label.lower() == "none" else args.edge_label
 
 
 def _add_model_options(p: argparse.ArgumentParser) -> None:
@@ -59,9 +69,7 @@ def _add_model_options(p: argparse.ArgumentParser) -> None:
                    help="decode as edits of the start graph (anchored) or from the barycenter alone (free)")
     g.add_argument("--consensus", type=float, default=0.8,
                    help="agreement needed to edit the start graph's edges, in [0.5, 1] (default: 0.8)")
-    g.add_argument("--node-label", default="label", help="node attribute holding labels (default: label)")
-    g.add_argument("--edge-label", default="label",
-                   help="edge attribute holding labels; 'none' ignores edge labels (default: label)")
+    _add_label_options(g)
     g.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
 
 
@@ -119,8 +127,7 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
             f"{args.predicted} holds {len(pred)} graphs but {args.truth} holds {len(true)}; "
             "they must be in the same order, one prediction per true graph."
         )
-    edge_label = None if args.edge_label.lower() == "none" else args.edge_label
-    summary = summarize(pred, true, node_label=args.node_label, edge_label=edge_label,
+    summary = summarize(pred, true, node_label=args.node_label, edge_label=_edge_label(args),
                         time_limit=args.time_limit, progress=not args.quiet, n_jobs=args.n_jobs)
     print(_table([(Path(args.predicted).name, summary)]))
     print(f"node label accuracy {100 * summary['node_label_accuracy']:.1f}%; edges under the GED node map: "
@@ -241,9 +248,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--items", help="write per-pair scores as CSV here")
     p.add_argument("--n-jobs", type=int, default=1,
                    help="worker processes scoring pairs in parallel; -1 uses every processor (default: 1)")
-    p.add_argument("--node-label", default="label", help="node attribute holding labels (default: label)")
-    p.add_argument("--edge-label", default="label",
-                   help="edge attribute holding labels; 'none' ignores edge labels (default: label)")
+    _add_label_options(p)
     common(p)
     p.set_defaults(func=cmd_evaluate)
 

@@ -105,6 +105,42 @@ def edge_budget(n_nodes: int, sizes: ArrayLike, n_edges: ArrayLike, weights: Arr
     return int(np.clip(n_nodes - 1 + extra, 0, n_nodes * (n_nodes - 1) // 2))
 
 
+def _prepare(
+    structure: ArrayLike,
+    node_scores: ArrayLike,
+    edge_scores: ArrayLike | None,
+    max_degree: ArrayLike | None,
+) -> tuple[NDArray[np.float64], NDArray[np.float64] | None, NDArray[np.int64], NDArray[np.int64]]:
+    """Validate a soft barycenter; return structure, edge scores, node classes, degree caps."""
+    C = np.asarray(structure, dtype=np.float64)
+    F = np.asarray(node_scores, dtype=np.float64)
+    n = C.shape[0]
+    if C.shape != (n, n) or F.ndim != 2 or F.shape[0] != n:
+        raise ValueError(
+            f"structure must be (n, n) and node_scores (n, k); got {C.shape} and {F.shape}."
+        )
+    if not (np.all(np.isfinite(C)) and np.all(np.isfinite(F))):
+        raise ValueError("the barycenter contains NaN or infinite scores; check the weights.")
+    E = None
+    if edge_scores is not None:
+        E = np.asarray(edge_scores, dtype=np.float64)
+        if E.ndim != 3 or E.shape[:2] != (n, n):
+            raise ValueError(f"edge_scores must be (n, n, L) with n={n}; got {E.shape}.")
+        if not np.all(np.isfinite(E)):
+            raise ValueError("edge_scores contain NaN or infinite values; check the barycenter.")
+    node_classes = np.argmax(F, axis=1).astype(np.int64)
+    if max_degree is None:
+        caps = np.full(n, n, dtype=np.int64)
+    else:
+        md = np.asarray(max_degree, dtype=np.int64).ravel()
+        if md.shape[0] != F.shape[1]:
+            raise ValueError(
+                f"max_degree needs one entry per node label ({F.shape[1]}); got {md.shape[0]}."
+            )
+        caps = md[node_classes]
+    return C, E, node_classes, caps
+
+
 def decode_barycenter(
     structure: ArrayLike,
     node_scores: ArrayLike,
@@ -156,32 +192,8 @@ def decode_barycenter(
     >>> out.edges.tolist(), out.node_classes.tolist()
     ([[0, 1], [0, 2]], [0, 1, 2])
     """
-    C = np.asarray(structure, dtype=np.float64)
-    F = np.asarray(node_scores, dtype=np.float64)
+    C, E, node_classes, caps = _prepare(structure, node_scores, edge_scores, max_degree)
     n = C.shape[0]
-    if C.shape != (n, n) or F.ndim != 2 or F.shape[0] != n:
-        raise ValueError(
-            f"structure must be (n, n) and node_scores (n, k); got {C.shape} and {F.shape}."
-        )
-    if not (np.all(np.isfinite(C)) and np.all(np.isfinite(F))):
-        raise ValueError("the barycenter contains NaN or infinite scores; check the weights.")
-    E = None
-    if edge_scores is not None:
-        E = np.asarray(edge_scores, dtype=np.float64)
-        if E.ndim != 3 or E.shape[:2] != (n, n):
-            raise ValueError(f"edge_scores must be (n, n, L) with n={n}; got {E.shape}.")
-        if not np.all(np.isfinite(E)):
-            raise ValueError("edge_scores contain NaN or infinite values; check the barycenter.")
-    node_classes = np.argmax(F, axis=1).astype(np.int64)
-    if max_degree is None:
-        caps = np.full(n, n, dtype=np.int64)
-    else:
-        md = np.asarray(max_degree, dtype=np.int64).ravel()
-        if md.shape[0] != F.shape[1]:
-            raise ValueError(
-                f"max_degree needs one entry per node label ({F.shape[1]}); got {md.shape[0]}."
-            )
-        caps = md[node_classes]
     iu, ju = np.triu_indices(n, 1)
     score = 0.5 * (C[iu, ju] + C[ju, iu])
     order = np.argsort(-score, kind="stable")  # strongest pairs first, ties by index
@@ -301,7 +313,9 @@ def decode_anchored(
     >>> out.edges.tolist()
     [[0, 1], [0, 2]]
     """
-    C = np.asarray(structure, dtype=np.float64)
+    C, E, node_classes, caps = _prepare(structure, node_scores, edge_scores, max_degree)
+    if E is None:
+        raise ValueError("decode_anchored needs edge_scores (labels of added edges come from there).")
     A0 = np.asarray(anchor_structure, dtype=np.float64) > 0.5
     n = C.shape[0]
     if A0.shape != (n, n) or np.shape(anchor_edge_classes) != (n, n):
@@ -311,15 +325,7 @@ def decode_anchored(
         )
     if not 0.5 <= consensus <= 1.0:
         raise ValueError(f"consensus must lie in [0.5, 1]; got {consensus}.")
-    base = decode_barycenter(C, node_scores, edge_scores, n_edges=0, connected=False, max_degree=max_degree)
-    node_classes = base.node_classes
-    E = np.asarray(edge_scores, dtype=np.float64)
     labels = np.asarray(anchor_edge_classes, dtype=np.int64).copy()
-    caps = (
-        np.full(n, n, dtype=np.int64)
-        if max_degree is None
-        else np.asarray(max_degree, dtype=np.int64)[node_classes]
-    )
     iu, ju = np.triu_indices(n, 1)
     score = 0.5 * (C[iu, ju] + C[ju, iu])
     anchor_pair = A0[iu, ju]
