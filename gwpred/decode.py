@@ -18,8 +18,17 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
+from scipy import sparse
+from scipy.optimize import Bounds, LinearConstraint, milp
 
-__all__ = ["DecodedGraph", "weighted_median", "edge_budget", "decode_barycenter", "decode_anchored"]
+__all__ = [
+    "DecodedGraph",
+    "decode_anchored",
+    "decode_barycenter",
+    "decode_valence",
+    "edge_budget",
+    "weighted_median",
+]
 
 
 @dataclass(frozen=True)
@@ -361,3 +370,290 @@ def decode_anchored(
     keep = np.flatnonzero(A[iu, ju])
     edges = np.stack([iu[keep], ju[keep]], axis=1).astype(np.int64).reshape(-1, 2)
     return DecodedGraph(node_classes, edges, labels[iu[keep], ju[keep]])
+
+
+def _int_vector(
+    name: str, value: ArrayLike, size: int, lo: int = 0
+) -> NDArray[np.int64]:
+    arr = np.asarray(value)
+    if (
+        arr.shape != (size,)
+        or (arr.size and not np.issubdtype(arr.dtype, np.integer))
+        or np.any(arr < lo)
+    ):
+        raise ValueError(
+            f"{name} must hold {size} integers >= {lo}; got {np.asarray(value).tolist()!r}."
+        )
+    return arr.astype(np.int64)
+
+
+def _feasible(
+    g: DecodedGraph,
+    valences: NDArray[np.int64],
+    orders: NDArray[np.int64],
+    counts: NDArray[np.int64] | None,
+    total: int | None,
+    connected: bool,
+) -> bool:
+    """Whether a decoded graph meets the constraints of :func:`decode_valence`."""
+    n = len(g.node_classes)
+    e = np.asarray(g.edges, dtype=np.int64).reshape(-1, 2)
+    w = orders[np.asarray(g.edge_classes, dtype=np.int64)]
+    load = np.bincount(e.ravel(), weights=np.repeat(w, 2), minlength=n)
+    if np.any(load > valences[g.node_classes]):
+        return False
+    if counts is not None and not np.array_equal(
+        np.bincount(g.node_classes, minlength=len(counts)), counts
+    ):
+        return False
+    if total is not None and int(w.sum()) != total:
+        return False
+    if connected and n > 1:
+        A = np.zeros((n, n), dtype=bool)
+        A[e[:, 0], e[:, 1]] = A[e[:, 1], e[:, 0]] = True
+        return bool(_reach(A, 0).all())
+    return True
+
+
+def decode_valence(
+    structure: ArrayLike,
+    node_scores: ArrayLike,
+    edge_scores: ArrayLike,
+    valences: ArrayLike,
+    bond_orders: ArrayLike,
+    *,
+    reference: DecodedGraph | None = None,
+    reference_weight: float = 1.0,
+    connected: bool = True,
+    label_counts: ArrayLike | None = None,
+    total_bond_order: int | None = None,
+    time_limit: float = 10.0,
+) -> DecodedGraph:
+    """Decode a barycenter into a graph that obeys valences, by an integer program.
+
+    Every node takes one label ``a`` and the bond orders of its edges sum to
+    at most ``valences[a]`` (the rest is filled by implicit hydrogens).  Among
+    such graphs (connected ones if asked, with exactly ``label_counts`` nodes
+    of each label and edge orders summing to ``total_bond_order`` if given),
+    the program picks the one of least expected edit cost under the
+    barycenter's scores, plus ``reference_weight`` per edit away from a
+    reference decoding: a valid reference comes back unchanged when the
+    weight is at least 1, an invalid one is repaired with few edits.
+
+    The expected cost of a choice counts the barycenter's scores as
+    probabilities: label ``a`` at node ``i`` costs ``1 - F[i, a]``, an edge of
+    label ``b`` at pair ``(i, j)`` costs ``1 - E[i, j, b]`` and no edge costs
+    ``C[i, j]``.  Connectivity is a single-commodity flow from node 0.
+    Solved with scipy's HiGHS ``milp``.
+
+    Parameters
+    ----------
+    structure : array-like of shape (n, n)
+        Soft adjacency ``C``.
+    node_scores : array-like of shape (n, n_node_labels)
+        Node label scores ``F``.
+    edge_scores : array-like of shape (n, n, n_edge_labels)
+        Edge label scores ``E``.
+    valences : array-like of int, shape (n_node_labels,)
+        Largest total bond order per node label.
+    bond_orders : array-like of int, shape (n_edge_labels,)
+        Bond order of each edge label (1 for unlabeled edges).
+    reference : DecodedGraph, default=None
+        A decoding to stay close to.
+    reference_weight : float, default=1.0
+        Cost of each node-label or edge edit away from ``reference``.
+    connected : bool, default=True
+        Require a connected graph.
+    label_counts : array-like of int, shape (n_node_labels,), default=None
+        Exact number of nodes per label (from a molecular formula); must sum
+        to ``n``.
+    total_bond_order : int, default=None
+        Exact sum of the bond orders of all edges (fixed by a formula's
+        hydrogen count: ``(sum of valences - hydrogens) / 2``).
+    time_limit : float, default=10.0
+        Seconds for the solver; the best graph found by then is returned.
+
+    Returns
+    -------
+    DecodedGraph
+
+    Raises
+    ------
+    ValueError
+        On inconsistent shapes or values, or when no graph satisfies the
+        constraints (for example a formula whose hydrogen count no connected
+        graph of its atoms can have).
+
+    Examples
+    --------
+    Three carbons and an oxygen, where the barycenter half-suggests a fourth
+    bond at the oxygen; valence 2 rules the third bond at the oxygen out:
+
+    >>> import numpy as np
+    >>> C = np.zeros((4, 4)); C[0, 1] = C[1, 2] = C[0, 3] = C[2, 3] = C[1, 3] = 0.9
+    >>> C = C + C.T; E = C[:, :, None]
+    >>> F = np.array([[1, 0], [1, 0], [1, 0], [0, 1.0]])  # labels C, O
+    >>> out = decode_valence(C, F, E, valences=[4, 2], bond_orders=[1])
+    >>> int((out.edges == 3).sum())
+    2
+    """
+    C, E, _, _ = _prepare(structure, node_scores, edge_scores, None)
+    if E is None:
+        raise ValueError("decode_valence needs edge_scores.")
+    F = np.asarray(node_scores, dtype=np.float64)
+    n, K = F.shape
+    L = E.shape[2]
+    val = _int_vector("valences", valences, K)
+    order = _int_vector("bond_orders", bond_orders, L, lo=1)
+    if not (np.isfinite(reference_weight) and reference_weight >= 0):
+        raise ValueError(
+            f"reference_weight must be a non-negative number; got {reference_weight!r}."
+        )
+    iu, ju = np.triu_indices(n, 1)
+    P = len(iu)
+    Cp = 0.5 * (C[iu, ju] + C[ju, iu])
+    Ep = 0.5 * (E[iu, ju] + E[ju, iu])  # (P, L)
+    # ---- costs: expected edit cost, plus edits away from the reference
+    cx = 1.0 - F
+    cy = 1.0 - Ep - Cp[:, None]
+    if reference is not None:
+        ref_nodes = np.asarray(reference.node_classes, dtype=np.int64)
+        if ref_nodes.shape != (n,):
+            raise ValueError(
+                f"reference has {ref_nodes.shape[0]} nodes; the barycenter has {n}."
+            )
+        cx = cx + reference_weight * (np.arange(K)[None, :] != ref_nodes[:, None])
+        ref_edge = np.full(P, -1, dtype=np.int64)
+        if len(reference.edges):
+            e = np.sort(np.asarray(reference.edges, dtype=np.int64), axis=1)
+            pos = e[:, 0] * n - e[:, 0] * (e[:, 0] + 1) // 2 + (e[:, 1] - e[:, 0] - 1)
+            ref_edge[pos] = reference.edge_classes
+        has = ref_edge >= 0
+        # an edge of label b: +1 edit unless the reference has exactly it;
+        # no edge: +1 edit where the reference has one (moved into cy as -1)
+        cy = cy + reference_weight * (
+            (np.arange(L)[None, :] != ref_edge[:, None]).astype(float) - has[:, None]
+        )
+    use_flow = connected and n > 1
+    if label_counts is not None:
+        counts = _int_vector("label_counts", label_counts, K)
+        if counts.sum() != n:
+            raise ValueError(
+                f"label_counts sum to {counts.sum()}, but the barycenter has {n} nodes."
+            )
+    if (
+        reference is not None
+        and reference_weight >= 1.0
+        and _feasible(
+            reference,
+            val,
+            order,
+            counts if label_counts is not None else None,
+            total_bond_order,
+            use_flow,
+        )
+    ):
+        # every single edit away from the reference gains at most 1 in expected
+        # cost and pays reference_weight >= 1: the reference is optimal
+        return reference
+    nx_, ny = n * K, P * L
+    nf = 2 * P if use_flow else 0
+    nv = nx_ + ny + nf
+    cost = np.concatenate([cx.ravel(), cy.ravel(), np.zeros(nf)])
+    # constraint matrix as COO triplets, one block of rows at a time
+    r_i: list[NDArray[np.int64]] = []
+    c_i: list[NDArray[np.int64]] = []
+    v_i: list[NDArray[np.float64]] = []
+    lo: list[NDArray[np.float64]] = []
+    hi: list[NDArray[np.float64]] = []
+    n_rows = 0
+
+    def add(
+        rr: ArrayLike,
+        cc: ArrayLike,
+        vv: ArrayLike,
+        m: int,
+        low: ArrayLike,
+        high: ArrayLike,
+    ) -> None:
+        nonlocal n_rows
+        rr, cc = np.asarray(rr, np.int64), np.asarray(cc, np.int64)
+        r_i.append(rr + n_rows)
+        c_i.append(cc)
+        v_i.append(np.broadcast_to(np.asarray(vv, float), rr.shape))
+        lo.append(np.broadcast_to(np.asarray(low, float), (m,)))
+        hi.append(np.broadcast_to(np.asarray(high, float), (m,)))
+        n_rows += m
+
+    xi = np.arange(nx_).reshape(n, K)  # variable index of x[i, a]
+    yi = nx_ + np.arange(ny).reshape(P, L)  # of y[p, b]
+    add(np.repeat(np.arange(n), K), xi.ravel(), 1.0, n, 1, 1)  # one label per node
+    add(np.repeat(np.arange(P), L), yi.ravel(), 1.0, P, 0, 1)  # one edge label at most
+    # valence: bond orders at node i minus its label's valence <= 0
+    ends = np.r_[iu, ju]
+    add(
+        np.r_[np.repeat(np.arange(n), K), np.repeat(ends, L)],
+        np.r_[xi.ravel(), np.tile(yi, (2, 1)).ravel()],
+        np.r_[-np.tile(val, n).astype(float), np.tile(order, 2 * P).astype(float)],
+        n,
+        -np.inf,
+        0,
+    )
+    if label_counts is not None:
+        add(np.tile(np.arange(K), n), xi.ravel(), 1.0, K, counts, counts)
+    if total_bond_order is not None:
+        t = float(total_bond_order)
+        add(
+            np.zeros(ny, np.int64), yi.ravel(), np.tile(order, P).astype(float), 1, t, t
+        )
+    if use_flow:
+        # arcs a < P: iu -> ju, a >= P: ju -> iu; inflow - outflow = 1 at every
+        # node but the root, which sends n - 1; capacity (n - 1) per edge
+        fi = nx_ + ny + np.arange(nf)
+        tail, head = np.r_[iu, ju], np.r_[ju, iu]
+        demand = np.ones(n)
+        demand[0] = -(n - 1)
+        add(
+            np.r_[head, tail],
+            np.r_[fi, fi],
+            np.r_[np.ones(nf), -np.ones(nf)],
+            n,
+            demand,
+            demand,
+        )
+        arc = np.arange(nf)
+        add(
+            np.r_[arc, np.repeat(arc, L)],
+            np.r_[fi, np.tile(yi, (2, 1)).ravel()],
+            np.r_[np.ones(nf), np.full(nf * L, -(n - 1.0))],
+            nf,
+            -np.inf,
+            0,
+        )
+    A = sparse.csr_matrix(
+        (np.concatenate(v_i), (np.concatenate(r_i), np.concatenate(c_i))),
+        shape=(n_rows, nv),
+    )
+    integrality = np.r_[np.ones(nx_ + ny), np.zeros(nf)]
+    upper = np.r_[np.ones(nx_ + ny), np.full(nf, n - 1.0)]
+    res = milp(
+        cost,
+        constraints=LinearConstraint(A, np.concatenate(lo), np.concatenate(hi)),
+        integrality=integrality,
+        bounds=Bounds(np.zeros(nv), upper),
+        options={"time_limit": float(time_limit)},
+    )
+    if res.x is None:
+        raise ValueError(
+            "no graph satisfies the valence constraints"
+            + (", the label counts" if label_counts is not None else "")
+            + (", the total bond order" if total_bond_order is not None else "")
+            + (" and connectivity" if use_flow else "")
+            + f" ({res.message.strip()}); check the formula or the valence table."
+        )
+    x = np.round(res.x[:nx_]).reshape(n, K)
+    y = np.round(res.x[nx_ : nx_ + ny]).reshape(P, L)
+    node_classes = x.argmax(1).astype(np.int64)
+    keep = np.flatnonzero(y.sum(1) > 0.5)
+    edges = np.stack([iu[keep], ju[keep]], axis=1).astype(np.int64).reshape(-1, 2)
+    return DecodedGraph(node_classes, edges, y[keep].argmax(1).astype(np.int64))

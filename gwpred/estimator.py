@@ -19,8 +19,16 @@ from sklearn.utils import check_random_state
 from sklearn.utils.validation import check_is_fitted
 
 from .codec import LabelSpace
-from .decode import decode_anchored, decode_barycenter, edge_budget, weighted_median
+from .decode import (
+    DecodedGraph,
+    decode_anchored,
+    decode_barycenter,
+    decode_valence,
+    edge_budget,
+    weighted_median,
+)
 from .fgw import fgw_barycenter, transport_average
+from .formula import Formula, parse_formula, valence_table
 from .weights import KERNELS, KernelRidgeWeights, sparsify
 
 __all__ = ["BarycenterGraphPredictor", "SoftGraph"]
@@ -134,6 +142,13 @@ class BarycenterGraphPredictor(BaseEstimator):
         lower mean GED.
     consensus : float, default=0.8
         Agreement needed for ``anchored`` decoding to change an anchor edge.
+    valence : bool or dict, default=False
+        Molecules: decode graphs whose atoms keep their valences (node labels
+        are element symbols, edge labels bond orders 1/2/3; neutral atoms:
+        C 4, N 3, O 2, F 1, other elements from RDKit), connected, and as close
+        as possible to the ordinary decoding (an integer program, see
+        :func:`~gwpred.decode.decode_valence`).  A dict maps labels to
+        valences of your own.  Always on for inputs given a formula.
     node_label, edge_label : str, default="label"
         Graph attributes that hold node and edge labels (``edge_label=None``
         ignores edge labels).
@@ -187,6 +202,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         connect: str | bool = "auto",
         decoding: str = "anchored",
         consensus: float = 0.8,
+        valence: bool | dict = False,
         node_label: str = "label",
         edge_label: str | None = "label",
         handle_unknown: str = "error",
@@ -207,6 +223,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         self.connect = connect
         self.decoding = decoding
         self.consensus = consensus
+        self.valence = valence
         self.node_label = node_label
         self.edge_label = edge_label
         self.handle_unknown = handle_unknown
@@ -238,6 +255,10 @@ class BarycenterGraphPredictor(BaseEstimator):
             raise ValueError(f"connect must be one of ['auto', True, False]; got {self.connect!r}.")
         choice("decoding", ("anchored", "free"))
         choice("handle_unknown", ("error", "ignore"))
+        if not isinstance(self.valence, (bool, dict)):
+            raise TypeError(
+                f"valence must be True, False or a dict of label -> valence; got {self.valence!r}."
+            )
         for name in ("top_k", "max_outer", "max_inner"):
             positive_int(name)
         real("alpha", 0.0, 1.0)
@@ -307,6 +328,16 @@ class BarycenterGraphPredictor(BaseEstimator):
             cls = e.features[:, : self.labels_.n_node_labels].argmax(1)
             np.maximum.at(deg, cls, e.structure.sum(1).astype(np.int64))
         self.max_degree_ = deg
+        self._label_counts = np.array(
+            [
+                np.bincount(
+                    e.features[:, : self.labels_.n_node_labels].argmax(1),
+                    minlength=self.labels_.n_node_labels,
+                )
+                for e in encoded
+            ],
+            dtype=np.int64,
+        ).reshape(len(encoded), self.labels_.n_node_labels)
         self.connected_ = all(nx.is_connected(g) for g in graphs)
         seed = 0 if self.random_state is None else check_random_state(self.random_state).randint(2**31 - 1)
         self.weights_ = KernelRidgeWeights(
@@ -329,10 +360,25 @@ class BarycenterGraphPredictor(BaseEstimator):
             )
         return sparsify(self.weights_.raw_weights(X), self.top_k)
 
-    def _solve_one(self, idx: NDArray[np.int64], w: NDArray[np.float64]) -> SoftGraph:
+    def _solve_one(
+        self,
+        idx: NDArray[np.int64],
+        w: NDArray[np.float64],
+        counts: NDArray[np.int64] | None = None,
+    ) -> SoftGraph:
         sizes = self.sizes_[idx]
-        n = int(weighted_median(sizes, w)) if self.n_nodes == "vote" else int(self.n_nodes)
+        if counts is not None:  # a formula fixes the size
+            n = int(counts.sum())
+        else:
+            n = (
+                int(weighted_median(sizes, w))
+                if self.n_nodes == "vote"
+                else int(self.n_nodes)
+            )
         same = np.flatnonzero(sizes == n)
+        if counts is not None:  # prefer neighbours with the formula's heavy atoms
+            exact = np.flatnonzero((self._label_counts[idx] == counts).all(1))
+            same = exact if exact.size else same
         # start from the highest-weight graph of the chosen size (a real graph:
         # a constant start leaves all plans uniform); else the closest in size
         pos = same[0] if same.size else int(np.argmin(np.abs(sizes - n)))
@@ -375,27 +421,135 @@ class BarycenterGraphPredictor(BaseEstimator):
 
         return tqdm(items, total=total, desc=desc, unit="graph")
 
-    def predict_barycenters(self, X: ArrayLike) -> list[SoftGraph]:
+    def _check_formulas(self, formulas: Any, n_rows: int) -> list[Formula | None]:
+        """Parse per-row formulas; check length and that every element was seen in training."""
+        if formulas is None:
+            return [None] * n_rows
+        if isinstance(formulas, (str, Formula)):
+            raise TypeError(
+                "formulas must be a list with one formula (or None) per input row, not a single string."
+            )
+        formulas = list(formulas)
+        if len(formulas) != n_rows:
+            raise ValueError(
+                f"X has {n_rows} rows but {len(formulas)} formulas were given; pass one formula "
+                "(or None) per row."
+            )
+        known = set(self.labels_.node_labels_)
+        out: list[Formula | None] = []
+        for r, f in enumerate(formulas):
+            if f is None or (isinstance(f, str) and not f.strip()):
+                out.append(None)
+                continue
+            try:
+                parsed = f if isinstance(f, Formula) else parse_formula(f)
+            except (TypeError, ValueError) as exc:
+                raise ValueError(f"formulas[{r}]: {exc}") from None
+            unknown = sorted(set(parsed.heavy) - known)
+            if unknown:
+                raise ValueError(
+                    f"formulas[{r}] ({parsed.text}) holds {unknown}, never seen as a node label in "
+                    f"training (known: {sorted(map(str, known))}); the model cannot place them."
+                )
+            out.append(parsed)
+        return out
+
+    def _formula_counts(self, f: Formula | None) -> NDArray[np.int64] | None:
+        if f is None:
+            return None
+        return np.array(
+            [f.heavy.get(lab, 0) for lab in self.labels_.node_labels_], dtype=np.int64
+        )
+
+    def predict_barycenters(
+        self, X: ArrayLike, formulas: Any = None
+    ) -> list[SoftGraph]:
         """Soft barycenters for new inputs, before decoding (for inspection).
 
         Parameters
         ----------
         X : array-like of shape (n_queries, n_features)
+        formulas : list of (str or None), default=None
+            Per row, a molecular formula (see :meth:`predict`); it fixes the
+            barycenter's size to the formula's number of heavy atoms.
 
         Returns
         -------
         list of SoftGraph
         """
         idx, w = self._neighbors(X)
-        rows = self._progress(zip(idx, w), len(idx), "barycenters")
-        return [self._solve_one(i[ww > 0], ww[ww > 0]) for i, ww in rows]
+        parsed = self._check_formulas(formulas, len(idx))
+        rows = self._progress(zip(idx, w, parsed), len(idx), "barycenters")
+        return [
+            self._solve_one(i[ww > 0], ww[ww > 0], self._formula_counts(f))
+            for i, ww, f in rows
+        ]
 
-    def _decode(self, soft: SoftGraph) -> nx.Graph:
+    def _valence_arrays(self) -> tuple[list[int], list[int]]:
+        """Valence per node label and bond order per edge label, for valence decoding."""
+        table = self.valence if isinstance(self.valence, dict) else None
+        valences = valence_table(self.labels_.node_labels_, table)
+        orders = []
+        for lab in self.labels_.edge_labels_:
+            if lab is None:
+                orders.append(1)
+            elif (
+                isinstance(lab, numbers.Integral)
+                and not isinstance(lab, bool)
+                and 1 <= lab <= 3
+            ):
+                orders.append(int(lab))
+            else:
+                raise ValueError(
+                    f"valence decoding needs bond orders 1, 2 or 3 as edge labels; the training graphs "
+                    f"have edge label {lab!r} (attribute {self.edge_label!r})."
+                )
+        return valences, orders
+
+    def _decode(self, soft: SoftGraph, formula: Formula | None = None) -> nx.Graph:
+        out = self._decode_plain(soft)
+        if not (self.valence or formula is not None):
+            return self.labels_.build_graph(
+                out.node_classes, out.edges, out.edge_classes
+            )
+        valences, orders = self._valence_arrays()
+        counts = self._formula_counts(formula)
+        total = None
+        if formula is not None and formula.hydrogens is not None:
+            free = int(np.dot(counts, valences)) - formula.hydrogens
+            if free < 0 or free % 2:
+                raise ValueError(
+                    f"formula {formula.text}: {formula.hydrogens} hydrogens leave "
+                    f"{free} valences for bonds between heavy atoms, which is "
+                    + ("negative" if free < 0 else "odd (a radical or an ion)")
+                    + "; gwpred decodes neutral closed-shell molecules."
+                )
+            total = free // 2
+        connect = self.connected_ if self.connect == "auto" else bool(self.connect)
+        k = self.labels_.n_node_labels
+        try:
+            out = decode_valence(
+                soft.structure,
+                soft.node_scores[:, :k],
+                soft.edge_scores,
+                valences,
+                orders,
+                reference=out,
+                connected=connect,
+                label_counts=counts,
+                total_bond_order=total,
+            )
+        except ValueError as exc:
+            where = f"formula {formula.text}: " if formula is not None else ""
+            raise ValueError(f"{where}{exc}") from None
+        return self.labels_.build_graph(out.node_classes, out.edges, out.edge_classes)
+
+    def _decode_plain(self, soft: SoftGraph) -> DecodedGraph:
         n = soft.structure.shape[0]
         connect = self.connected_ if self.connect == "auto" else bool(self.connect)
         k = self.labels_.n_node_labels
         if self.decoding == "anchored":
-            out = decode_anchored(
+            return decode_anchored(
                 soft.structure,
                 soft.node_scores[:, :k],
                 soft.edge_scores,
@@ -405,11 +559,15 @@ class BarycenterGraphPredictor(BaseEstimator):
                 connected=connect,
                 max_degree=self.max_degree_,
             )
-            return self.labels_.build_graph(out.node_classes, out.edges, out.edge_classes)
         budget = None
         if self.edges == "budget":
-            budget = edge_budget(n, self.sizes_[soft.neighbors], self.n_edges_[soft.neighbors], soft.weights)
-        out = decode_barycenter(
+            budget = edge_budget(
+                n,
+                self.sizes_[soft.neighbors],
+                self.n_edges_[soft.neighbors],
+                soft.weights,
+            )
+        return decode_barycenter(
             soft.structure,
             soft.node_scores[:, :k],
             soft.edge_scores,
@@ -417,14 +575,19 @@ class BarycenterGraphPredictor(BaseEstimator):
             connected=connect,
             max_degree=self.max_degree_,
         )
-        return self.labels_.build_graph(out.node_classes, out.edges, out.edge_classes)
 
-    def predict(self, X: ArrayLike) -> list[nx.Graph]:
+    def predict(self, X: ArrayLike, formulas: Any = None) -> list[nx.Graph]:
         """Predict one labeled graph per input row.
 
         Parameters
         ----------
         X : array-like of shape (n_queries, n_features)
+        formulas : list of (str or None), default=None
+            Molecules: per row, the molecular formula of the unknown (e.g.
+            ``"C4H6O2"``, as from a mass measurement) or None.  The predicted
+            graph then has exactly the formula's heavy atoms, obeys valences
+            and, when the formula gives hydrogens, has the matching number of
+            implicit hydrogens (hence degree of unsaturation).
 
         Returns
         -------
@@ -437,9 +600,13 @@ class BarycenterGraphPredictor(BaseEstimator):
         sklearn.exceptions.NotFittedError
             Before ``fit``.
         ValueError
-            For non-finite inputs or a wrong number of columns.
+            For non-finite inputs, a wrong number of columns, or a formula
+            that cannot be read, holds elements unseen in training, or that
+            no connected molecule of its atoms can have.
         """
-        return [self._decode(soft) for soft in self.predict_barycenters(X)]
+        softs = self.predict_barycenters(X, formulas)
+        parsed = self._check_formulas(formulas, len(softs))
+        return [self._decode(soft, f) for soft, f in zip(softs, parsed)]
 
     def score(self, X: ArrayLike, graphs: list[nx.Graph]) -> float:
         """Negative mean graph edit distance to the true graphs (higher is better).
