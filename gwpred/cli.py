@@ -10,8 +10,9 @@ import argparse
 import json
 import sys
 import time
+from collections.abc import Sequence
 from pathlib import Path
-from typing import Any, Sequence
+from typing import Any
 
 import numpy as np
 
@@ -35,6 +36,7 @@ def _model_params(args: argparse.Namespace) -> dict[str, Any]:
         "alpha": args.alpha,
         "decoding": args.decoding,
         "consensus": args.consensus,
+        "valence": args.valence,
         "node_label": args.node_label,
         "edge_label": _edge_label(args),
         "random_state": args.seed,
@@ -69,6 +71,9 @@ def _add_model_options(p: argparse.ArgumentParser) -> None:
                    help="decode as edits of the start graph (anchored) or from the barycenter alone (free)")
     g.add_argument("--consensus", type=float, default=0.8,
                    help="agreement needed to edit the start graph's edges, in [0.5, 1] (default: 0.8)")
+    g.add_argument("--valence", action="store_true",
+                   help="molecules: decode graphs that obey valences (C 4, N 3, O 2, F 1; node labels are "
+                        "element symbols, edge labels bond orders)")
     _add_label_options(g)
     g.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
 
@@ -101,12 +106,30 @@ def cmd_fit(args: argparse.Namespace) -> int:
 
 
 def cmd_predict(args: argparse.Namespace) -> int:
-    from .io import load_model, read_features, write_graphs
+    from .io import (
+        MOLECULE_EXTENSIONS,
+        load_model,
+        read_features,
+        read_formulas,
+        write_graphs,
+    )
 
     model = load_model(args.model)
     model.set_params(verbose=not args.quiet)
     X = read_features(args.features)
-    graphs = model.predict(X)
+    formulas = None
+    if args.formulas:
+        formulas = read_formulas(args.formulas, args.formula_column)
+        if len(formulas) != X.shape[0]:
+            raise UsageError(
+                f"{args.formulas} holds {len(formulas)} formulas but {args.features} has {X.shape[0]} "
+                "rows; give one formula (or an empty cell) per input row"
+            )
+    if Path(args.out).suffix.lower() in MOLECULE_EXTENSIONS and not model.valence:
+        # molecule files hold valid molecules only: decode with valences
+        model.set_params(valence=True)
+        print(f"writing molecules ({Path(args.out).suffix}): decoding with valence rules (as fit --valence)")
+    graphs = model.predict(X, formulas=formulas)
     write_graphs(args.out, graphs)
     print(f"{len(graphs)} predicted graphs written to {args.out}")
     print(CAUTION)
@@ -223,7 +246,8 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("fit", help="learn from a features file and a graphs file; save a model",
                        description="Learn from (vector, graph) pairs and save the model (.npz, no pickle).")
     p.add_argument("--features", required=True, help="inputs: .csv/.tsv (optional header, optional id column) or .npy")
-    p.add_argument("--graphs", required=True, help="training graphs, one per input row: .jsonl (node-link) or .graphml")
+    p.add_argument("--graphs", required=True, help="training graphs, one per input row: .jsonl (node-link) or .graphml; "
+                   "molecules as .smi, .sdf or .mol (needs RDKit: pip install 'gwpred[chem]')")
     p.add_argument("--model", required=True, help="model file to write (.npz)")
     _add_model_options(p)
     common(p)
@@ -233,15 +257,20 @@ def build_parser() -> argparse.ArgumentParser:
                        description="Predict one labeled graph per input row.")
     p.add_argument("--model", required=True, help="model file written by 'gwpred fit'")
     p.add_argument("--features", required=True, help="inputs (.csv/.tsv/.npy), same columns as in fit")
-    p.add_argument("--out", required=True, help="graph file to write (.jsonl or .graphml)")
+    p.add_argument("--out", required=True, help="graph file to write: .jsonl, .graphml, or molecules as .smi/.sdf (needs gwpred[chem])")
+    p.add_argument("--formulas", metavar="FILE",
+                   help="molecular formulas of the unknowns, one per input row (e.g. C4H6O2; hydrogens optional): "
+                        ".csv/.tsv with a formula column, or .txt with one per line; an empty cell leaves a row free")
+    p.add_argument("--formula-column", default="formula",
+                   help="header of the formula column in --formulas (default: formula)")
     common(p)
     p.set_defaults(func=cmd_predict)
 
     p = sub.add_parser("evaluate", help="score predicted graphs against true graphs (GED, exact match)",
                        description="Graph edit distance (uniform costs), exact match, right size, connectivity, "
                                    "node label accuracy and edge precision/recall/F1 under the GED node map.")
-    p.add_argument("predicted", help="predicted graphs (.jsonl/.graphml)")
-    p.add_argument("truth", help="true graphs, same order (.jsonl/.graphml)")
+    p.add_argument("predicted", help="predicted graphs (.jsonl/.graphml/.smi/.sdf/.mol)")
+    p.add_argument("truth", help="true graphs, same order (.jsonl/.graphml/.smi/.sdf/.mol)")
     p.add_argument("--time-limit", type=float, default=10.0,
                    help="seconds per GED before settling for bounds (default: 10)")
     p.add_argument("--summary", help="write the summary as JSON here")
@@ -275,7 +304,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 2
     try:
         return int(args.func(args))
-    except (UsageError, ValueError, TypeError, FileNotFoundError, IsADirectoryError, PermissionError) as err:
+    except (UsageError, ValueError, TypeError, ImportError, FileNotFoundError, IsADirectoryError,
+            PermissionError) as err:
         print(f"gwpred {args.command}: error: {err}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:

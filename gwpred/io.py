@@ -4,7 +4,12 @@ This module only moves data between files and Python objects; it does no
 computation.
 
 * Graph collections: JSON Lines of node-link records (``.jsonl``) or one
-  GraphML document holding several ``<graph>`` elements (``.graphml``).
+  GraphML document holding several ``<graph>`` elements (``.graphml``);
+  molecules as SMILES files (``.smi``), SDF files (``.sdf``) or single MOL
+  files (``.mol``, read only). The molecule formats go through
+  :mod:`gwpred.chem` and need RDKit, the optional extra ``chem``
+  (``pip install 'gwpred[chem]'``), which is imported only when such a file
+  is read or written.
 * Feature matrices: ``.npy`` (loaded without pickle) or delimited text
   (``.csv`` / ``.tsv``) with an optional header row and ``id`` column.
 * Model archives: one ``.npz`` (zip of ``.npy`` members) with a JSON manifest
@@ -24,6 +29,7 @@ import json
 import os
 import re
 import secrets
+import tokenize
 import zipfile
 import zlib
 from collections.abc import Iterable, Iterator, Mapping, Sequence
@@ -40,11 +46,13 @@ __all__ = [
     "ARCHIVE_FORMAT",
     "ARCHIVE_VERSION",
     "GRAPH_EXTENSIONS",
+    "MOLECULE_EXTENSIONS",
     "FEATURE_EXTENSIONS",
     "read_graphs",
     "write_graphs",
     "read_features",
     "write_features",
+    "read_formulas",
     "save_archive",
     "load_archive",
     "save_model",
@@ -57,8 +65,12 @@ StrPath = Union[str, "os.PathLike[str]"]
 ARCHIVE_FORMAT = "gwpred-model"
 #: Newest archive layout this version of gwpred writes and reads.
 ARCHIVE_VERSION = 1
-#: Graph file extensions understood by :func:`read_graphs` / :func:`write_graphs`.
-GRAPH_EXTENSIONS = (".jsonl", ".graphml")
+#: Graph file extensions understood by :func:`read_graphs` / :func:`write_graphs`:
+#: node-link JSON Lines, GraphML, and (with RDKit, extra ``chem``) SMILES files,
+#: SDF files and MOL files. ``.mol`` is read only; write molecules as ``.sdf``.
+GRAPH_EXTENSIONS = (".jsonl", ".graphml", ".smi", ".sdf", ".mol")
+#: Molecule file extensions, handled by :mod:`gwpred.chem` (needs RDKit).
+MOLECULE_EXTENSIONS = (".smi", ".sdf", ".mol")
 #: Feature file extensions understood by :func:`read_features` / :func:`write_features`.
 FEATURE_EXTENSIONS = (".npy", ".csv", ".tsv")
 
@@ -318,15 +330,32 @@ def _read_graphml(path: Path) -> list[nx.Graph]:
     return graphs
 
 
+def _chem(ext: str) -> Any:
+    """Return :mod:`gwpred.chem` once RDKit is known to import; else an ImportError naming the extra."""
+    from . import chem
+
+    try:
+        chem._rdkit()
+    except ImportError as err:
+        raise ImportError(
+            f"{ext} graph files are read and written with RDKit, the optional extra 'chem' of "
+            "gwpred; install with pip install 'gwpred[chem]' (or use .jsonl / .graphml files)"
+        ) from err
+    return chem
+
+
 def read_graphs(path: StrPath) -> list[nx.Graph]:
-    """Read a collection of labeled graphs from a ``.jsonl`` or ``.graphml`` file.
+    """Read a collection of labeled graphs from a graph or molecule file.
 
     Parameters
     ----------
     path : str or os.PathLike
         File to read. The extension selects the format: ``.jsonl`` (one
-        node-link JSON record per line) or ``.graphml`` (one GraphML document
-        holding any number of ``<graph>`` elements).
+        node-link JSON record per line), ``.graphml`` (one GraphML document
+        holding any number of ``<graph>`` elements), ``.smi`` (one SMILES per
+        line, see :func:`gwpred.chem.read_smiles_file`), ``.sdf`` (any number
+        of MOL records) or ``.mol`` (one MOL record; both see
+        :func:`gwpred.chem.read_sdf`).
 
     Returns
     -------
@@ -337,13 +366,23 @@ def read_graphs(path: StrPath) -> list[nx.Graph]:
     ------
     ValueError
         If the extension is not supported, a JSON line is malformed or not a
-        node-link record (the message names the file and line number), or the
-        GraphML document is invalid.
+        node-link record (the message names the file and line number), the
+        GraphML document is invalid, a SMILES line is rejected (file and line
+        number) or an SDF/MOL record is rejected (file and record number).
     FileNotFoundError
         If ``path`` does not exist.
+    ImportError
+        If a ``.smi``, ``.sdf`` or ``.mol`` file is read without RDKit
+        installed (``pip install 'gwpred[chem]'``).
 
     Notes
     -----
+    Molecule files give heavy-atom graphs: node attribute ``"label"`` the
+    element symbol, ``"charge"`` the formal charge, edge attribute
+    ``"label"`` the kekulé bond order 1, 2 or 3, hydrogens implicit; the
+    molecule's name becomes the graph attribute ``"name"`` (see
+    :mod:`gwpred.chem` for what else is kept and what is dropped).
+
     JSON Lines: blank lines are skipped. Each record is what
     :func:`networkx.node_link_data` produces with ``edges="edges"``; records
     with a ``"links"`` list (older networkx default) are accepted too. Keys of a
@@ -380,17 +419,24 @@ def read_graphs(path: StrPath) -> list[nx.Graph]:
     _require_file(p, "graph")
     if ext == ".jsonl":
         return _read_jsonl(p)
+    if ext == ".smi":
+        return _chem(ext).read_smiles_file(p)
+    if ext in (".sdf", ".mol"):
+        return _chem(ext).read_sdf(p)
     return _read_graphml(p)
 
 
 def write_graphs(path: StrPath, graphs: Iterable[nx.Graph]) -> None:
-    """Write a collection of labeled graphs to a ``.jsonl`` or ``.graphml`` file.
+    """Write a collection of labeled graphs to a graph or molecule file.
 
     Parameters
     ----------
     path : str or os.PathLike
-        Target file; the extension selects the format (see :func:`read_graphs`).
-        An existing file is replaced.
+        Target file; the extension selects the format (see :func:`read_graphs`):
+        ``.jsonl``, ``.graphml``, ``.smi`` (canonical SMILES, see
+        :func:`gwpred.chem.write_smiles_file`) or ``.sdf`` (MOL records with
+        2D coordinates, see :func:`gwpred.chem.write_sdf`). ``.mol`` is read
+        only. An existing file is replaced.
     graphs : iterable of networkx.Graph
         Graphs to write, with their node, edge and graph attributes. Directed
         graphs and multigraphs are written as such.
@@ -402,10 +448,12 @@ def write_graphs(path: StrPath, graphs: Iterable[nx.Graph]) -> None:
     Raises
     ------
     ValueError
-        If the extension is not supported, ``graphs`` holds something that is
-        not a networkx graph, a node has an attribute named ``id`` or an edge
-        one named ``source``/``target`` (JSON Lines: these names are taken by
-        the node-link layout), or an attribute is NaN/infinite (JSON Lines).
+        If the extension is not supported (or is ``.mol``), ``graphs`` holds
+        something that is not a networkx graph, a node has an attribute named
+        ``id`` or an edge one named ``source``/``target`` (JSON Lines: these
+        names are taken by the node-link layout), an attribute is
+        NaN/infinite (JSON Lines), or a graph is not a valid heavy-atom
+        molecule (``.smi``/``.sdf``; the message names ``graphs[i]``).
     TypeError
         If an attribute value cannot be stored in the chosen format (JSON
         Lines: JSON types and numpy scalars; GraphML: int, float, str, bool),
@@ -414,9 +462,19 @@ def write_graphs(path: StrPath, graphs: Iterable[nx.Graph]) -> None:
         all be integer literals such as ``"7"``).
     FileNotFoundError
         If the target directory does not exist.
+    ImportError
+        If a ``.smi`` or ``.sdf`` file is written without RDKit installed
+        (``pip install 'gwpred[chem]'``).
 
     Notes
     -----
+    Molecule files hold heavy-atom graphs only (node ``"label"`` element
+    symbol, optional node ``"charge"``, edge ``"label"`` bond order 1, 2 or
+    3). ``.smi`` keeps the molecule and its ``"name"`` but not the atom order,
+    the kekulé structure or other attributes; ``.sdf`` keeps atom order and
+    bond orders, and stores the other graph attributes as SD data fields
+    (read back as text).
+
     The file is first written to a temporary file in the same directory and
     then moved into place with :func:`os.replace`. For GraphML the graph
     attribute ``"id"`` is stored as the standard ``<graph id="...">``
@@ -433,6 +491,11 @@ def write_graphs(path: StrPath, graphs: Iterable[nx.Graph]) -> None:
     """
     p = Path(path)
     ext = _extension(p, GRAPH_EXTENSIONS, "graph")
+    if ext == ".mol":
+        raise ValueError(
+            f"cannot write {str(p)!r}: a .mol file holds one molecule and is read only in gwpred; "
+            "write an .sdf file instead (it holds any number of molecules)"
+        )
     graphs = list(graphs)
     for i, G in enumerate(graphs):
         if not isinstance(G, nx.Graph):
@@ -441,6 +504,10 @@ def write_graphs(path: StrPath, graphs: Iterable[nx.Graph]) -> None:
             )
     if ext == ".jsonl":
         _write_jsonl(p, graphs)
+    elif ext == ".smi":
+        _chem(ext).write_smiles_file(p, graphs)
+    elif ext == ".sdf":
+        _chem(ext).write_sdf(p, graphs)
     else:
         _write_graphml(p, graphs)
 
@@ -626,6 +693,70 @@ def read_features(
     else:
         X, ids = _read_delimited(p, "," if ext == ".csv" else "\t")
     return (X, ids) if return_ids else X
+
+
+def read_formulas(path: StrPath, column: str = "formula") -> list[str | None]:
+    """Read one molecular formula per input row.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        ``.csv`` / ``.tsv`` file with a header row holding ``column`` (other
+        columns are ignored, so the features file itself can carry the
+        formulas), or ``.txt`` with one formula per line.  An empty cell or
+        line, or ``-``, means no formula for that row.
+    column : str, default="formula"
+        Header of the formula column (case-insensitive).
+
+    Returns
+    -------
+    list of (str or None)
+
+    Raises
+    ------
+    ValueError
+        For a missing column, ragged rows, or a file that is not UTF-8.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     p = os.path.join(d, "x.csv")
+    ...     _ = open(p, "w").write("id,formula,f1\\na,C2H6O,0.5\\nb,,0.1\\n")
+    ...     read_formulas(p)
+    ['C2H6O', None]
+    """
+    p = Path(path)
+    ext = _extension(p, (".csv", ".tsv", ".txt"), "formula")
+    _require_file(p, "formula")
+    where = repr(str(p))
+    try:
+        text = p.read_text(encoding="utf-8")
+    except UnicodeDecodeError as err:
+        raise ValueError(f"{where} is not UTF-8 text ({err}); save the file as UTF-8") from err
+
+    def cell(v: str) -> str | None:
+        v = v.strip()
+        return None if v in ("", "-") else v
+
+    if ext == ".txt":
+        return [cell(line) for line in text.splitlines()]
+    rows = [r for r in csv.reader(text.splitlines(), delimiter="," if ext == ".csv" else "\t") if r]
+    if not rows:
+        raise ValueError(f"{where} is empty; it needs a header row with a {column!r} column")
+    header = [h.strip().lower() for h in rows[0]]
+    if column.lower() not in header:
+        raise ValueError(
+            f"{where} has no {column!r} column (header: {rows[0]}); name the column or pass its "
+            "header with --formula-column"
+        )
+    j = header.index(column.lower())
+    out = []
+    for k, r in enumerate(rows[1:], start=2):
+        if len(r) != len(header):
+            raise ValueError(f"{where} row {k} has {len(r)} columns, expected {len(header)}")
+        out.append(cell(r[j]))
+    return out
 
 
 def write_features(path: StrPath, X: np.ndarray, ids: Sequence[str] | None = None) -> None:
@@ -868,7 +999,12 @@ def load_archive(path: StrPath) -> tuple[dict[str, np.ndarray], dict[str, Any]]:
             f"{where} is not a valid .npz (zip) file; the file may be truncated or corrupted, "
             "or it is not a gwpred model"
         )
-    read_errors = (zipfile.BadZipFile, zlib.error, ValueError, EOFError, OSError, KeyError)
+    # numpy parses each member's header with ast.literal_eval: a damaged header
+    # can raise SyntaxError or tokenize.TokenError as well
+    read_errors = (
+        zipfile.BadZipFile, zlib.error, ValueError, EOFError, OSError, KeyError,
+        SyntaxError, tokenize.TokenError,
+    )
     try:
         npz = np.load(p, allow_pickle=False)
     except read_errors as err:

@@ -501,3 +501,54 @@ def test_demo_small_run(capsys, tmp_path):
         mol = Chem.MolFromSmiles(g.graph["smiles"])
         assert mol is not None
         assert Counter(a.GetSymbol() for a in mol.GetAtoms()) == Counter(lab for _, lab in g.nodes(data="label"))
+
+
+# --------------------------------------------------------------------------
+# molecules: valence decoding and formula constraints
+# --------------------------------------------------------------------------
+def test_predict_with_formula_column(capsys, tmp_path, files, demo):
+    # Reference for the formulas: hydrogens from the valences C 4, N 3, O 2, F 1
+    # (common practice) of the true QM9 heavy-atom graphs.
+    from gwpred.formula import formula_matches, graph_formula, hydrogen_counts
+
+    _, _, _, truth = demo
+    model = tmp_path / "m.npz"
+    code, _, _ = run(capsys, "fit", "--features", str(files["train_x"]), "--graphs", str(files["train_gj"]),
+                     "--model", str(model), "--valence", "-q", *MODEL_OPTS)
+    assert code == 0
+    formulas = [graph_formula(g) for g in truth]
+    formulas[1] = ""  # no formula for this row
+    fpath = tmp_path / "formulas.csv"
+    with open(fpath, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(["id", "Formula"])
+        w.writerows([f"mol{i}", f] for i, f in enumerate(formulas))
+    out = tmp_path / "pred.jsonl"
+    code, stdout, _ = run(capsys, "predict", "--model", str(model), "--features", str(files["test_x"]),
+                          "--out", str(out), "--formulas", str(fpath), "-q")
+    assert code == 0
+    assert "hypotheses" in stdout  # the caution line
+    pred = read_any(out)
+    assert len(pred) == len(truth)
+    for g, f in zip(pred, formulas):
+        assert all(h >= 0 for h in hydrogen_counts(g).values())  # --valence
+        assert not f or formula_matches(g, f)
+    # a formula file with the wrong number of rows, or without the column
+    (tmp_path / "short.txt").write_text("C2H6O\n", encoding="utf-8")
+    expect_usage_error(capsys, ["predict", "--model", str(model), "--features", str(files["test_x"]), "--out",
+                                str(out), "--formulas", str(tmp_path / "short.txt")], "holds 1 formulas")
+    expect_usage_error(capsys, ["predict", "--model", str(model), "--features", str(files["test_x"]), "--out",
+                                str(out), "--formulas", str(fpath), "--formula-column", "mf"], "no 'mf' column")
+
+
+def test_predict_to_smiles_file_decodes_valid_molecules(capsys, tmp_path, files):
+    # Reference: RDKit parses and sanitises every written SMILES (MolFromSmiles)
+    Chem = pytest.importorskip("rdkit.Chem")
+    out = tmp_path / "pred.smi"
+    code, stdout, _ = run(capsys, "predict", "--model", str(files["model"]), "--features", str(files["test_x"]),
+                          "--out", str(out), "-q")
+    assert code == 0
+    assert "valence rules" in stdout and "hypotheses" in stdout
+    lines = [ln.split()[0] for ln in out.read_text(encoding="utf-8").splitlines() if ln.strip()]
+    assert len(lines) == len(TEST)
+    assert all(Chem.MolFromSmiles(s) is not None for s in lines)

@@ -698,3 +698,42 @@ def test_gwpred_version_falls_back(tmp_path: Path, monkeypatch: pytest.MonkeyPat
     save_archive(tmp_path / "m.npz", {}, {})
     assert load_archive(tmp_path / "m.npz")[1]["gwpred_version"] == "unknown"
     assert os.listdir(tmp_path) == ["m.npz"]
+
+
+# ------------------------------------------------------------ formula files
+def test_read_formulas_csv_tsv_txt(tmp_path):
+    from gwpred.io import read_formulas
+
+    # files written with Python's csv module (reference writer)
+    p = tmp_path / "f.csv"
+    with open(p, "w", newline="", encoding="utf-8") as fh:
+        csv.writer(fh).writerows([["id", "FORMULA", "x"], ["a", "C2H6O", "1"], ["b", "", "2"], ["c", "-", "3"]])
+    assert read_formulas(p) == ["C2H6O", None, None]
+    t = tmp_path / "f.tsv"
+    with open(t, "w", newline="", encoding="utf-8") as fh:
+        csv.writer(fh, delimiter="\t").writerows([["mf"], ["CH4"], ["C6H6"]])
+    assert read_formulas(t, column="mf") == ["CH4", "C6H6"]
+    x = tmp_path / "f.txt"
+    x.write_text("C4H6O2\n\nCO2\n", encoding="utf-8")
+    assert read_formulas(x) == ["C4H6O2", None, "CO2"]
+
+
+def test_read_formulas_errors(tmp_path):
+    from gwpred.io import read_formulas
+
+    p = tmp_path / "f.csv"
+    p.write_text("id,mf\na,CH4\n", encoding="utf-8")
+    with pytest.raises(ValueError, match="has no 'formula' column"):
+        read_formulas(p)
+    p.write_text("id,formula\na,CH4,extra\n", encoding="utf-8")
+    with pytest.raises(ValueError, match="row 2 has 3 columns, expected 2"):
+        read_formulas(p)
+    p.write_text("", encoding="utf-8")
+    with pytest.raises(ValueError, match="is empty"):
+        read_formulas(p)
+    with pytest.raises(ValueError, match="unsupported formula file extension"):
+        read_formulas(tmp_path / "f.json")
+    b = tmp_path / "b.txt"
+    b.write_bytes(b"\xff\xfe\x00C")
+    with pytest.raises(ValueError, match="not UTF-8"):
+        read_formulas(b)
