@@ -223,8 +223,127 @@ def cmd_demo(args: argparse.Namespace) -> int:
         [pred[i] for i in show], [truth[i] for i in show], str(out / "predictions.png"),
         titles=[f"GED {ours['items'][i]['ged']:g}" for i in show], caption=CAUTION,
     )
+    report = _demo_report(args, out, model, X[test], pred, truth, [graphs[i] for i in train], ours, base)
     print(f"\nwrote {out}/predicted.jsonl, truth.jsonl, retrieved.jsonl, summary.json, predictions.png")
+    print(f"report: {report}")
     print(f"total {time.perf_counter() - t_start:.0f} s")
+    print(CAUTION)
+    return 0
+
+
+# items of the demo report drawn in full (alignment, barycenter, training graphs)
+_DEMO_DRAWINGS = 8
+
+
+def _demo_report(args: argparse.Namespace, out: Path, model: Any, X_test: np.ndarray, pred: list, truth: list,
+                 train_graphs: list, ours: dict, base: dict) -> Path:
+    """Write the demo's report.html; barycenters only for the items drawn in full."""
+    from .report import write_report
+
+    n_draw = min(_DEMO_DRAWINGS, len(pred))
+    soft = model.predict_barycenters(X_test[:n_draw])
+    notes = [(f"Spectrum -> heavy-atom skeleton: {len(train_graphs)} training and {len(pred)} held-out QM9 "
+              f"molecules (seed {args.seed}). Baseline, the molecule of the most similar training spectrum: "
+              f"mean GED {base['mean_ged']:.2f}, exact match {100 * base['exact_match_rate']:.1f}%.")]
+    return write_report(out / "report.html", pred, truth, summary=ours, barycenters=soft,
+                        training_graphs=train_graphs, label_names=list(model.labels_.node_labels_),
+                        title="gwpred demo: predicted molecular skeletons", notes=notes,
+                        time_limit=args.time_limit, drawings=n_draw, progress=not args.quiet)
+
+
+def cmd_report(args: argparse.Namespace) -> int:
+    from .io import read_graphs
+    from .report import is_molecular, read_ranked, write_report
+
+    out = Path(args.out)
+    if out.suffix.lower() not in (".html", ".htm"):
+        raise UsageError(f"--out must name an HTML file ending in .html; got {args.out}")
+    for name, value, least in (("--limit", args.limit, 1), ("--drawings", args.drawings, 0), ("--top", args.top, 0)):
+        if value is not None and value < least:
+            raise UsageError(f"{name} must be at least {least}; got {value}")
+    pred = read_graphs(args.predictions)
+    truth = read_graphs(args.truth) if args.truth else None
+    if truth is not None and len(pred) != len(truth):
+        raise UsageError(
+            f"{args.predictions} holds {len(pred)} graphs but {args.truth} holds {len(truth)}; "
+            "they must be in the same order, one prediction per true graph."
+        )
+    ranked = read_ranked(args.ranked) if args.ranked else None
+    t0 = time.perf_counter()
+    notes = [f"predictions: {args.predictions}" + (f"; truth: {args.truth}" if args.truth else "")
+             + (f"; ranked candidates: {args.ranked}" if args.ranked else "")]
+    path = write_report(out, pred, truth, ranked=ranked, title=args.title or f"gwpred report: {Path(args.predictions).name}",
+                        notes=notes, time_limit=args.time_limit, limit=args.limit, drawings=args.drawings,
+                        top=args.top, node_label=args.node_label, edge_label=_edge_label(args),
+                        progress=not args.quiet)
+    n = len(pred) if args.limit is None else min(args.limit, len(pred))
+    print(f"report on {n} items written to {path} in {time.perf_counter() - t0:.1f} s")
+    if is_molecular(pred[:n] + (truth[:n] if truth else []), args.node_label):
+        print(CAUTION)
+    return 0
+
+
+def cmd_rank(args: argparse.Namespace) -> int:
+    from .io import load_model, read_features, read_formulas, read_graphs
+    from .ranking import CandidateLibrary, rank_candidates, write_ranked
+
+    if args.k < 1:
+        raise UsageError(f"--k must be at least 1; got {args.k}.")
+    if Path(args.out).suffix.lower() != ".jsonl":
+        raise UsageError(f"--out must name a JSON Lines file ending in .jsonl; got {args.out}")
+    model = load_model(args.model)
+    X = read_features(args.features)
+    library = CandidateLibrary(read_graphs(args.candidates))
+    formulas = None
+    if args.formulas:
+        formulas = read_formulas(args.formulas, args.formula_column)
+        if len(formulas) != X.shape[0]:
+            raise UsageError(
+                f"{args.formulas} holds {len(formulas)} formulas but {args.features} has {X.shape[0]} "
+                "rows; give one formula (or an empty cell) per input row"
+            )
+    t0 = time.perf_counter()
+    ranked = rank_candidates(model, X, library, k=args.k, scorer=args.scorer, filter=formulas,
+                             output_kernel=args.output_kernel, progress=not args.quiet)
+    secs = time.perf_counter() - t0
+    write_ranked(args.out, ranked, library)
+    print(f"ranked {len(library)} candidates for {X.shape[0]} inputs ({args.scorer} scorer) in {secs:.1f} s; "
+          f"top {args.k} per input written to {args.out}")
+    print(CAUTION)
+    return 0
+
+
+def cmd_compare(args: argparse.Namespace) -> int:
+    from .compare import (
+        compare_methods,
+        comparison_table,
+        load_comparison_data,
+        plot_comparison,
+    )
+    from .datasets import split_indices
+
+    if args.fgw_rows < 0:
+        raise UsageError(f"--fgw-rows must be 0 (all test inputs) or more; got {args.fgw_rows}.")
+    out = Path(args.out)
+    out.mkdir(parents=True, exist_ok=True)
+    X, graphs, kernel = load_comparison_data(args.data, progress=not args.quiet)
+    train, test = split_indices(len(graphs), n_train=args.n_train, n_test=args.n_test, random_state=args.seed)
+    params = _model_params(args)
+    params["kernel"] = args.kernel or kernel
+    params["verbose"] = False
+    t0 = time.perf_counter()
+    result = compare_methods(X, graphs, train, test, params=params, scorers=args.scorers,
+                             output_kernels=args.output_kernels, k=args.k, fgw_rows=args.fgw_rows or None,
+                             time_limit=args.time_limit, n_jobs=args.n_jobs, random_state=args.seed,
+                             progress=not args.quiet, data=args.data)
+    table = comparison_table(result)
+    print(table)
+    (out / "comparison.txt").write_text(table + "\n")
+    summary = result.to_dict()
+    summary["options"] = {k: v for k, v in vars(args).items() if k != "func"}
+    (out / "comparison.json").write_text(json.dumps(summary, indent=2, default=str))
+    plot_comparison(result, str(out / "comparison.png"))
+    print(f"\nwrote {out}/comparison.txt, comparison.json, comparison.png in {time.perf_counter() - t0:.0f} s")
     print(CAUTION)
     return 0
 
@@ -292,6 +411,80 @@ def build_parser() -> argparse.ArgumentParser:
     _add_model_options(p)
     common(p)
     p.set_defaults(func=cmd_demo)
+
+    p = sub.add_parser("report", help="write one self-contained HTML page to look at predictions",
+                       description="Turn predicted graphs (with the true graphs and ranked candidate lists when "
+                                   "given) into one static HTML file: summary scores, a sortable table of items, "
+                                   "and drawings of each prediction against its truth.")
+    p.add_argument("predictions", help="predicted graphs (.jsonl/.graphml/.smi/.sdf/.mol)")
+    p.add_argument("--truth", help="true graphs, same order (without them the page shows the predictions only)")
+    p.add_argument("--out", required=True, help="HTML file to write (.html)")
+    p.add_argument("--ranked", metavar="FILE.jsonl",
+                   help='ranked candidate lists: one JSON object per line, {"row": i, "ranked": [{"candidate": j, '
+                        '"score": s, "graph": <node-link record>}, ...]}, best first')
+    p.add_argument("--title", help="page title (default: from the predictions file name)")
+    p.add_argument("--time-limit", type=float, default=10.0,
+                   help="seconds per GED before settling for bounds (default: 10)")
+    p.add_argument("--limit", type=int, help="report only the first N items")
+    p.add_argument("--drawings", type=int, default=30,
+                   help="items (the first ones) drawn in full; the others show scores only (default: 30)")
+    p.add_argument("--top", type=int, default=5, help="ranked candidates drawn per item (default: 5)")
+    _add_label_options(p)
+    common(p)
+    p.set_defaults(func=cmd_report)
+
+    p = sub.add_parser("rank", help="rank given candidate graphs for each input with a saved model",
+                       description="Score a candidate list (e.g. all known isomers of a formula) for each input "
+                                   "row and write the best k per row as JSON Lines: {\"row\": i, \"ranked\": "
+                                   "[{\"candidate\": j, \"score\": s, \"graph\": <node-link record>}, ...]}.")
+    p.add_argument("--model", required=True, help="model file written by 'gwpred fit'")
+    p.add_argument("--features", required=True, help="inputs (.csv/.tsv/.npy), same columns as in fit")
+    p.add_argument("--candidates", required=True,
+                   help="candidate graphs shared by all rows: .jsonl, .graphml, or molecules as .smi/.sdf/.mol")
+    p.add_argument("--out", required=True, help="ranked lists to write (.jsonl)")
+    p.add_argument("--formulas", metavar="FILE",
+                   help="per input row, a molecular formula: only candidates with its heavy atoms are ranked "
+                        "(hydrogens are not compared); .csv/.tsv with a formula column or .txt, one per line; "
+                        "an empty cell ranks all candidates")
+    p.add_argument("--formula-column", default="formula",
+                   help="header of the formula column in --formulas (default: formula)")
+    p.add_argument("--k", type=int, default=10, help="candidates kept per input (default: 10)")
+    p.add_argument("--scorer", default="kernel", choices=["kernel", "fgw", "objective"],
+                   help="kernel: weighted output-kernel similarity to the training graphs (higher is better); "
+                        "fgw: FGW distance to the predicted barycenter; objective: weighted FGW distances to "
+                        "the training graphs (lower is better) (default: kernel)")
+    p.add_argument("--output-kernel", default="wl", choices=["wl", "fingerprint"],
+                   help="kernel scorer: Weisfeiler-Lehman subtree kernel, or Tanimoto on Morgan fingerprints "
+                        "(molecules, needs gwpred[chem]) (default: wl)")
+    common(p)
+    p.set_defaults(func=cmd_rank)
+
+    p = sub.add_parser("compare", help="generation against candidate ranking and 1-NN retrieval, on one split",
+                       description="On one data set and split: generation (decoded barycenter, with and without "
+                                   "the formula), ranking of the same-formula candidates with each scorer, and "
+                                   "1-NN retrieval, with the true graph in the candidate set and removed from it. "
+                                   "Writes a table (text, JSON) and a plot of top-k curves and GED distributions. "
+                                   "The input kernel defaults to rbf for spectra and tanimoto for fingerprints.")
+    p.add_argument("--data", default="demo", choices=["demo", "qm9-spectrum", "qm9-fingerprint"],
+                   help="bundled demo molecules, or all of QM9 with spectra or fingerprints (needs gwpred[all]) "
+                        "(default: demo)")
+    p.add_argument("--n-train", type=int, default=2700, help="training inputs (default: 2700)")
+    p.add_argument("--n-test", type=int, default=300, help="test inputs (default: 300)")
+    p.add_argument("--k", type=int, default=10, help="length of the ranked lists (default: 10)")
+    p.add_argument("--scorers", nargs="+", default=["kernel", "fgw", "objective"],
+                   choices=["kernel", "fgw", "objective"], help="scorers to run (default: all)")
+    p.add_argument("--output-kernels", nargs="+", default=["wl"], choices=["wl", "fingerprint"],
+                   help="output kernels of the kernel scorer (default: wl)")
+    p.add_argument("--fgw-rows", type=int, default=50,
+                   help="test inputs (drawn at random) the FGW scorers run on; 0 runs them on all (default: 50)")
+    p.add_argument("--time-limit", type=float, default=2.0,
+                   help="seconds per GED before settling for bounds (default: 2)")
+    p.add_argument("--n-jobs", type=int, default=1, help="worker processes for the edit distances (default: 1)")
+    p.add_argument("--out", default="gwpred-compare", help="output folder (default: gwpred-compare)")
+    _add_model_options(p)
+    p.set_defaults(kernel=None)
+    common(p)
+    p.set_defaults(func=cmd_compare)
     return parser
 
 

@@ -628,3 +628,66 @@ class BarycenterGraphPredictor(BaseEstimator):
             for p, t in zip(pred, graphs)
         ]
         return -float(np.mean(ged))
+
+    def rank(
+        self,
+        X: ArrayLike,
+        candidates: Any,
+        k: int = 10,
+        scorer: str = "kernel",
+        filter: Any = None,
+        *,
+        output_kernel: str = "wl",
+    ) -> list[list[tuple[int, float]]]:
+        """Rank given candidate graphs for each input instead of generating one.
+
+        Thin wrapper of :func:`gwpred.ranking.rank_candidates`, which documents
+        the scorers, filters, node-order invariance and how labels unseen in
+        training are handled (they never match; such candidates are still ranked).
+
+        Parameters
+        ----------
+        X : array-like of shape (n_queries, n_features)
+        candidates : list of networkx.Graph, CandidateLibrary, or list of lists
+            One candidate set shared by all inputs (a
+            :class:`~gwpred.ranking.CandidateLibrary` keeps its encodings
+            between calls), or one list of graphs per input row.
+        k : int, default=10
+            Candidates returned per input.
+        scorer : {"kernel", "fgw", "objective"}, default="kernel"
+            ``kernel``: sum_i w_i(x) k(y_i, c) over the training graphs (higher
+            is better); ``fgw``: FGW distance from the predicted barycenter;
+            ``objective``: sum_i w_i(x) FGW(y_i, c) (both lower is better).
+        filter : list or None, default=None
+            Per input row: a molecular formula (same heavy atoms), a node
+            count, an array of candidate indices, or None.
+        output_kernel : {"wl", "fingerprint"}, default="wl"
+            Output kernel of the ``kernel`` scorer: Weisfeiler-Lehman subtree
+            kernel, or Tanimoto on Morgan fingerprints (molecules, needs RDKit).
+
+        Returns
+        -------
+        list of list of (int, float)
+            Per input, up to ``k`` (candidate index, score) pairs, best first;
+            equal scores are ordered by candidate index.
+
+        Raises
+        ------
+        ValueError
+            For an unknown scorer, a row without candidates, mismatched lengths
+            or invalid candidate graphs (see :func:`~gwpred.ranking.rank_candidates`).
+
+        Examples
+        --------
+        >>> import networkx as nx, numpy as np
+        >>> def chain(n):
+        ...     g = nx.path_graph(n); nx.set_node_attributes(g, "C", "label"); return g
+        >>> model = BarycenterGraphPredictor(top_k=1).fit(np.arange(4.0).reshape(-1, 1), [chain(n + 2) for n in range(4)])
+        >>> [j for j, _ in model.rank([[1.0]], [chain(5), chain(3), chain(2)], k=2)[0]]
+        [1, 0]
+        """
+        from .ranking import rank_candidates
+
+        return rank_candidates(
+            self, X, candidates, k=k, scorer=scorer, filter=filter, output_kernel=output_kernel
+        )
