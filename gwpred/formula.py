@@ -451,6 +451,14 @@ def hydrogen_counts(
     return out
 
 
+def _heavy_counts(graph: nx.Graph, node_label: str) -> dict[str, int]:
+    heavy: dict[str, int] = {}
+    for _, data in graph.nodes(data=True):
+        lab = str(data.get(node_label))
+        heavy[lab] = heavy.get(lab, 0) + 1
+    return heavy
+
+
 def graph_formula(
     graph: nx.Graph,
     *,
@@ -485,10 +493,7 @@ def graph_formula(
     >>> graph_formula(g)
     'CH4O'
     """
-    heavy: dict[str, int] = {}
-    for _, data in graph.nodes(data=True):
-        lab = data.get(node_label)
-        heavy[str(lab)] = heavy.get(str(lab), 0) + 1
+    heavy = _heavy_counts(graph, node_label)
     if not hydrogens:
         return hill_formula(heavy)
     h = hydrogen_counts(
@@ -523,10 +528,7 @@ def formula_matches(
     (True, True, False)
     """
     f = parse_formula(formula) if isinstance(formula, str) else formula
-    heavy: dict[str, int] = {}
-    for _, data in graph.nodes(data=True):
-        lab = data.get(node_label)
-        heavy[str(lab)] = heavy.get(str(lab), 0) + 1
+    heavy = _heavy_counts(graph, node_label)
     if heavy != f.heavy:
         return False
     try:
