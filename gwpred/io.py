@@ -1139,6 +1139,12 @@ def save_model(model: Any, path: StrPath) -> None:
         "inputs": weights.K_fit_ if model.kernel == "precomputed" else weights.X_fit_,
     }
     gamma = float(weights.gamma_)
+    valence = model.get_params().get("valence")
+    if isinstance(valence, dict) and not all(isinstance(k, str) for k in valence):
+        raise ValueError(
+            "valence tables with non-text labels cannot be stored in a model file (JSON keys are "
+            "text); use text node labels, or refit after loading"
+        )
     manifest = {
         "kind": _MODEL_KIND,
         "params": {k: _plain(v) for k, v in model.get_params().items()},

@@ -400,3 +400,19 @@ def test_pickled_member_is_never_loaded(tmp_path):
         zf.writestr("__manifest__.npy", buf.getvalue())
     with pytest.raises(ValueError, match=r"member '__manifest__' holds Python objects \(pickled data\), which gwpred never loads"):
         load_model(path)
+
+
+def test_valence_table_round_trips_and_non_text_keys_are_refused(tmp_path):
+    # a valence table of one's own survives save/load (JSON manifest); integer
+    # keys would silently become text in JSON, so they are refused
+    g = nx.path_graph(3)
+    nx.set_node_attributes(g, "R", "label")
+    X = np.arange(3.0).reshape(-1, 1)
+    model = BarycenterGraphPredictor(top_k=1, valence={"R": 2}, edge_label=None).fit(X, [g, g, g])
+    save_model(model, tmp_path / "m.npz")
+    assert load_model(tmp_path / "m.npz").get_params()["valence"] == {"R": 2}
+    h = nx.path_graph(3)
+    nx.set_node_attributes(h, 6, "label")
+    model = BarycenterGraphPredictor(top_k=1, valence={6: 2}, edge_label=None).fit(X, [h, h, h])
+    with pytest.raises(ValueError, match="non-text labels cannot be stored"):
+        save_model(model, tmp_path / "n.npz")
