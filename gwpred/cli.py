@@ -89,6 +89,21 @@ def _table(rows: list[tuple[str, dict]]) -> str:
     return "\n".join(lines)
 
 
+def _formulas(args: argparse.Namespace, n_rows: int) -> list[str | None] | None:
+    """The --formulas file's formulas, one per input row, or None without the option."""
+    from .io import read_formulas
+
+    if not args.formulas:
+        return None
+    formulas = read_formulas(args.formulas, args.formula_column)
+    if len(formulas) != n_rows:
+        raise UsageError(
+            f"{args.formulas} holds {len(formulas)} formulas but {args.features} has {n_rows} "
+            "rows; give one formula (or an empty cell) per input row"
+        )
+    return formulas
+
+
 # ----------------------------------------------------------------- commands
 def cmd_fit(args: argparse.Namespace) -> int:
     from . import BarycenterGraphPredictor
@@ -106,25 +121,12 @@ def cmd_fit(args: argparse.Namespace) -> int:
 
 
 def cmd_predict(args: argparse.Namespace) -> int:
-    from .io import (
-        MOLECULE_EXTENSIONS,
-        load_model,
-        read_features,
-        read_formulas,
-        write_graphs,
-    )
+    from .io import MOLECULE_EXTENSIONS, load_model, read_features, write_graphs
 
     model = load_model(args.model)
     model.set_params(verbose=not args.quiet)
     X = read_features(args.features)
-    formulas = None
-    if args.formulas:
-        formulas = read_formulas(args.formulas, args.formula_column)
-        if len(formulas) != X.shape[0]:
-            raise UsageError(
-                f"{args.formulas} holds {len(formulas)} formulas but {args.features} has {X.shape[0]} "
-                "rows; give one formula (or an empty cell) per input row"
-            )
+    formulas = _formulas(args, X.shape[0])
     if Path(args.out).suffix.lower() in MOLECULE_EXTENSIONS and not model.valence:
         # molecule files hold valid molecules only: decode with valences
         model.set_params(valence=True)
@@ -284,7 +286,7 @@ def cmd_report(args: argparse.Namespace) -> int:
 
 
 def cmd_rank(args: argparse.Namespace) -> int:
-    from .io import load_model, read_features, read_formulas, read_graphs
+    from .io import load_model, read_features, read_graphs
     from .ranking import CandidateLibrary, rank_candidates, write_ranked
 
     if args.k < 1:
@@ -294,14 +296,7 @@ def cmd_rank(args: argparse.Namespace) -> int:
     model = load_model(args.model)
     X = read_features(args.features)
     library = CandidateLibrary(read_graphs(args.candidates))
-    formulas = None
-    if args.formulas:
-        formulas = read_formulas(args.formulas, args.formula_column)
-        if len(formulas) != X.shape[0]:
-            raise UsageError(
-                f"{args.formulas} holds {len(formulas)} formulas but {args.features} has {X.shape[0]} "
-                "rows; give one formula (or an empty cell) per input row"
-            )
+    formulas = _formulas(args, X.shape[0])
     t0 = time.perf_counter()
     ranked = rank_candidates(model, X, library, k=args.k, scorer=args.scorer, filter=formulas,
                              output_kernel=args.output_kernel, progress=not args.quiet)
