@@ -467,13 +467,15 @@ class BarycenterGraphPredictor(BaseEstimator):
         -------
         list of SoftGraph
         """
+        return self._barycenters(X, formulas)[0]
+
+    def _barycenters(self, X: ArrayLike, formulas: Any) -> tuple[list[SoftGraph], list[Formula | None]]:
+        """Soft barycenters and the parsed formulas (parsed once for predict)."""
         idx, w = self._neighbors(X)
         parsed = self._check_formulas(formulas, len(idx))
         rows = self._progress(zip(idx, w, parsed), len(idx), "barycenters")
-        return [
-            self._solve_one(i[ww > 0], ww[ww > 0], self._formula_counts(f))
-            for i, ww, f in rows
-        ]
+        softs = [self._solve_one(i[ww > 0], ww[ww > 0], self._formula_counts(f)) for i, ww, f in rows]
+        return softs, parsed
 
     def _valence_arrays(self) -> tuple[list[int], list[int]]:
         """Valence per node label and bond order per edge label, for valence decoding."""
@@ -597,8 +599,7 @@ class BarycenterGraphPredictor(BaseEstimator):
             that cannot be read, holds elements unseen in training, or that
             no connected molecule of its atoms can have.
         """
-        softs = self.predict_barycenters(X, formulas)
-        parsed = self._check_formulas(formulas, len(softs))
+        softs, parsed = self._barycenters(X, formulas)
         return [self._decode(soft, f) for soft, f in zip(softs, parsed)]
 
     def score(self, X: ArrayLike, graphs: list[nx.Graph]) -> float:
