@@ -305,9 +305,23 @@ def _barycenter_case(rng: np.random.Generator, graphs: list[nx.Graph], alpha: fl
             n, Fs, Cs, None, list(w), alpha=alpha, init_C=Cs[j].copy(), init_X=Fs[j].copy(), log=True
         )
     plan_sets = [[ours.plans[s][:, : sizes[s]] for s in range(S)], [np.asarray(T) for T in log["T"]]]
+    # POT again on the same problem with the nodes of every input (and of the
+    # start graph) listed in another order: a relabelled copy, same optimum.
+    perms = [np.random.default_rng(7 + s).permutation(len(c)) for s, c in enumerate(Cs)]
+    Cs_p = [c[np.ix_(o, o)] for c, o in zip(Cs, perms)]
+    Fs_p = [f[o] for f, o in zip(Fs, perms)]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        X_rel, C_rel, log_rel = ot.gromov.fgw_barycenters(
+            n, Fs_p, Cs_p, None, list(w), alpha=alpha, init_C=Cs_p[j].copy(), init_X=Fs_p[j].copy(), log=True
+        )
+    pot_sets = [plan_sets[1], [np.asarray(T)[:, np.argsort(o)] for T, o in zip(log_rel["T"], perms)]]
     return {
         "ours": _common_objective(ours.structure, ours.features, Cs, Fs, w, alpha, plan_sets),
         "pot": _common_objective(C_pot, X_pot, Cs, Fs, w, alpha, plan_sets),
+        # POT relabelled / POT, both judged with the same two plan sets
+        "pot_self": _common_objective(C_rel, X_rel, Cs, Fs, w, alpha, pot_sets)
+        / _common_objective(C_pot, X_pot, Cs, Fs, w, alpha, pot_sets),
         "result": ours,
     }
 
@@ -358,7 +372,9 @@ def test_barycenter_objective_comparable_to_pot(barycenter_cases, source):
     reason=(
         "target not met: gwpred's barycenter objective is better than POT's on "
         "average but more than 1% above it in 4 of 30 random and 7 of 16 QM9 "
-        "cases (worst +8.4%); both are local descents of a non-convex objective"
+        "cases (worst +8.4%); both are local descents of a non-convex objective, "
+        "and POT misses the same target against itself on relabelled inputs "
+        "(test_barycenter_spread_around_pot_within_pots_own)"
     ),
 )
 @pytest.mark.parametrize("source", ["random", "qm9"])
@@ -368,6 +384,27 @@ def test_barycenter_objective_never_1pct_worse_than_pot(barycenter_cases, source
     worse = ratios > 1.01
     assert not worse.any(), (f"{worse.sum()} of {len(ratios)} worse by >1%, worst {ratios.max():.4f}, "
                              f"mean {ratios.mean():.4f}")
+
+
+@pytest.mark.parametrize("source", ["random", "qm9"])
+def test_barycenter_spread_around_pot_within_pots_own(barycenter_cases, source):
+    """Reference: POT fgw_barycenters against itself on relabelled inputs.
+
+    Listing the nodes of every input graph (and of the start graph) in
+    another order leaves the barycenter problem unchanged, yet POT's own
+    local descent then ends more than 1% above its first answer in 10 of 30
+    random and 6 of 16 QM9 cases here (worst +19.2% and +26.8%, mean
+    +0.4% and +0.5%; ties between equal-cost plans send it into other
+    basins), while gwpred is more than 1% above POT in 4 and 7 cases (worst
+    +6.5% and +8.4%, mean -0.8% and -0.7%). The "never more than 1%
+    worse than POT" target above is therefore not met by POT itself. What
+    is checked: the worst ratio of gwpred to POT does not exceed the worst
+    ratio of POT-relabelled to POT on the same cases.
+    """
+    ours = np.array([c["ours"] / c["pot"] for c in barycenter_cases[source]])
+    self_ratio = np.array([c["pot_self"] for c in barycenter_cases[source]])
+    assert (self_ratio > 1.01).any(), self_ratio.round(4).tolist()
+    assert ours.max() <= self_ratio.max(), (ours.max(), self_ratio.max())
 
 
 @pytest.mark.parametrize("source", ["random", "qm9"])
