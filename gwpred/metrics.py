@@ -724,32 +724,30 @@ def _stars(a: _Labeled, b: _Labeled, costs: _Costs) -> _Stars | None:
 class _MapCost:
     """Edit cost of node maps (image or -1 per node of the first graph), vectorised.
 
-    Same value as :func:`_path_cost`; index -1 reads the last row and column of the
-    padded tables, which stand for "deleted".
+    Same value as :func:`_path_cost`. Tables hold costs relative to inserting every node
+    and edge of the second graph; index -1 reads their last row and column, which stand
+    for "deleted".
     """
 
     def __init__(self, a: _Labeled, b: _Labeled, pad: _Padded, costs: _Costs) -> None:
         n1, n2 = pad.n1, pad.n2
         self.node = np.empty((n1, n2 + 1))
-        self.node[:, :n2] = pad.node_cost[:n1, :n2]
+        self.node[:, :n2] = pad.node_cost[:n1, :n2] - costs.node_ins
         self.node[:, n2] = costs.node_del
         self.codes2 = np.zeros((n2 + 1, n2 + 1), dtype=np.intp)
         self.codes2[:n2, :n2] = pad.codes2[:n2, :n2]
         ea = np.asarray(a.edges, dtype=np.intp).reshape(-1, 2)
         self.end0, self.end1 = ea[:, 0], ea[:, 1]
         self.codes1 = pad.codes1[self.end0, self.end1]
-        self.edge_cost = pad.edge_cost
+        self.edge = pad.edge_cost.copy()
+        self.edge[:, 1:] -= costs.edge_ins  # code 0: no edge there, nothing to insert
         self.rows = np.arange(n1)
-        self.n2, self.m2 = n2, len(b.edges)
-        self.node_ins, self.edge_ins = costs.node_ins, costs.edge_ins
+        self.base = n2 * costs.node_ins + len(b.edges) * costs.edge_ins
 
     def __call__(self, image: NDArray[np.intp]) -> float:
         hit = self.codes2[image[self.end0], image[self.end1]]
         return float(
-            self.node[self.rows, image].sum()
-            + self.node_ins * (self.n2 - np.count_nonzero(image >= 0))
-            + self.edge_cost[self.codes1, hit].sum()
-            + self.edge_ins * (self.m2 - np.count_nonzero(hit))
+            self.base + self.node[self.rows, image].sum() + self.edge[self.codes1, hit].sum()
         )
 
 
@@ -806,9 +804,10 @@ def _lagrangian(
     side = np.zeros(n1 * n2 * block)
     side_rows = side.reshape(n1 * n2, block)
     rows = np.arange(n1 * n2)
-    d = stars.d
-    n_y = len(d)
-    alpha = 0.5 * d
+    n_y = len(stars.d)
+    # split[t]: cost of side t; split[t] + split[t + Y] = d[t] (alpha, then d - alpha)
+    split = np.tile(0.5 * stars.d, 2)
+    other = np.concatenate([np.arange(n_y, 2 * n_y), np.arange(n_y)])
     step = _LAGRANGE_STEP
     best_value, stall = -math.inf, 0
     seen: set[bytes] = set()
@@ -818,7 +817,7 @@ def _lagrangian(
             break
         steps += 1
         # Negative side costs only: a star may leave any edge unmatched at cost 0.
-        w = np.minimum(np.concatenate([alpha, d - alpha]), 0.0)
+        w = np.minimum(split, 0.0)
         side[stars.at] = w
         vals = side_rows[:, flat].sum(axis=2)  # (n1 * n2, P)
         best = vals.argmin(axis=1)
@@ -846,8 +845,9 @@ def _lagrangian(
         used = member[best[stars.pair] * block + stars.slot]
         used &= assign[stars.src] == stars.dst
         used &= w < 0
-        g = used[:n_y].astype(float) - used[n_y:]
-        norm = float(g @ g)
+        g = used.astype(float)
+        g -= used[other]  # the split moves cost between the two sides of each y
+        norm = 0.5 * float(g @ g)
         if norm == 0.0:
             break  # alpha is optimal: the bound equals the linear relaxation
         if value > best_value + 1e-9:
@@ -856,7 +856,7 @@ def _lagrangian(
             stall += 1
             if stall >= _LAGRANGE_STALL:
                 step, stall = 0.5 * step, 0
-        alpha = alpha + (step * (upper - 0.9 * q - value) / norm) * g
+        split += (step * (upper - 0.9 * q - value) / norm) * g
     return lower, upper, image, steps
 
 
