@@ -612,6 +612,9 @@ def _local_search(
 # Largest degree for which the star subproblems are solved by listing permutations
 # (5! = 120 per node pair); graphs with a larger degree skip the Lagrangian step.
 _MAX_STAR_DEGREE = 5
+# Largest number of array entries read per Lagrangian step (n1 * n2 * degree! * degree),
+# which bounds its memory and time (about 16 MB); larger pairs skip the step.
+_MAX_STAR_WORK = 2_000_000
 # Subgradient steps of the Lagrangian bound. On the 600 QM9 pairs of
 # benchmarks/bench_ged.py it closes 433 (72%), 90% of them within 43 steps (median 18);
 # the rest go on to the linear relaxation.
@@ -681,11 +684,18 @@ def _edge_slots(lab: _Labeled) -> NDArray[np.intp]:
 
 
 def _stars(a: _Labeled, b: _Labeled, costs: _Costs) -> _Stars | None:
-    """Star decomposition of F2, or None when it does not apply (see ``_MAX_STAR_DEGREE``)."""
+    """Star decomposition of F2, or None when it does not apply.
+
+    It does not apply without edges to substitute, with a node of more than
+    ``_MAX_STAR_DEGREE`` edges, or when a step would read more than ``_MAX_STAR_WORK``
+    entries.
+    """
     n1, n2 = len(a.nodes), len(b.nodes)
     m1, m2 = len(a.edges), len(b.edges)
     degree = max(max(a.degree, default=0), max(b.degree, default=0))
     if m1 == 0 or m2 == 0 or degree > _MAX_STAR_DEGREE:
+        return None
+    if n1 * n2 * math.factorial(degree) * degree > _MAX_STAR_WORK:
         return None
     same = np.array([[x == y for y in b.edge_labels] for x in a.edge_labels], dtype=bool)
     edge_sub = min(costs.edge_sub, costs.edge_del + costs.edge_ins)
