@@ -193,7 +193,10 @@ def _labeled(g: Any, name: str, node_label: Hashable, edge_label: Hashable) -> _
                 f"node {u!r} of {name} has no {node_label!r} attribute ({found}); set it on "
                 "every node or pass node_label=<the attribute name>"
             )
-        _check_hashable(label, f"label {node_label!r} of node {u!r} of {name}")
+        try:
+            hash(label)
+        except TypeError:
+            _unhashable(label, f"label {node_label!r} of node {u!r} of {name}")
         node_labels.append(label)
     edges: list[tuple[int, int]] = []
     edge_labels = []
@@ -205,7 +208,10 @@ def _labeled(g: Any, name: str, node_label: Hashable, edge_label: Hashable) -> _
                 "them with g.remove_edges_from(networkx.selfloop_edges(g))"
             )
         label = data.get(edge_label)
-        _check_hashable(label, f"label {edge_label!r} of edge {(u, v)!r} of {name}")
+        try:
+            hash(label)
+        except TypeError:
+            _unhashable(label, f"label {edge_label!r} of edge {(u, v)!r} of {name}")
         i, j = sorted((index[u], index[v]))
         incident[i].append(len(edges))
         incident[j].append(len(edges))
@@ -221,14 +227,12 @@ def _labeled(g: Any, name: str, node_label: Hashable, edge_label: Hashable) -> _
     )
 
 
-def _check_hashable(label: Any, what: str) -> None:
-    try:
-        hash(label)
-    except TypeError:
-        raise TypeError(
-            f"{what} must be hashable (a categorical value such as a str or int), got "
-            f"{label!r} of type {type(label).__name__}"
-        ) from None
+def _unhashable(label: Any, what: str) -> None:
+    """Raise the error for an unhashable label (the message is built only when needed)."""
+    raise TypeError(
+        f"{what} must be hashable (a categorical value such as a str or int), got "
+        f"{label!r} of type {type(label).__name__}"
+    ) from None
 
 
 # --------------------------------------------------------------------------- label isomorphism
