@@ -19,7 +19,7 @@ import sys
 import time
 import warnings
 from collections import Counter
-from collections.abc import Hashable, Sequence
+from collections.abc import Callable, Hashable, Mapping, Sequence
 from dataclasses import dataclass, field
 from fractions import Fraction
 from functools import cached_property, lru_cache
@@ -67,14 +67,78 @@ class EditDistance:
     mapping: dict = field(default_factory=dict)
 
 
+CostSpec = float | Mapping[Any, float] | Callable[..., float]
+
+
+@dataclass(frozen=True)
+class _CostSpec:
+    """Validated cost arguments: a number, a table (mapping) or a callable each."""
+
+    node_del: Any
+    node_ins: Any
+    node_sub: Any
+    edge_del: Any
+    edge_ins: Any
+    edge_sub: Any
+
+    @property
+    def uniform(self) -> bool:
+        """True when no cost depends on the labels (all six are numbers)."""
+        return all(
+            isinstance(v, float)
+            for v in (self.node_del, self.node_ins, self.node_sub, self.edge_del, self.edge_ins, self.edge_sub)
+        )
+
+
 @dataclass(frozen=True)
 class _Costs:
-    node_del: float
-    node_ins: float
-    node_sub: float
-    edge_del: float
-    edge_ins: float
-    edge_sub: float
+    """Edit costs of one pair of graphs, as tables over the labels that occur in them.
+
+    Node labels get codes 0..L-1 and edge labels 0..E-1 (labels equal by ``==`` share a
+    code); ``node_a[i]`` is the code of node i of the first graph, and so on. Substituting
+    a label by itself costs 0; an edge substitution costs at most a deletion plus an
+    insertion (an edit path may do that instead).
+    """
+
+    node_sub_t: NDArray[np.float64]  # (L, L)
+    node_del_t: NDArray[np.float64]  # (L,)
+    node_ins_t: NDArray[np.float64]  # (L,)
+    edge_sub_t: NDArray[np.float64]  # (E, E)
+    edge_del_t: NDArray[np.float64]  # (E,)
+    edge_ins_t: NDArray[np.float64]  # (E,)
+    node_a: NDArray[np.intp]
+    node_b: NDArray[np.intp]
+    edge_a: NDArray[np.intp]
+    edge_b: NDArray[np.intp]
+    # (node_del, node_ins, node_sub, edge_del, edge_ins, edge_sub) when no cost depends on
+    # the labels (closed forms apply), edge_sub at most edge_del + edge_ins; else None
+    scalar: tuple[float, ...] | None
+
+    @cached_property
+    def node_sub(self) -> NDArray[np.float64]:
+        """(n1, n2) substitution costs."""
+        return self.node_sub_t[self.node_a[:, None], self.node_b[None, :]]
+
+    @cached_property
+    def node_del(self) -> NDArray[np.float64]:
+        return self.node_del_t[self.node_a]
+
+    @cached_property
+    def node_ins(self) -> NDArray[np.float64]:
+        return self.node_ins_t[self.node_b]
+
+    @cached_property
+    def edge_sub(self) -> NDArray[np.float64]:
+        """(m1, m2) substitution costs, at most deletion plus insertion."""
+        return self.edge_sub_t[self.edge_a[:, None], self.edge_b[None, :]]
+
+    @cached_property
+    def edge_del(self) -> NDArray[np.float64]:
+        return self.edge_del_t[self.edge_a]
+
+    @cached_property
+    def edge_ins(self) -> NDArray[np.float64]:
+        return self.edge_ins_t[self.edge_b]
 
     @cached_property
     def unit(self) -> float | None:
@@ -84,9 +148,22 @@ class _Costs:
         rounded up to the next multiple. None when no such q of a safe size exists
         (for example costs such as 0.1 that floats cannot represent exactly).
         """
-        return _cost_unit(
-            (self.node_del, self.node_ins, self.node_sub, self.edge_del, self.edge_ins, self.edge_sub)
+        if self.scalar is not None:
+            return _cost_unit(self.scalar)
+        values = np.concatenate(
+            [
+                t.ravel()
+                for t in (
+                    self.node_sub_t,
+                    self.node_del_t,
+                    self.node_ins_t,
+                    self.edge_sub_t,
+                    self.edge_del_t,
+                    self.edge_ins_t,
+                )
+            ]
         )
+        return _cost_unit(tuple(sorted(set(values[values > 0].tolist()))))
 
 
 @lru_cache(maxsize=64)
@@ -126,19 +203,15 @@ class _Labeled:
 # --------------------------------------------------------------------------- validation
 
 
-def _check_costs(**costs: float) -> _Costs:
-    values = {}
+def _check_costs(**costs: Any) -> _CostSpec:
+    """Validate the six cost arguments: each a number, a mapping or a callable."""
+    values: dict[str, Any] = {}
     for name, value in costs.items():
-        if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
-            raise TypeError(
-                f"{name} must be a real number, got {value!r} of type "
-                f"{type(value).__name__}; pass a non-negative float"
-            )
-        v = float(value)
-        if not math.isfinite(v) or v < 0:
-            raise ValueError(f"{name} must be a finite number >= 0, got {value!r}")
-        values[name] = v
-    return _Costs(
+        if isinstance(value, Mapping) or (callable(value) and not isinstance(value, type)):
+            values[name] = value
+            continue
+        values[name] = _cost_value(value, name)
+    return _CostSpec(
         node_del=values["node_del_cost"],
         node_ins=values["node_ins_cost"],
         node_sub=values["node_sub_cost"],
@@ -146,6 +219,119 @@ def _check_costs(**costs: float) -> _Costs:
         edge_ins=values["edge_ins_cost"],
         edge_sub=values["edge_sub_cost"],
     )
+
+
+def _cost_value(value: Any, what: str) -> float:
+    """A cost as a float, or a clear error."""
+    if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
+        raise TypeError(
+            f"{what} must be a real number, got {value!r} of type "
+            f"{type(value).__name__}; pass a non-negative float (or, for a cost argument, a "
+            "mapping from labels to costs or a callable of the labels)"
+        )
+    v = float(value)
+    if not math.isfinite(v) or v < 0:
+        raise ValueError(f"{what} must be a finite number >= 0, got {value!r}")
+    return v
+
+
+def _unary_costs(spec: Any, labels: list, wanted: NDArray[np.bool_], name: str) -> NDArray[np.float64]:
+    """Deletion or insertion cost of each label (0 where not ``wanted``)."""
+    out = np.zeros(len(labels))
+    if isinstance(spec, float):
+        out[wanted] = spec
+        return out
+    for c in np.flatnonzero(wanted):
+        label = labels[c]
+        if isinstance(spec, Mapping):
+            if label not in spec:
+                raise ValueError(
+                    f"{name} has no entry for label {label!r}; give every label of the "
+                    "graphs a cost (or pass a number or a callable)"
+                )
+            value = spec[label]
+        else:
+            value = spec(label)
+        out[c] = _cost_value(value, f"{name} of label {label!r}")
+    return out
+
+
+def _binary_costs(
+    spec: Any, labels: list, rows: NDArray[np.bool_], cols: NDArray[np.bool_], name: str
+) -> NDArray[np.float64]:
+    """Substitution cost of each pair of labels (0 on the diagonal and where not needed)."""
+    k = len(labels)
+    out = np.zeros((k, k))
+    if isinstance(spec, float):
+        out[np.ix_(rows, cols)] = spec
+        np.fill_diagonal(out, 0.0)
+        return out
+    for i in np.flatnonzero(rows):
+        for j in np.flatnonzero(cols):
+            if i == j:
+                continue
+            x, y = labels[i], labels[j]
+            if isinstance(spec, Mapping):
+                if (x, y) in spec:
+                    value = spec[(x, y)]
+                elif (y, x) in spec:
+                    value = spec[(y, x)]
+                else:
+                    raise ValueError(
+                        f"{name} has no entry for the label pair {(x, y)!r} (nor {(y, x)!r}); "
+                        "give every pair of labels of the graphs a cost (or pass a number or "
+                        "a callable)"
+                    )
+            else:
+                value = spec(x, y)
+            out[i, j] = _cost_value(value, f"{name} of labels {(x, y)!r}")
+    return out
+
+
+def _codes(first: list, second: list) -> tuple[list, NDArray[np.intp], NDArray[np.intp]]:
+    """Codes of labels equal by ``==`` (as dict keys): distinct labels and both code arrays."""
+    ids: dict[Hashable, int] = {}
+    ca = np.array([ids.setdefault(x, len(ids)) for x in first], dtype=np.intp)
+    cb = np.array([ids.setdefault(x, len(ids)) for x in second], dtype=np.intp)
+    return list(ids), ca, cb
+
+
+def _pair_costs(spec: _CostSpec, a: _Labeled, b: _Labeled) -> _Costs:
+    """The cost tables of one pair of graphs."""
+    uniform = spec.uniform
+    tables = []
+    for kind, first, second, dele, ins, sub in (
+        ("node", a.node_labels, b.node_labels, spec.node_del, spec.node_ins, spec.node_sub),
+        ("edge", a.edge_labels, b.edge_labels, spec.edge_del, spec.edge_ins, spec.edge_sub),
+    ):
+        labels, ca, cb = _codes(first, second)
+        k = len(labels)
+        if kind == "edge" and uniform:
+            sub = min(sub, dele + ins)
+        if uniform:
+            # Every table entry is needed by no more than a few lookups; fill them all.
+            del_t, ins_t = np.full(k, dele), np.full(k, ins)
+            sub_t = np.full((k, k), sub)
+            np.fill_diagonal(sub_t, 0.0)
+        else:
+            in_a = np.zeros(k, dtype=bool)
+            in_a[ca] = True
+            in_b = np.zeros(k, dtype=bool)
+            in_b[cb] = True
+            del_t = _unary_costs(dele, labels, in_a, f"{kind}_del_cost")
+            ins_t = _unary_costs(ins, labels, in_b, f"{kind}_ins_cost")
+            sub_t = _binary_costs(sub, labels, in_a, in_b, f"{kind}_sub_cost")
+            if kind == "edge":
+                # an edit path may delete and insert an edge instead of substituting it
+                sub_t = np.minimum(sub_t, del_t[:, None] + ins_t[None, :])
+                np.fill_diagonal(sub_t, 0.0)
+        tables.append((sub_t, del_t, ins_t, ca, cb))
+    (ns, nd, ni, na, nb), (es, ed, ei, ea, eb) = tables
+    scalar = None
+    if uniform:
+        sub = min(spec.edge_sub, spec.edge_del + spec.edge_ins)
+        scalar = (spec.node_del, spec.node_ins, spec.node_sub, spec.edge_del, spec.edge_ins, sub)
+    return _Costs(ns, nd, ni, es, ed, ei, na, nb, ea, eb, scalar=scalar)
 
 
 def _check_time_limit(time_limit: float | None) -> float | None:
@@ -306,36 +492,55 @@ def _multiset_cost(a: Sequence, b: Sequence, sub: float, dele: float, ins: float
 
 
 def _node_sub_matrix(a: _Labeled, b: _Labeled, costs: _Costs) -> NDArray[np.float64]:
-    # Compare labels with ==, not by hash (hash collisions must not count as equal).
-    eq = np.array([[x == y for y in b.node_labels] for x in a.node_labels], dtype=bool)
-    eq = eq.reshape(len(a.node_labels), len(b.node_labels))
-    return np.where(eq, 0.0, costs.node_sub)
+    """(n1, n2) node substitution costs (0 between equal labels)."""
+    return costs.node_sub
 
 
 def _star_matrix(a: _Labeled, b: _Labeled, costs: _Costs) -> NDArray[np.float64]:
     """Least cost of editing the incident edge labels of node i into those of node k.
 
-    Same value as :func:`_multiset_cost` on every pair of stars, computed at once from
-    per-node counts of each edge label.
+    With costs that do not depend on the labels, the same value as :func:`_multiset_cost`
+    on every pair of stars, computed at once from per-node counts of each edge label;
+    otherwise one small assignment problem per node pair.
     """
-    ids: dict[Hashable, int] = {}
-    for lab in a.edge_labels + b.edge_labels:
-        ids.setdefault(lab, len(ids))
+    if costs.scalar is None:
+        out = np.zeros((len(a.nodes), len(b.nodes)))
+        for i, inc_a in enumerate(a.incident):
+            for k, inc_b in enumerate(b.incident):
+                out[i, k] = _assignment_cost(
+                    costs.edge_sub[np.ix_(inc_a, inc_b)],
+                    costs.edge_del[inc_a],
+                    costs.edge_ins[inc_b],
+                )
+        return out
+    _, _, _, edge_del, edge_ins, sub = costs.scalar
     counts = []
-    for lab in (a, b):
-        m = np.zeros((len(lab.nodes), max(len(ids), 1)))
-        for (i, j), x in zip(lab.edges, lab.edge_labels):
-            m[i, ids[x]] += 1
-            m[j, ids[x]] += 1
+    for lab, codes in ((a, costs.edge_a), (b, costs.edge_b)):
+        m = np.zeros((len(lab.nodes), max(len(costs.edge_del_t), 1)))
+        for (i, j), x in zip(lab.edges, codes):
+            m[i, x] += 1
+            m[j, x] += 1
         counts.append(m)
     ca, cb = counts
     common = np.minimum(ca[:, None, :], cb[None, :, :]).sum(axis=2)
     da = np.asarray(a.degree, dtype=float)[:, None]
     db = np.asarray(b.degree, dtype=float)[None, :]
     paired = np.minimum(da, db)
-    sub = min(costs.edge_sub, costs.edge_del + costs.edge_ins)
     left_a, left_b = da - paired, db - paired
-    return (paired - common) * sub + left_a * costs.edge_del + left_b * costs.edge_ins
+    return (paired - common) * sub + left_a * edge_del + left_b * edge_ins
+
+
+def _assignment_cost(
+    sub: NDArray[np.float64], dele: NDArray[np.float64], ins: NDArray[np.float64]
+) -> float:
+    """Least cost of pairing two item sets (partial pairing; unpaired items deleted or inserted)."""
+    if sub.size == 0:
+        return float(dele.sum() + ins.sum())
+    image = _assign(sub, dele, ins)
+    kept = image >= 0
+    used = np.zeros(len(ins), dtype=bool)
+    used[image[kept]] = True
+    return float(sub[np.flatnonzero(kept), image[kept]].sum() + dele[~kept].sum() + ins[~used].sum())
 
 
 def _assign(
@@ -365,29 +570,26 @@ def _assign(
 def _path_cost(a: _Labeled, b: _Labeled, image: NDArray[np.intp], costs: _Costs) -> float:
     """Cost of the edit path induced by a node map (index of image or -1 per node of a)."""
     total = 0.0
-    mapped = 0
+    used = np.zeros(len(b.nodes), dtype=bool)
     for i, k in enumerate(image):
         if k < 0:
-            total += costs.node_del
+            total += costs.node_del[i]
         else:
-            mapped += 1
-            if a.node_labels[i] != b.node_labels[k]:
-                total += costs.node_sub
-    total += (len(b.nodes) - mapped) * costs.node_ins
-    edges_b = {e: lab for e, lab in zip(b.edges, b.edge_labels)}
-    edge_sub = min(costs.edge_sub, costs.edge_del + costs.edge_ins)
-    kept = 0
-    for (i, j), lab in zip(a.edges, a.edge_labels):
+            used[k] = True
+            total += costs.node_sub[i, k]
+    total += float(costs.node_ins[~used].sum())
+    edges_b = {e: f for f, e in enumerate(b.edges)}
+    kept = np.zeros(len(b.edges), dtype=bool)
+    for e, (i, j) in enumerate(a.edges):
         k, l = image[i], image[j]
-        key = (min(k, l), max(k, l))
-        if k >= 0 and l >= 0 and key in edges_b:
-            kept += 1
-            if lab != edges_b[key]:
-                total += edge_sub
+        f = edges_b.get((min(k, l), max(k, l))) if k >= 0 and l >= 0 else None
+        if f is not None:
+            kept[f] = True
+            total += costs.edge_sub[e, f]
         else:
-            total += costs.edge_del
-    total += (len(b.edges) - kept) * costs.edge_ins
-    return total
+            total += costs.edge_del[e]
+    total += float(costs.edge_ins[~kept].sum())
+    return float(total)
 
 
 def _round_lower(lower: float, costs: _Costs, from_solver: bool = True) -> float:
@@ -424,11 +626,24 @@ def _stop_at(upper: float, costs: _Costs) -> float | None:
 
 def _label_bound(a: _Labeled, b: _Labeled, costs: _Costs) -> float:
     """Label multiset bound: node and edge labels edited as two independent multisets."""
+    if costs.scalar is None:
+        return _assignment_cost(costs.node_sub, costs.node_del, costs.node_ins) + _assignment_cost(
+            costs.edge_sub, costs.edge_del, costs.edge_ins
+        )
+    node_del, node_ins, node_sub, edge_del, edge_ins, edge_sub = costs.scalar
     return _multiset_cost(
-        a.node_labels, b.node_labels, costs.node_sub, costs.node_del, costs.node_ins
-    ) + _multiset_cost(
-        a.edge_labels, b.edge_labels, costs.edge_sub, costs.edge_del, costs.edge_ins
-    )
+        costs.node_a.tolist(), costs.node_b.tolist(), node_sub, node_del, node_ins
+    ) + _multiset_cost(costs.edge_a.tolist(), costs.edge_b.tolist(), edge_sub, edge_del, edge_ins)
+
+
+def _incident_sum(lab: _Labeled, values: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Per node, the sum of ``values`` (one per edge) over its incident edges."""
+    out = np.zeros(len(lab.nodes))
+    if len(lab.edges):
+        ends = np.asarray(lab.edges, dtype=np.intp)
+        np.add.at(out, ends[:, 0], values)
+        np.add.at(out, ends[:, 1], values)
+    return out
 
 
 def _bounds(
@@ -438,43 +653,34 @@ def _bounds(
     n1, n2 = len(a.nodes), len(b.nodes)
     if n1 == 0 or n2 == 0:
         # Nothing to pair: delete everything of a, insert everything of b.
-        cost = n1 * costs.node_del + n2 * costs.node_ins
-        cost += len(a.edges) * costs.edge_del + len(b.edges) * costs.edge_ins
+        cost = float(costs.node_del.sum() + costs.node_ins.sum())
+        cost += float(costs.edge_del.sum() + costs.edge_ins.sum())
         return cost, cost, np.full(n1, -1, dtype=np.intp)
 
     lower = _label_bound(a, b, costs)
 
     sub = _node_sub_matrix(a, b, costs)
     star = _star_matrix(a, b, costs)
-    deg_a = np.asarray(a.degree, dtype=float)
-    deg_b = np.asarray(b.degree, dtype=float)
+    del_a = _incident_sum(a, costs.edge_del)  # deleting every edge of node i
+    ins_b = _incident_sum(b, costs.edge_ins)
 
     # Branch (degree and incident-label) bound: every edge cost is split in halves between
     # its two end nodes, so an assignment with half the local edge costs is a lower bound.
-    half = _assign(
-        sub + 0.5 * star,
-        costs.node_del + 0.5 * costs.edge_del * deg_a,
-        costs.node_ins + 0.5 * costs.edge_ins * deg_b,
-    )
     sub_h = sub + 0.5 * star
-    lower_branch = 0.0
+    dele_h = costs.node_del + 0.5 * del_a
+    ins_h = costs.node_ins + 0.5 * ins_b
+    half = _assign(sub_h, dele_h, ins_h)
+    kept = half >= 0
     used = np.zeros(n2, dtype=bool)
-    for i, k in enumerate(half):
-        if k < 0:
-            lower_branch += costs.node_del + 0.5 * costs.edge_del * deg_a[i]
-        else:
-            used[k] = True
-            lower_branch += sub_h[i, k]
-    lower_branch += float(np.sum(costs.node_ins + 0.5 * costs.edge_ins * deg_b[~used]))
+    used[half[kept]] = True
+    lower_branch = float(
+        sub_h[np.flatnonzero(kept), half[kept]].sum() + dele_h[~kept].sum() + ins_h[~used].sum()
+    )
     lower = max(lower, lower_branch)
 
     # Bipartite upper bound (Riesen & Bunke): full local edge costs; the node map's true
     # edit cost is an upper bound. The branch map is a second candidate.
-    full = _assign(
-        sub + star,
-        costs.node_del + costs.edge_del * deg_a,
-        costs.node_ins + costs.edge_ins * deg_b,
-    )
+    full = _assign(sub + star, costs.node_del + del_a, costs.node_ins + ins_b)
     best_image, upper = full, _path_cost(a, b, full, costs)
     other = _path_cost(a, b, half, costs)
     if other < upper:
@@ -516,20 +722,21 @@ def _padded(a: _Labeled, b: _Labeled, costs: _Costs) -> _Padded:
     big_n = n1 + n2
     node_cost = np.zeros((big_n, big_n))
     node_cost[:n1, :n2] = _node_sub_matrix(a, b, costs)
-    node_cost[:n1, n2:] = costs.node_del
-    node_cost[n1:, :n2] = costs.node_ins
-    ids: dict[Hashable, int] = {}
+    node_cost[:n1, n2:] = costs.node_del[:, None]
+    node_cost[n1:, :n2] = costs.node_ins[None, :]
     codes = []
-    for lab in (a, b):
+    for lab, code in ((a, costs.edge_a), (b, costs.edge_b)):
         m = np.zeros((big_n, big_n), dtype=np.intp)
-        for (i, j), x in zip(lab.edges, lab.edge_labels):
-            m[i, j] = m[j, i] = ids.setdefault(x, len(ids) + 1)
+        if len(lab.edges):
+            ends = np.asarray(lab.edges, dtype=np.intp)
+            m[ends[:, 0], ends[:, 1]] = m[ends[:, 1], ends[:, 0]] = code + 1
         codes.append(m)
-    k = len(ids) + 1
-    edge_cost = np.full((k, k), min(costs.edge_sub, costs.edge_del + costs.edge_ins))
-    np.fill_diagonal(edge_cost, 0.0)
-    edge_cost[1:, 0] = costs.edge_del
-    edge_cost[0, 1:] = costs.edge_ins
+    # edge label codes + 1; code 0 means "no edge"
+    k = len(costs.edge_del_t) + 1
+    edge_cost = np.zeros((k, k))
+    edge_cost[1:, 1:] = costs.edge_sub_t
+    edge_cost[1:, 0] = costs.edge_del_t
+    edge_cost[0, 1:] = costs.edge_ins_t
     return _Padded(node_cost, codes[0], codes[1], edge_cost, n1, n2)
 
 
@@ -584,11 +791,11 @@ def _local_search(
         return image
     perm = _to_perm(image, pad.n2)
     rows, cols = _pairs(big_n)
+    q = pad.edge_cost[pad.codes1[:, :, None], pad.codes2[perm][:, None, :]]
+    s = q.sum(axis=0)  # s[x, c] = sum_i q[i, x, c]
     for _ in range(max_steps):
         if deadline is not None and time.perf_counter() > deadline:
             break
-        q = pad.edge_cost[pad.codes1[:, :, None], pad.codes2[perm][:, None, :]]
-        s = q.sum(axis=0)  # s[x, c] = sum_i q[i, x, c]
         pa, pb = perm[rows], perm[cols]
         # Edge cost of the slots (i, x), i outside the swapped pair, with x sent to c.
         # The slot between the swapped pair itself keeps its cost.
@@ -606,6 +813,11 @@ def _local_search(
             break
         r, c = rows[best], cols[best]
         perm[r], perm[c] = perm[c], perm[r]
+        # Only the rows of q of the two swapped nodes change.
+        for i in (r, c):
+            new = pad.edge_cost[pad.codes1[i][:, None], pad.codes2[perm[i]][None, :]]
+            s += new - q[i]
+            q[i] = new
     out = perm[: pad.n1].copy()
     out[out >= pad.n2] = -1
     return out
@@ -701,9 +913,7 @@ def _stars(a: _Labeled, b: _Labeled, costs: _Costs) -> _Stars | None:
         return None
     if n1 * n2 * math.factorial(degree) * degree > _MAX_STAR_WORK:
         return None
-    same = np.array([[x == y for y in b.edge_labels] for x in a.edge_labels], dtype=bool)
-    edge_sub = min(costs.edge_sub, costs.edge_del + costs.edge_ins)
-    saving = np.where(same.reshape(m1, m2), 0.0, edge_sub) - costs.edge_del - costs.edge_ins
+    saving = _edge_saving(costs)
     e_idx, f_idx = np.nonzero(saving < 0)
     if len(e_idx) == 0:
         return None
@@ -718,8 +928,8 @@ def _stars(a: _Labeled, b: _Labeled, costs: _Costs) -> _Stars | None:
     dst = np.concatenate([k, l, l, k])
     slot = np.concatenate([pi, pi, pj, pj]) * degree + np.concatenate([qk, ql, ql, qk])
     pair = src * n2 + dst
-    const = n1 * costs.node_del + n2 * costs.node_ins + m1 * costs.edge_del + m2 * costs.edge_ins
-    node = _node_sub_matrix(a, b, costs) - costs.node_del - costs.node_ins
+    const = _delete_all(costs)
+    node = _node_saving(costs)
     return _Stars(
         n1=n1,
         n2=n2,
@@ -746,17 +956,16 @@ class _MapCost:
     def __init__(self, a: _Labeled, b: _Labeled, pad: _Padded, costs: _Costs) -> None:
         n1, n2 = pad.n1, pad.n2
         self.node = np.empty((n1, n2 + 1))
-        self.node[:, :n2] = pad.node_cost[:n1, :n2] - costs.node_ins
+        self.node[:, :n2] = pad.node_cost[:n1, :n2] - costs.node_ins[None, :]
         self.node[:, n2] = costs.node_del
         self.codes2 = np.zeros((n2 + 1, n2 + 1), dtype=np.intp)
         self.codes2[:n2, :n2] = pad.codes2[:n2, :n2]
         ea = np.asarray(a.edges, dtype=np.intp).reshape(-1, 2)
         self.end0, self.end1 = ea[:, 0], ea[:, 1]
         self.codes1 = pad.codes1[self.end0, self.end1]
-        self.edge = pad.edge_cost.copy()
-        self.edge[:, 1:] -= costs.edge_ins  # code 0: no edge there, nothing to insert
+        self.edge = pad.edge_cost - pad.edge_cost[0][None, :]  # code 0: no edge to insert
         self.rows = np.arange(n1)
-        self.base = n2 * costs.node_ins + len(b.edges) * costs.edge_ins
+        self.base = float(costs.node_ins.sum() + costs.edge_ins.sum())
 
     def __call__(self, image: NDArray[np.intp]) -> float:
         hit = self.codes2[image[self.end0], image[self.end1]]
@@ -909,20 +1118,33 @@ class _Program:
     n_vars: int
 
 
+def _delete_all(costs: _Costs) -> float:
+    """Cost of deleting everything of the first graph and inserting all of the second."""
+    return float(
+        costs.node_del.sum() + costs.node_ins.sum() + costs.edge_del.sum() + costs.edge_ins.sum()
+    )
+
+
+def _node_saving(costs: _Costs) -> NDArray[np.float64]:
+    """(n1, n2) node substitution cost minus deletion and insertion."""
+    return costs.node_sub - costs.node_del[:, None] - costs.node_ins[None, :]
+
+
+def _edge_saving(costs: _Costs) -> NDArray[np.float64]:
+    """(m1, m2) edge substitution cost minus deletion and insertion (never positive)."""
+    return costs.edge_sub - costs.edge_del[:, None] - costs.edge_ins[None, :]
+
+
 def _program(a: _Labeled, b: _Labeled, costs: _Costs) -> _Program:
     from scipy.sparse import csc_array
 
     n1, n2 = len(a.nodes), len(b.nodes)
     m1, m2 = len(a.edges), len(b.edges)
-    const = n1 * costs.node_del + n2 * costs.node_ins + m1 * costs.edge_del + m2 * costs.edge_ins
-    c_x = (_node_sub_matrix(a, b, costs) - costs.node_del - costs.node_ins).ravel()
+    const = _delete_all(costs)
+    c_x = _node_saving(costs).ravel()
     n_x = n1 * n2
     # y variables: edge pairs (e, f) whose substitution saves cost, two orientations each.
-    same = np.array([[x == y for y in b.edge_labels] for x in a.edge_labels], dtype=bool)
-    same = same.reshape(m1, m2)
-    saving = np.where(
-        same, -costs.edge_del - costs.edge_ins, costs.edge_sub - costs.edge_del - costs.edge_ins
-    )
+    saving = _edge_saving(costs)
     e_idx, f_idx = np.nonzero(saving < 0)
     n_pairs = len(e_idx)
     ea = np.asarray(a.edges, dtype=np.intp).reshape(m1, 2)
@@ -1117,10 +1339,10 @@ def _prepare(
     edge_label: Hashable,
     cost_kwargs: dict[str, float],
 ) -> tuple[_Labeled, _Labeled, _Costs]:
-    costs = _check_costs(**cost_kwargs)
+    spec = _check_costs(**cost_kwargs)
     a = _labeled(g1, "g1", node_label, edge_label)
     b = _labeled(g2, "g2", node_label, edge_label)
-    return a, b, costs
+    return a, b, _pair_costs(spec, a, b)
 
 
 def edit_distance_bounds(
@@ -1129,12 +1351,12 @@ def edit_distance_bounds(
     *,
     node_label: Hashable = "label",
     edge_label: Hashable = "label",
-    node_del_cost: float = 1.0,
-    node_ins_cost: float = 1.0,
-    node_sub_cost: float = 1.0,
-    edge_del_cost: float = 1.0,
-    edge_ins_cost: float = 1.0,
-    edge_sub_cost: float = 1.0,
+    node_del_cost: CostSpec = 1.0,
+    node_ins_cost: CostSpec = 1.0,
+    node_sub_cost: CostSpec = 1.0,
+    edge_del_cost: CostSpec = 1.0,
+    edge_ins_cost: CostSpec = 1.0,
+    edge_sub_cost: CostSpec = 1.0,
 ) -> tuple[float, float]:
     r"""Cheap lower and upper bounds on the graph edit distance.
 
@@ -1147,11 +1369,15 @@ def edit_distance_bounds(
     edge_label : hashable, default="label"
         Name of the edge attribute holding the categorical edge label; an edge without it
         has label ``None``.
-    node_del_cost, node_ins_cost, node_sub_cost : float, default=1.0
-        Cost of deleting a node, inserting a node, and substituting a node by one with a
-        different label (equal labels cost 0).
-    edge_del_cost, edge_ins_cost, edge_sub_cost : float, default=1.0
-        The same for edges.
+    node_del_cost, node_ins_cost : float, mapping or callable, default=1.0
+        Cost of deleting a node of ``g1`` and of inserting a node of ``g2``: one number
+        for every label, a mapping from label to cost, or a callable ``f(label)``.
+    node_sub_cost : float, mapping or callable, default=1.0
+        Cost of substituting a node by one with a different label (equal labels cost 0):
+        one number, a mapping from label pairs ``(a, b)`` to costs (``(b, a)`` is looked
+        up when ``(a, b)`` is missing), or a callable ``f(a, b)``.
+    edge_del_cost, edge_ins_cost, edge_sub_cost : float, mapping or callable, default=1.0
+        The same for edges; an edge without the label attribute has label ``None``.
 
     Returns
     -------
@@ -1166,9 +1392,10 @@ def edit_distance_bounds(
     ------
     TypeError
         If a graph is not an undirected simple ``networkx.Graph``, a label is not hashable or
-        a cost is not a number.
+        a cost is not a number, a mapping or a callable (or gives no number).
     ValueError
-        If a node has no label, a graph has a self-loop, or a cost is negative or not finite.
+        If a node has no label, a graph has a self-loop, a cost is negative or not finite,
+        or a cost mapping has no entry for a label (pair) of the graphs.
 
     See Also
     --------
@@ -1219,12 +1446,12 @@ def edit_distance(
     *,
     node_label: Hashable = "label",
     edge_label: Hashable = "label",
-    node_del_cost: float = 1.0,
-    node_ins_cost: float = 1.0,
-    node_sub_cost: float = 1.0,
-    edge_del_cost: float = 1.0,
-    edge_ins_cost: float = 1.0,
-    edge_sub_cost: float = 1.0,
+    node_del_cost: CostSpec = 1.0,
+    node_ins_cost: CostSpec = 1.0,
+    node_sub_cost: CostSpec = 1.0,
+    edge_del_cost: CostSpec = 1.0,
+    edge_ins_cost: CostSpec = 1.0,
+    edge_sub_cost: CostSpec = 1.0,
     time_limit: float | None = None,
 ) -> EditDistance:
     r"""Exact graph edit distance between two labeled graphs.
@@ -1249,11 +1476,15 @@ def edit_distance(
     edge_label : hashable, default="label"
         Name of the edge attribute holding the categorical edge label; an edge without it
         has label ``None``.
-    node_del_cost, node_ins_cost, node_sub_cost : float, default=1.0
-        Cost of deleting a node, inserting a node, and substituting a node by one with a
-        different label (equal labels cost 0).
-    edge_del_cost, edge_ins_cost, edge_sub_cost : float, default=1.0
-        The same for edges.
+    node_del_cost, node_ins_cost : float, mapping or callable, default=1.0
+        Cost of deleting a node of ``g1`` and of inserting a node of ``g2``: one number
+        for every label, a mapping from label to cost, or a callable ``f(label)``.
+    node_sub_cost : float, mapping or callable, default=1.0
+        Cost of substituting a node by one with a different label (equal labels cost 0):
+        one number, a mapping from label pairs ``(a, b)`` to costs (``(b, a)`` is looked
+        up when ``(a, b)`` is missing), or a callable ``f(a, b)``.
+    edge_del_cost, edge_ins_cost, edge_sub_cost : float, mapping or callable, default=1.0
+        The same for edges; an edge without the label attribute has label ``None``.
     time_limit : float or None, default=None
         Seconds for the search steps (local searches, linear relaxation, integer
         program), counted from the start of the call; the cheap steps before them (label
@@ -1272,10 +1503,12 @@ def edit_distance(
     ------
     TypeError
         If a graph is directed, a multigraph or not a ``networkx.Graph``, a label is not
-        hashable, or a cost or ``time_limit`` is not a number.
+        hashable, a cost is not a number, a mapping or a callable (or gives no number), or
+        ``time_limit`` is not a number.
     ValueError
         If a node has no label, a graph has a self-loop, a cost is negative or not finite,
-        or ``time_limit`` is not positive.
+        a cost mapping has no entry for a label (pair) of the graphs, or ``time_limit`` is
+        not positive.
 
     See Also
     --------
@@ -1313,6 +1546,11 @@ def edit_distance(
        to edit paths cheaper than the best one found. Edge variables exist only for edge
        pairs whose substitution is cheaper than deletion plus insertion, and are
        continuous: integral node variables force them to 0 or 1.
+
+    Label-dependent costs (mappings or callables) are evaluated once per call for the
+    labels present. The cheap lower bound then pairs labels by assignment problems
+    instead of counting them, and edge substitution costs at most deletion plus
+    insertion, label by label.
 
     When every cost is a whole multiple of one unit q (e.g. unit costs, or 0.25 and 1.5),
     every edit distance is a multiple of q, so lower bounds are rounded up to a multiple of
