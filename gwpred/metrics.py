@@ -567,29 +567,56 @@ def _assign(
     return image
 
 
-def _path_cost(a: _Labeled, b: _Labeled, image: NDArray[np.intp], costs: _Costs) -> float:
-    """Cost of the edit path induced by a node map (index of image or -1 per node of a)."""
-    total = 0.0
-    used = np.zeros(len(b.nodes), dtype=bool)
-    for i, k in enumerate(image):
-        if k < 0:
-            total += costs.node_del[i]
-        else:
-            used[k] = True
-            total += costs.node_sub[i, k]
-    total += float(costs.node_ins[~used].sum())
-    edges_b = {e: f for f, e in enumerate(b.edges)}
-    kept = np.zeros(len(b.edges), dtype=bool)
-    for e, (i, j) in enumerate(a.edges):
-        k, l = image[i], image[j]
-        f = edges_b.get((min(k, l), max(k, l))) if k >= 0 and l >= 0 else None
-        if f is not None:
-            kept[f] = True
-            total += costs.edge_sub[e, f]
-        else:
-            total += costs.edge_del[e]
-    total += float(costs.edge_ins[~kept].sum())
-    return float(total)
+def _edge_table(costs: _Costs) -> NDArray[np.float64]:
+    """(E + 1, E + 1) cost of an edge slot by edge label code + 1, code 0 meaning no edge.
+
+    Entry [c, d]: an edge labeled c - 1 of the first graph lands on an edge labeled d - 1
+    (substitution), on no edge (d = 0: deletion), or no edge lands on it (c = 0: insertion).
+    """
+    k = len(costs.edge_del_t) + 1
+    table = np.zeros((k, k))
+    table[1:, 1:] = costs.edge_sub_t
+    table[1:, 0] = costs.edge_del_t
+    table[0, 1:] = costs.edge_ins_t
+    return table
+
+
+def _edge_codes(lab: _Labeled, codes: NDArray[np.intp], size: int) -> NDArray[np.intp]:
+    """(size, size) symmetric matrix of edge label codes + 1 (0: no edge)."""
+    m = np.zeros((size, size), dtype=np.intp)
+    if len(lab.edges):
+        ends = np.asarray(lab.edges, dtype=np.intp)
+        m[ends[:, 0], ends[:, 1]] = m[ends[:, 1], ends[:, 0]] = codes + 1
+    return m
+
+
+class _PathCost:
+    """Cost of the edit path induced by a node map (image or -1 per node of the first graph).
+
+    Vectorised: the tables hold costs relative to inserting every node and edge of the
+    second graph, and index -1 reads their last row and column, which stand for
+    "deleted". Built once per pair of graphs, then called for each map.
+    """
+
+    def __init__(self, a: _Labeled, b: _Labeled, costs: _Costs) -> None:
+        n1, n2 = len(a.nodes), len(b.nodes)
+        self.node = np.empty((n1, n2 + 1))
+        self.node[:, :n2] = costs.node_sub - costs.node_ins[None, :]
+        self.node[:, n2] = costs.node_del
+        self.codes2 = _edge_codes(b, costs.edge_b, n2 + 1)
+        ea = np.asarray(a.edges, dtype=np.intp).reshape(-1, 2)
+        self.end0, self.end1 = ea[:, 0], ea[:, 1]
+        self.codes1 = costs.edge_a + 1
+        table = _edge_table(costs)
+        self.edge = table - table[0][None, :]  # an edge that is hit is not inserted
+        self.rows = np.arange(n1)
+        self.base = float(costs.node_ins.sum() + costs.edge_ins.sum())
+
+    def __call__(self, image: NDArray[np.intp]) -> float:
+        hit = self.codes2[image[self.end0], image[self.end1]]
+        return float(
+            self.base + self.node[self.rows, image].sum() + self.edge[self.codes1, hit].sum()
+        )
 
 
 def _round_lower(lower: float, costs: _Costs, from_solver: bool = True) -> float:
@@ -647,7 +674,7 @@ def _incident_sum(lab: _Labeled, values: NDArray[np.float64]) -> NDArray[np.floa
 
 
 def _bounds(
-    a: _Labeled, b: _Labeled, costs: _Costs
+    a: _Labeled, b: _Labeled, costs: _Costs, path_cost: _PathCost | None = None
 ) -> tuple[float, float, NDArray[np.intp]]:
     """Cheap lower bound, bipartite upper bound and the node map giving that upper bound."""
     n1, n2 = len(a.nodes), len(b.nodes)
@@ -681,8 +708,9 @@ def _bounds(
     # Bipartite upper bound (Riesen & Bunke): full local edge costs; the node map's true
     # edit cost is an upper bound. The branch map is a second candidate.
     full = _assign(sub + star, costs.node_del + del_a, costs.node_ins + ins_b)
-    best_image, upper = full, _path_cost(a, b, full, costs)
-    other = _path_cost(a, b, half, costs)
+    path_cost = path_cost or _PathCost(a, b, costs)
+    best_image, upper = full, path_cost(full)
+    other = path_cost(half)
     if other < upper:
         best_image, upper = half, other
     lower = min(_round_lower(lower, costs, from_solver=False), upper)
@@ -724,20 +752,14 @@ def _padded(a: _Labeled, b: _Labeled, costs: _Costs) -> _Padded:
     node_cost[:n1, :n2] = _node_sub_matrix(a, b, costs)
     node_cost[:n1, n2:] = costs.node_del[:, None]
     node_cost[n1:, :n2] = costs.node_ins[None, :]
-    codes = []
-    for lab, code in ((a, costs.edge_a), (b, costs.edge_b)):
-        m = np.zeros((big_n, big_n), dtype=np.intp)
-        if len(lab.edges):
-            ends = np.asarray(lab.edges, dtype=np.intp)
-            m[ends[:, 0], ends[:, 1]] = m[ends[:, 1], ends[:, 0]] = code + 1
-        codes.append(m)
-    # edge label codes + 1; code 0 means "no edge"
-    k = len(costs.edge_del_t) + 1
-    edge_cost = np.zeros((k, k))
-    edge_cost[1:, 1:] = costs.edge_sub_t
-    edge_cost[1:, 0] = costs.edge_del_t
-    edge_cost[0, 1:] = costs.edge_ins_t
-    return _Padded(node_cost, codes[0], codes[1], edge_cost, n1, n2)
+    return _Padded(
+        node_cost,
+        _edge_codes(a, costs.edge_a, big_n),
+        _edge_codes(b, costs.edge_b, big_n),
+        _edge_table(costs),
+        n1,
+        n2,
+    )
 
 
 def _to_perm(image: NDArray[np.intp], n2: int) -> NDArray[np.intp]:
@@ -945,39 +967,10 @@ def _stars(a: _Labeled, b: _Labeled, costs: _Costs) -> _Stars | None:
     )
 
 
-class _MapCost:
-    """Edit cost of node maps (image or -1 per node of the first graph), vectorised.
-
-    Same value as :func:`_path_cost`. Tables hold costs relative to inserting every node
-    and edge of the second graph; index -1 reads their last row and column, which stand
-    for "deleted".
-    """
-
-    def __init__(self, a: _Labeled, b: _Labeled, pad: _Padded, costs: _Costs) -> None:
-        n1, n2 = pad.n1, pad.n2
-        self.node = np.empty((n1, n2 + 1))
-        self.node[:, :n2] = pad.node_cost[:n1, :n2] - costs.node_ins[None, :]
-        self.node[:, n2] = costs.node_del
-        self.codes2 = np.zeros((n2 + 1, n2 + 1), dtype=np.intp)
-        self.codes2[:n2, :n2] = pad.codes2[:n2, :n2]
-        ea = np.asarray(a.edges, dtype=np.intp).reshape(-1, 2)
-        self.end0, self.end1 = ea[:, 0], ea[:, 1]
-        self.codes1 = pad.codes1[self.end0, self.end1]
-        self.edge = pad.edge_cost - pad.edge_cost[0][None, :]  # code 0: no edge to insert
-        self.rows = np.arange(n1)
-        self.base = float(costs.node_ins.sum() + costs.edge_ins.sum())
-
-    def __call__(self, image: NDArray[np.intp]) -> float:
-        hit = self.codes2[image[self.end0], image[self.end1]]
-        return float(
-            self.base + self.node[self.rows, image].sum() + self.edge[self.codes1, hit].sum()
-        )
-
-
 def _lagrangian(
     stars: _Stars,
     pad: _Padded,
-    map_cost: _MapCost,
+    path_cost: _PathCost,
     costs: _Costs,
     lower: float,
     upper: float,
@@ -1055,10 +1048,10 @@ def _lagrangian(
         key = assign.tobytes()
         if key not in seen:
             seen.add(key)
-            candidate, cost = assign, map_cost(assign)
+            candidate, cost = assign, path_cost(assign)
             if cost <= upper + _LAGRANGE_SEARCH_MARGIN * q:
                 candidate = _local_search(pad, assign, deadline=deadline)
-                cost = map_cost(candidate)
+                cost = path_cost(candidate)
             if cost < upper:
                 upper, image = cost, candidate
                 if _closed(lower, upper):
@@ -1619,8 +1612,9 @@ def edit_distance(
     # With a cost unit and small stars, the Lagrangian step replaces the cheap bounds: its
     # first step is a bound of the same kind, and it goes on from there.
     stars = _stars(a, b, costs) if costs.unit is not None else None
+    path_cost = _PathCost(a, b, costs)
     if stars is None:
-        lower, upper, image = _bounds(a, b, costs)
+        lower, upper, image = _bounds(a, b, costs, path_cost)
     else:
         lower, upper, image = _round_lower(_label_bound(a, b, costs), costs, False), math.inf, None
     if stars is not None or not _closed(lower, upper):
@@ -1631,7 +1625,7 @@ def edit_distance(
             if candidate is None:
                 return
             candidate = _local_search(pad, candidate, deadline=deadline)
-            cost = _path_cost(a, b, candidate, costs)
+            cost = path_cost(candidate)
             if cost < upper:
                 upper, image = cost, candidate
 
@@ -1648,7 +1642,7 @@ def edit_distance(
 
         if stars is not None:
             lower, upper, image, _ = _lagrangian(
-                stars, pad, _MapCost(a, b, pad, costs), costs, lower, upper, image, deadline
+                stars, pad, path_cost, costs, lower, upper, image, deadline
             )
         else:
             consider(image)
@@ -1674,7 +1668,7 @@ def edit_distance(
             if not _closed(lower, upper) and (left is None or left > 0):
                 outcome = _solve_milp(prog, n1, n2, costs, upper, left)
                 if outcome.image is not None:
-                    cost = _path_cost(a, b, outcome.image, costs)
+                    cost = path_cost(outcome.image)
                     if cost < upper:
                         upper, image = cost, outcome.image
                     # Without a cost unit, trust HiGHS's zero-gap optimum up to its

@@ -664,50 +664,54 @@ def test_branch_lower_bound_never_exceeds_networkx():
         assert ref <= upper + 1e-9
 
 
+def _prepared(g1: nx.Graph, g2: nx.Graph, costs: dict = UNIT):
+    """gwpred's index form of both graphs and their cost tables (as edit_distance builds them)."""
+    from gwpred.metrics import _prepare
+
+    return _prepare(g1, g2, "label", "label", cost_kwargs(costs))
+
+
+def _relaxation_optimum(prog) -> float:
+    """Reference: optimum of the program's linear relaxation from scipy.optimize.linprog."""
+    from scipy.optimize import linprog
+
+    from gwpred.metrics import _variable_bounds
+
+    lo, hi = _variable_bounds(prog)
+    ref = linprog(
+        prog.c, A_ub=prog.matrix, b_ub=prog.ub, bounds=np.column_stack([lo, hi]), method="highs"
+    )
+    assert ref.status == 0
+    return float(ref.fun)
+
+
 def test_relaxation_stopped_early_is_still_a_lower_bound():
     # edit_distance lets HiGHS's dual simplex stop the linear relaxation (of the binary
     # program of Lerouge et al., Pattern Recognition 72, 2017) once its objective reaches a
     # target (HiGHS option objective_bound, documented as the "objective bound for
     # termination of the dual simplex"). References: the relaxation's optimum from
     # scipy.optimize.linprog on the same program, and the exact distance from networkx.
-    from scipy.optimize import linprog
-
-    from gwpred.metrics import (
-        _check_costs,
-        _labeled,
-        _pair_costs,
-        _program,
-        _relaxation,
-        _variable_bounds,
-    )
+    from gwpred.metrics import _program, _relaxation
 
     rng = random.Random(77)
-    spec = _check_costs(**cost_kwargs(UNIT))
     stopped = full = 0
     for _ in range(120):
         g1 = random_graph(rng, 3, 6)
         g2 = random_graph(rng, 3, 6)
-        a = _labeled(g1, "g1", "label", "label")
-        b = _labeled(g2, "g2", "label", "label")
-        costs = _pair_costs(spec, a, b)
+        a, b, costs = _prepared(g1, g2)
         prog = _program(a, b, costs)
-        lo, hi = _variable_bounds(prog)
-        ref = linprog(
-            prog.c, A_ub=prog.matrix, b_ub=prog.ub, bounds=np.column_stack([lo, hi]),
-            method="highs",
-        )
-        assert ref.status == 0
+        ref = _relaxation_optimum(prog)
         ged = networkx_ged(g1, g2)
-        assert ref.fun <= ged + 1e-7  # a relaxation
-        for stop_at in (ref.fun - 0.5, ref.fun + 0.5, ged - 0.9):
+        assert ref <= ged + 1e-7  # a relaxation
+        for stop_at in (ref - 0.5, ref + 0.5, ged - 0.9):
             bound, image = _relaxation(prog, len(a.nodes), len(b.nodes), None, stop_at)
-            assert bound <= ref.fun + 1e-6 and bound <= ged + 1e-9
+            assert bound <= ref + 1e-6 and bound <= ged + 1e-9
             if image is None:  # stopped at the target: the bound is the target
                 stopped += 1
                 assert bound == stop_at
             else:  # solved: the bound is the optimum
                 full += 1
-                assert bound == pytest.approx(ref.fun, abs=1e-6)
+                assert bound == pytest.approx(ref, abs=1e-6)
     assert stopped > 0 and full > 0
 
 
@@ -720,18 +724,13 @@ def test_lagrangian_bound_is_below_relaxation_and_networkx():
     # same program, and the exact distance from networkx.graph_edit_distance. Random
     # unit costs and costs in multiples of 0.25, 300 pairs of up to 6 nodes (those with a
     # node of degree 6 are skipped, as in edit_distance).
-    from scipy.optimize import linprog
-
     from gwpred.metrics import (
-        _check_costs,
-        _labeled,
         _lagrangian,
-        _MapCost,
+        _mapping_dict,
         _padded,
-        _pair_costs,
+        _PathCost,
         _program,
         _stars,
-        _variable_bounds,
     )
 
     rng = random.Random(1987)
@@ -740,50 +739,40 @@ def test_lagrangian_bound_is_below_relaxation_and_networkx():
         cost_dict = UNIT if k % 2 == 0 else _costs_with_strict_triangle(rng)
         g1 = random_graph(rng, 2, 6)
         g2 = random_graph(rng, 2, 6)
-        a = _labeled(g1, "g1", "label", "label")
-        b = _labeled(g2, "g2", "label", "label")
-        costs = _pair_costs(_check_costs(**cost_kwargs(cost_dict)), a, b)
+        a, b, costs = _prepared(g1, g2, cost_dict)
         stars = _stars(a, b, costs)
         if stars is None:
             continue
         tried += 1
-        prog = _program(a, b, costs)
-        lo, hi = _variable_bounds(prog)
-        ref = linprog(
-            prog.c, A_ub=prog.matrix, b_ub=prog.ub, bounds=np.column_stack([lo, hi]),
-            method="highs",
-        )
+        ref = _relaxation_optimum(_program(a, b, costs))
         ged = networkx_ged(g1, g2, cost_dict)
-        pad = _padded(a, b, costs)
         lower, upper, image, _ = _lagrangian(
-            stars, pad, _MapCost(a, b, pad, costs), costs, -math.inf, math.inf, None
+            stars, _padded(a, b, costs), _PathCost(a, b, costs), costs, -math.inf, math.inf, None
         )
         q = costs.unit
-        assert lower <= math.ceil(ref.fun / q - 1e-6) * q + 1e-9
+        assert lower <= math.ceil(ref / q - 1e-6) * q + 1e-9
         assert lower <= ged + 1e-9 <= upper + 2e-9
-        mapping = dict(zip(a.nodes, [b.nodes[i] if i >= 0 else None for i in image]))
+        mapping = _mapping_dict(a, b, image)
         assert mapping_cost(g1, g2, mapping, cost_dict) == pytest.approx(upper, abs=1e-9)
         closed += lower == upper
     assert tried >= 150 and closed >= tried // 2, (tried, closed)
 
 
-def test_vectorised_map_cost_matches_the_definition():
-    # _MapCost (used by the Lagrangian step) against mapping_cost above, which follows the
-    # definition of an edit path's cost, on random node maps and random costs.
-    from gwpred.metrics import _check_costs, _labeled, _MapCost, _padded, _pair_costs
+def test_vectorised_path_cost_matches_the_definition():
+    # _PathCost (every edit path's cost inside edit_distance) against mapping_cost above,
+    # which follows the definition of an edit path's cost, on random node maps and costs.
+    from gwpred.metrics import _mapping_dict, _PathCost
 
     rng = random.Random(5)
     for k in range(200):
         cost_dict = UNIT if k % 2 == 0 else _costs_with_strict_triangle(rng)
         g1 = random_graph(rng, 1, 7)
         g2 = random_graph(rng, 1, 7)
-        a = _labeled(g1, "g1", "label", "label")
-        b = _labeled(g2, "g2", "label", "label")
-        costs = _pair_costs(_check_costs(**cost_kwargs(cost_dict)), a, b)
-        cost = _MapCost(a, b, _padded(a, b, costs), costs)
+        a, b, costs = _prepared(g1, g2, cost_dict)
+        cost = _PathCost(a, b, costs)
         slots = rng.sample(range(len(b.nodes) + len(a.nodes)), len(a.nodes))
         image = np.array([i if i < len(b.nodes) else -1 for i in slots], dtype=np.intp)
-        mapping = dict(zip(a.nodes, [b.nodes[i] if i >= 0 else None for i in image]))
+        mapping = _mapping_dict(a, b, image)
         assert cost(image) == pytest.approx(mapping_cost(g1, g2, mapping, cost_dict), abs=1e-9)
 
 
