@@ -113,32 +113,13 @@ class _Costs:
     # (node_del, node_ins, node_sub, edge_del, edge_ins, edge_sub) when no cost depends on
     # the labels (closed forms apply), edge_sub at most edge_del + edge_ins; else None
     scalar: tuple[float, ...] | None
-
-    @cached_property
-    def node_sub(self) -> NDArray[np.float64]:
-        """(n1, n2) substitution costs."""
-        return self.node_sub_t[self.node_a[:, None], self.node_b[None, :]]
-
-    @cached_property
-    def node_del(self) -> NDArray[np.float64]:
-        return self.node_del_t[self.node_a]
-
-    @cached_property
-    def node_ins(self) -> NDArray[np.float64]:
-        return self.node_ins_t[self.node_b]
-
-    @cached_property
-    def edge_sub(self) -> NDArray[np.float64]:
-        """(m1, m2) substitution costs, at most deletion plus insertion."""
-        return self.edge_sub_t[self.edge_a[:, None], self.edge_b[None, :]]
-
-    @cached_property
-    def edge_del(self) -> NDArray[np.float64]:
-        return self.edge_del_t[self.edge_a]
-
-    @cached_property
-    def edge_ins(self) -> NDArray[np.float64]:
-        return self.edge_ins_t[self.edge_b]
+    # The same costs per node, edge or pair of them, read from the tables through the codes.
+    node_sub: NDArray[np.float64]  # (n1, n2)
+    node_del: NDArray[np.float64]  # (n1,)
+    node_ins: NDArray[np.float64]  # (n2,)
+    edge_sub: NDArray[np.float64]  # (m1, m2)
+    edge_del: NDArray[np.float64]  # (m1,)
+    edge_ins: NDArray[np.float64]  # (m2,)
 
     @cached_property
     def unit(self) -> float | None:
@@ -331,7 +312,16 @@ def _pair_costs(spec: _CostSpec, a: _Labeled, b: _Labeled) -> _Costs:
     if uniform:
         sub = min(spec.edge_sub, spec.edge_del + spec.edge_ins)
         scalar = (spec.node_del, spec.node_ins, spec.node_sub, spec.edge_del, spec.edge_ins, sub)
-    return _Costs(ns, nd, ni, es, ed, ei, na, nb, ea, eb, scalar=scalar)
+    return _Costs(
+        ns, nd, ni, es, ed, ei, na, nb, ea, eb,
+        scalar=scalar,
+        node_sub=ns[na[:, None], nb[None, :]],
+        node_del=nd[na],
+        node_ins=ni[nb],
+        edge_sub=es[ea[:, None], eb[None, :]],
+        edge_del=ed[ea],
+        edge_ins=ei[eb],
+    )
 
 
 def _check_time_limit(time_limit: float | None) -> float | None:
