@@ -1,0 +1,335 @@
+"""Layer 0: what every other module may use, and nothing that knows about graphs.
+
+- input checks with fix hints (:func:`check_inputs`) and a declarative table of
+  parameter constraints checked by one validator (:class:`Rule`,
+  :func:`validate_params`);
+- atomic file writes (:func:`atomic_open`, :func:`atomic_write_text`): a killed
+  process never leaves a user's file truncated;
+- the one way to reach an optional extra (:func:`require_extra`,
+  :func:`has_extra`), whose error names the extra to install;
+- the one progress bar (:func:`progress_bar`);
+- the caution shown beside predicted molecules (:data:`CAUTION`).
+
+It imports nothing from gwpred.
+"""
+
+from __future__ import annotations
+
+import importlib
+import importlib.util
+import numbers
+import os
+import secrets
+import sys
+from collections.abc import Iterable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass
+from pathlib import Path
+from types import ModuleType
+from typing import IO, Any, Union
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+from tqdm.auto import tqdm
+
+__all__ = [
+    "CAUTION",
+    "EXTRAS",
+    "Options",
+    "Interval",
+    "Rule",
+    "StrPath",
+    "atomic_open",
+    "atomic_write_text",
+    "check_inputs",
+    "has_extra",
+    "install_hint",
+    "progress_bar",
+    "require_extra",
+    "validate_params",
+]
+
+StrPath = Union[str, "os.PathLike[str]"]
+
+#: Shown wherever predicted molecules are shown (command line, report, README).
+CAUTION = (
+    "Predicted molecules are hypotheses: confirm any structure by analytical methods before "
+    "acting on it, and handle chemicals only under local lab-safety rules and their safety data sheets."
+)
+
+# --------------------------------------------------------------------------- optional extras
+
+#: Importable module -> (pip extra of gwpred that installs it, name shown to users).
+EXTRAS: dict[str, tuple[str, str]] = {
+    "rdkit": ("chem", "RDKit"),
+    "qm9pack": ("data", "qm9pack"),
+    "torch": ("neural", "PyTorch"),
+    "distributed": ("distributed", "Dask distributed"),
+}
+
+
+def install_hint(extra: str) -> str:
+    """The pip command that installs one extra of gwpred.
+
+    >>> install_hint("chem")
+    "pip install 'gwpred[chem]' (or 'gwpred[all]')"
+    """
+    return f"pip install 'gwpred[{extra}]' (or 'gwpred[all]')"
+
+
+def has_extra(module: str) -> bool:
+    """Whether an optional module can be imported, without importing it.
+
+    >>> has_extra("numpy"), has_extra("no_such_module_here")
+    (True, False)
+    """
+    top = module.split(".", 1)[0]
+    try:
+        return importlib.util.find_spec(top) is not None
+    except (ImportError, ValueError):
+        return False
+
+
+def require_extra(module: str, purpose: str = "this function") -> ModuleType:
+    """Import an optional module (``"rdkit.Chem"``, ``"torch"``) or raise naming its extra.
+
+    Parameters
+    ----------
+    module : str
+        Dotted module name; its first part must be a key of :data:`EXTRAS`.
+    purpose : str, default="this function"
+        What needs it, to start the error message (e.g. ``"load_qm9"``).
+
+    Returns
+    -------
+    module
+
+    Raises
+    ------
+    ImportError
+        Naming the extra and the pip command that installs it.
+    """
+    top = module.split(".", 1)[0]
+    extra, shown = EXTRAS[top]
+    try:
+        importlib.import_module(top)  # the package itself first, as a plain `import` would
+        return importlib.import_module(module)
+    except ImportError as err:
+        raise ImportError(
+            f"{purpose} needs {shown} (the optional extra '{extra}' of gwpred); "
+            f"install it with: {install_hint(extra)}"
+        ) from err
+
+
+# --------------------------------------------------------------------------- progress
+
+
+def progress_bar(
+    items: Iterable[Any] | None,
+    *,
+    progress: bool,
+    total: int | None = None,
+    desc: str = "",
+    unit: str = "it",
+    mininterval: float = 0.1,
+) -> Any:
+    """Wrap ``items`` in a progress bar on standard error when ``progress`` is true.
+
+    The one spelling of progress in gwpred: functions and estimators take
+    ``progress: bool`` and pass it here.  ``mininterval`` is the least time
+    in seconds between redraws.
+    """
+    return tqdm(
+        items, total=total, desc=desc, unit=unit, disable=not progress, file=sys.stderr, mininterval=mininterval
+    )
+
+
+# --------------------------------------------------------------------------- input checks
+
+
+def check_inputs(X: ArrayLike, name: str = "X") -> NDArray[np.float64]:
+    """Return ``X`` as a finite 2-D float array, or raise saying what to fix.
+
+    >>> check_inputs([[1, 2], [3, 4]]).shape
+    (2, 2)
+    """
+    try:
+        arr = np.asarray(X, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise ValueError(f"{name} must be a numeric array of shape (n_samples, n_features).") from None
+    if arr.ndim != 2:
+        raise ValueError(
+            f"{name} must be 2-D (n_samples, n_features); got {arr.ndim}-D with shape "
+            f"{arr.shape}. Reshape a single sample with X.reshape(1, -1)."
+        )
+    if arr.shape[0] == 0:
+        raise ValueError(f"{name} has no rows; pass at least one sample.")
+    bad = ~np.isfinite(arr)
+    if bad.any():
+        r, c = np.argwhere(bad)[0]
+        raise ValueError(
+            f"{name} has {int(bad.sum())} NaN or infinite value(s), the first at row {r}, "
+            f"column {c}; impute or drop them before fitting or predicting."
+        )
+    return arr
+
+
+# --------------------------------------------------------------------------- parameter constraints
+
+
+@dataclass(frozen=True)
+class Options:
+    """One of a few fixed values; ``True`` and ``1`` are different values here."""
+
+    values: tuple[Any, ...]
+
+    def accepts(self, value: Any) -> bool:
+        return any(isinstance(value, type(v)) and value == v for v in self.values)
+
+    def describe(self) -> str:
+        if len(self.values) == 1:
+            return repr(self.values[0])
+        return f"one of {list(self.values)}"
+
+
+@dataclass(frozen=True)
+class Interval:
+    """A finite real (or, with ``integer=True``, integral) number in ``[low, high]``.
+
+    Booleans are never numbers here.
+    """
+
+    low: float = -np.inf
+    high: float = np.inf
+    integer: bool = False
+
+    def accepts(self, value: Any) -> bool:
+        kind = numbers.Integral if self.integer else numbers.Real
+        if isinstance(value, bool) or not isinstance(value, kind) or not np.isfinite(value):
+            return False
+        return bool(self.low <= value <= self.high)
+
+    def describe(self) -> str:
+        if self.integer:
+            return "a positive integer" if self.low == 1 and self.high == np.inf else (
+                f"an integer in [{self.low:g}, {self.high:g}]"
+            )
+        if self.high == np.inf:
+            return "a non-negative number" if self.low == 0 else "a positive number"
+        return f"a number in [{self.low:g}, {self.high:g}]"
+
+
+@dataclass(frozen=True)
+class Types:
+    """An instance of one of ``types`` (booleans only where ``bool`` is listed)."""
+
+    types: tuple[type, ...]
+
+    def accepts(self, value: Any) -> bool:
+        if isinstance(value, bool) and bool not in self.types:
+            return False
+        return isinstance(value, self.types)
+
+    def describe(self) -> str:
+        return " or ".join(t.__name__ for t in self.types)
+
+
+class Rule:
+    """Allowed values of one parameter: any of ``alternatives`` (``None`` allows None).
+
+    Parameters
+    ----------
+    *alternatives : Options, Interval, Types or None
+    what : str, optional
+        Description used in the message instead of the alternatives' own.
+    error : type, default=ValueError
+        Exception raised on a value that no alternative accepts.
+    """
+
+    def __init__(self, *alternatives: Any, what: str | None = None, error: type[Exception] = ValueError):
+        self.alternatives = alternatives
+        self.what = what
+        self.error = error
+
+    def accepts(self, value: Any) -> bool:
+        return any(value is None if a is None else a.accepts(value) for a in self.alternatives)
+
+    def describe(self) -> str:
+        if self.what:
+            return self.what
+        return " or ".join("None" if a is None else a.describe() for a in self.alternatives)
+
+
+def validate_params(params: Mapping[str, Any], constraints: Mapping[str, Rule]) -> None:
+    """Check every constrained parameter; raise naming the first bad one, what it takes and what came.
+
+    Parameters
+    ----------
+    params : mapping
+        Parameter name -> value (e.g. an estimator's ``get_params(deep=False)``).
+    constraints : mapping of str to Rule
+
+    Raises
+    ------
+    ValueError or TypeError
+        ``"<name> must be <allowed>; got <value>."`` (the rule's error type).
+
+    Examples
+    --------
+    >>> validate_params({"alpha": 2}, {"alpha": Rule(Interval(0, 1))})
+    Traceback (most recent call last):
+    ...
+    ValueError: alpha must be a number in [0, 1]; got 2.
+    """
+    for name, rule in constraints.items():
+        value = params[name]
+        if not rule.accepts(value):
+            raise rule.error(f"{name} must be {rule.describe()}; got {value!r}.")
+
+
+# --------------------------------------------------------------------------- files
+
+
+@contextmanager
+def atomic_open(path: Path, binary: bool) -> Iterator[IO[Any]]:
+    """Open a temporary sibling of ``path`` for writing; move it into place on success.
+
+    A failure (or a killed process) leaves any existing file at ``path`` as it
+    was, and removes the temporary file.
+    """
+    path = Path(path)
+    parent = path.parent
+    if not parent.is_dir():
+        raise FileNotFoundError(
+            f"cannot write {str(path)!r}: directory {str(parent)!r} does not exist; create it first"
+        )
+    tmp = parent / f".{path.name}.{os.getpid()}.{secrets.token_hex(4)}.tmp"
+    try:
+        if binary:
+            fh: IO[Any] = open(tmp, "xb")
+        else:
+            fh = open(tmp, "x", encoding="utf-8", newline="")
+        with fh:
+            yield fh
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+
+
+def atomic_write_text(path: StrPath, text: str) -> None:
+    """Write ``text`` (UTF-8) to ``path`` through :func:`atomic_open`."""
+    with atomic_open(Path(path), binary=False) as fh:
+        fh.write(text)
+
+
+def atomic_write_bytes(path: StrPath, data: bytes) -> None:
+    """Write ``data`` to ``path`` through :func:`atomic_open`."""
+    with atomic_open(Path(path), binary=True) as fh:
+        fh.write(data)
+
