@@ -42,17 +42,19 @@ import networkx as nx
 import numpy as np
 
 try:
-    from gwpred.metrics import edit_distance
+    import gwpred  # noqa: F401
 except ImportError:  # run from a checkout without installing
     sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-    from gwpred.metrics import edit_distance
+from gwpred import BarycenterGraphPredictor
+from gwpred.chem import rdkit_modules
+from gwpred.datasets import load_demo
+from gwpred.metrics import edit_distance
 
 
 def qm9_graphs(limit: int | None = None) -> list[nx.Graph]:
     """Heavy-atom graphs of the molecules in qm9pack's qm9_part1.csv."""
-    from rdkit import Chem, RDLogger
-
-    RDLogger.DisableLog("rdApp.*")
+    Chem, rdBase = rdkit_modules("benchmarks/bench_ged.py")
+    rdBase.DisableLog("rdApp.*")
     spec = importlib.util.find_spec("qm9pack")
     if spec is None or spec.origin is None:
         raise SystemExit("qm9pack is not installed: pip install qm9pack")
@@ -81,9 +83,6 @@ def qm9_graphs(limit: int | None = None) -> list[nx.Graph]:
 
 def near_pairs(count: int) -> list[tuple[nx.Graph, nx.Graph]]:
     """(prediction, truth) for demo molecules 2000.. of a predictor trained on 0..1999."""
-    from gwpred import BarycenterGraphPredictor
-    from gwpred.datasets import load_demo
-
     x, graphs = load_demo()
     est = BarycenterGraphPredictor(random_state=0).fit(x[:2000], graphs[:2000])
     predicted = est.predict(x[2000 : 2000 + count])

@@ -37,7 +37,8 @@ from gwpred import BarycenterGraphPredictor
 from gwpred.compare import load_comparison_data
 from gwpred.datasets import split_indices
 from gwpred.fgw import _cg_batch, _initial_plans, feature_costs, pad_graphs
-from gwpred.ranking import CandidateLibrary, prepare_candidates, rank_candidates
+from gwpred.ranking import CandidateLibrary, candidate_fgw_arrays, prepare_candidates, rank_candidates
+from gwpred.wl import LabelIds
 
 
 def rates(model, X, library, rows, fgw_queries: int) -> None:
@@ -68,13 +69,10 @@ def rates(model, X, library, rows, fgw_queries: int) -> None:
 
 def solver_settings(model, x, library, row) -> None:
     """Part 2: starts and step limits of the FGW scorer, on one candidate set."""
-    from gwpred.ranking import _fgw_encoder, _Space
-
     soft = model.predict_barycenters(x[None])[0]
     k = model.labels_.n_node_labels
     F = np.concatenate([soft.node_scores[:, :k], np.zeros((len(soft.node_scores), 1))], 1)
-    space = _Space.of(model.labels_)
-    cands = library.cached(("fgw", space.key), row, _fgw_encoder(library, space))
+    cands = candidate_fgw_arrays(library, LabelIds.of(model.labels_), row)
     Cs, Fs, q, sizes = pad_graphs([c.structure for c in cands], [c.features for c in cands])
     n = len(F)
     h = np.full(n, 1.0 / n)

@@ -23,6 +23,7 @@ import numpy as np
 from gwpred import BarycenterGraphPredictor
 from gwpred.datasets import load_demo
 from gwpred.metrics import summarize
+from gwpred.model.steps import neighbourhood, predict_query
 from gwpred.weights import sparsify
 
 
@@ -57,7 +58,8 @@ def main() -> None:
         for name, W, policy in (("ridge, clip", ridge, "clip"), ("ridge, shift", ridge, "shift"),
                                 ("k-NN kernel values", knn, "clip")):
             idx, w = sparsify(W, k, negative=policy)
-            pred = [model._decode(model._solve_one(i[ww > 0], ww[ww > 0])) for i, ww in zip(idx, w)]
+            settings = model._settings(need_valences=False)  # the model's own decoding settings
+            pred = [predict_query(neighbourhood(model.training_, i, ww), settings) for i, ww in zip(idx, w)]
             s = summarize(pred, truth)
             print(f"{name + f', top-{k}':<34}{s['mean_ged']:>9.3f}{100 * s['right_size_rate']:>11.1f}%",
                   flush=True)

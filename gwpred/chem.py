@@ -41,6 +41,8 @@ import networkx as nx
 import numpy as np
 from numpy.typing import NDArray
 
+from ._utils import atomic_write_text, install_hint, require_extra
+
 __all__ = [
     "MoleculeCheck",
     "check_molecule",
@@ -58,7 +60,7 @@ StrPath = Union[str, "os.PathLike[str]"]
 T = TypeVar("T")
 
 #: How to get RDKit when it is missing.
-INSTALL_HINT = "install with pip install 'gwpred[chem]'"
+INSTALL_HINT = f"install with {install_hint('chem')}"
 
 _LOG_PREFIX = re.compile(r"^\[\d\d:\d\d:\d\d\] ")
 _ERROR_PREFIX = re.compile(r"error: ", re.IGNORECASE)
@@ -67,16 +69,13 @@ _ERROR_PREFIX = re.compile(r"error: ", re.IGNORECASE)
 # --------------------------------------------------------------------------- RDKit access
 
 
-def _rdkit() -> tuple[Any, Any]:
-    """Return the ``rdkit.Chem`` and ``rdkit.rdBase`` modules, or raise naming the extra."""
-    try:
-        from rdkit import Chem, rdBase
-    except ImportError as err:
-        raise ImportError(
-            "this function needs RDKit, which is the optional extra 'chem' of gwpred; "
-            f"{INSTALL_HINT}"
-        ) from err
-    return Chem, rdBase
+def rdkit_modules(purpose: str = "this function") -> tuple[Any, Any]:
+    """Return the ``rdkit.Chem`` and ``rdkit.rdBase`` modules, or raise naming the extra.
+
+    The one RDKit check of gwpred: every other module that needs RDKit calls
+    this (or a function of this module) first.
+    """
+    return require_extra("rdkit.Chem", purpose), require_extra("rdkit.rdBase", purpose)
 
 
 def _clean_log(text: str) -> str:
@@ -93,7 +92,7 @@ def _quiet(fn: Callable[..., T], *args: Any, **kwargs: Any) -> tuple[T, str]:
     Returns the function's result and the captured log text (empty when this
     RDKit cannot capture its log; the log is then only silenced).
     """
-    _, rdBase = _rdkit()
+    _, rdBase = rdkit_modules()
     capture = getattr(rdBase, "CaptureErrorLog", None)
     if capture is None:  # pragma: no cover - RDKit releases before CaptureErrorLog
         with rdBase.BlockLogs():
@@ -106,13 +105,13 @@ def _quiet(fn: Callable[..., T], *args: Any, **kwargs: Any) -> tuple[T, str]:
 @lru_cache(maxsize=1)
 def _atomic_numbers() -> dict[str, int]:
     """Element symbol -> atomic number for elements 1..118 (RDKit's periodic table)."""
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     table = Chem.GetPeriodicTable()
     return {table.GetElementSymbol(z): z for z in range(1, 119)}
 
 
 def _bond_types() -> dict[int, Any]:
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     B = Chem.BondType
     return {1: B.SINGLE, 2: B.DOUBLE, 3: B.TRIPLE}
 
@@ -122,7 +121,7 @@ def _bond_types() -> dict[int, Any]:
 
 def _fold_hydrogens(mol: Any, where: str) -> Any:
     """Remove hydrogen atoms, adding them to their heavy neighbour's hydrogen count."""
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     params = Chem.RemoveHsParameters()
     params.removeIsotopes = True  # [2H] -> implicit H: isotopes are not kept
     params.removeMapped = True
@@ -178,7 +177,7 @@ def _check_hydrogens(mol: Any, G: nx.Graph, where: str, node_label: str, edge_la
 
 def _parse_smiles(smiles: str) -> Any:
     """Parse and fully sanitize a SMILES with RDKit (hydrogens still explicit if written)."""
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     if not isinstance(smiles, str):
         raise TypeError(f"SMILES must be a str, got {smiles!r} of type {type(smiles).__name__}")
     if not smiles.strip():
@@ -211,7 +210,7 @@ def _graph_from_parsed(
     edge_label: str,
     check_hydrogens: bool,
 ) -> nx.Graph:
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     mol = _fold_hydrogens(mol, where)
     mol = Chem.Mol(mol)
     try:
@@ -342,7 +341,7 @@ def _check_graph_type(graph: Any) -> None:
 
 def _mol_from_graph(graph: nx.Graph, node_label: str, edge_label: str, charge: str) -> Any:
     """Unsanitized RDKit molecule with one atom per node, in ``graph.nodes`` order."""
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     _check_graph_type(graph)
     if graph.is_directed():
         raise ValueError("a molecular graph must be undirected; pass graph.to_undirected()")
@@ -385,7 +384,7 @@ def _sanitized(mol: Any, where: str, aromaticity: bool = True, cleanup: bool = F
     metals into dative bonds, are skipped, so such input is reported invalid
     instead of being silently changed.
     """
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     out = Chem.Mol(mol)
     flags = Chem.SanitizeFlags
     ops = flags.SANITIZE_ALL
@@ -497,7 +496,7 @@ def graph_to_smiles(
     >>> graph_to_smiles(graph_from_smiles("C1=CC=CC=C1O"))
     'Oc1ccccc1'
     """
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     _check_graph_type(graph)
     if graph.number_of_nodes() == 0:
         raise ValueError("graph has no nodes; a molecule needs at least one atom")
@@ -526,7 +525,7 @@ class MoleculeCheck:
 
 
 def _raw_smiles(mol: Any) -> str | None:
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     try:
         text, _ = _quiet(Chem.MolToSmiles, mol, isomericSmiles=False)
     except (ValueError, RuntimeError):  # pragma: no cover - RDKit writes most molecules
@@ -578,7 +577,7 @@ def check_molecule(
     >>> check_molecule(star).valid
     False
     """
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     _check_graph_type(graph)
     if graph.number_of_nodes() == 0:
         return MoleculeCheck(False, None, "graph has no nodes; a molecule needs at least one atom")
@@ -681,13 +680,6 @@ def _record_name(G: nx.Graph, index: int) -> str | None:
     return name
 
 
-def _write_text(path: StrPath, text: str) -> None:
-    from .io import _atomic_open
-
-    with _atomic_open(Path(path), binary=False) as fh:
-        fh.write(text)
-
-
 def _graph_smiles(G: Any, index: int, node_label: str, edge_label: str, charge: str) -> str:
     _check_graph_type_at(G, index)
     try:
@@ -752,7 +744,7 @@ def write_smiles_file(
         smiles = _graph_smiles(G, i, node_label, edge_label, charge)
         name = _record_name(G, i)
         lines.append(smiles if name is None else f"{smiles} {name}")
-    _write_text(path, "".join(line + "\n" for line in lines))
+    atomic_write_text(path, "".join(line + "\n" for line in lines))
 
 
 # --------------------------------------------------------------------------- SDF files
@@ -821,7 +813,7 @@ def read_sdf(
     -----
     Coordinates, stereochemistry and isotopes are dropped.
     """
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     p = Path(path)
     _check_path_exists(p, "SDF")
     if not p.read_bytes().strip():
@@ -867,7 +859,7 @@ def _sd_value(G: nx.Graph, index: int, key: Any, value: Any) -> str:
 
 
 def _sdf_block(G: Any, index: int, node_label: str, edge_label: str, charge: str) -> str:
-    Chem, _ = _rdkit()
+    Chem, _ = rdkit_modules()
     _check_graph_type_at(G, index)
     where = f"graphs[{index}]"
     if G.number_of_nodes() == 0:
@@ -878,7 +870,7 @@ def _sdf_block(G: Any, index: int, node_label: str, edge_label: str, charge: str
         raise type(err)(f"{where} cannot be written as SDF: {err}") from err
     name = _record_name(G, index)
     mol.SetProp("_Name", name or "")
-    from rdkit.Chem import rdDepictor
+    rdDepictor = require_extra("rdkit.Chem.rdDepictor")
 
     rdDepictor.Compute2DCoords(mol)
     lines = [Chem.MolToMolBlock(mol, kekulize=False)]
@@ -935,7 +927,7 @@ def write_sdf(
     """
     graphs = list(graphs)
     blocks = [_sdf_block(G, i, node_label, edge_label, charge) for i, G in enumerate(graphs)]
-    _write_text(path, "".join(blocks))
+    atomic_write_text(path, "".join(blocks))
 
 
 # --------------------------------------------------------------------------- fingerprints
@@ -951,7 +943,7 @@ def _positive_int(name: str, value: Any, minimum: int) -> int:
 
 def _as_mol(item: Any, index: int) -> Any:
     if isinstance(item, str):
-        Chem, _ = _rdkit()
+        Chem, _ = rdkit_modules()
         try:
             mol = _parse_smiles(item)
         except ValueError as err:
@@ -1018,8 +1010,7 @@ def morgan_fingerprints(
         raise TypeError("molecules must be a sequence of SMILES or graphs, not one str; wrap it: [smiles]")
     radius = _positive_int("radius", radius, 0)
     n_bits = _positive_int("n_bits", n_bits, 1)
-    _rdkit()
-    from rdkit.Chem import rdFingerprintGenerator
+    rdFingerprintGenerator = require_extra("rdkit.Chem.rdFingerprintGenerator", "morgan_fingerprints")
 
     generator = rdFingerprintGenerator.GetMorganGenerator(radius=radius, fpSize=n_bits)
     fingerprint = generator.GetCountFingerprintAsNumPy if counts else generator.GetFingerprintAsNumPy

@@ -7,19 +7,61 @@ Exit codes: 0 success; 2 bad usage or bad input (a message says what to do);
 from __future__ import annotations
 
 import argparse
+import csv
+import importlib
 import json
 import sys
 import time
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-CAUTION = (
-    "Predicted molecules are hypotheses: confirm any structure by analytical methods before "
-    "acting on it, and handle chemicals only under local lab-safety rules and their safety data sheets."
-)
+from ._utils import CAUTION, atomic_open, atomic_write_text
+from ._version import __version__
+
+if TYPE_CHECKING:  # for annotations only; the commands import the library when they run
+    from .model import BarycenterGraphPredictor
+
+__all__ = ["CAUTION", "UsageError", "build_parser", "main"]
+
+# Library modules are imported inside the commands: `gwpred --help` stays fast
+# (scikit-learn and POT take over a second to import).
+
+
+class _Names(Sequence):
+    """Method names of a library table (``KERNELS``, ``DECODERS``, ``SCORERS``), read on first use.
+
+    argparse takes it as ``choices``: the table's module is imported only
+    when an option is checked or a subcommand's help is shown.
+    """
+
+    def __init__(self, module: str, table: str, extra: Sequence[str] = ()) -> None:
+        self._where = (module, table)
+        self._extra = tuple(extra)
+        self._names: list[str] | None = None
+
+    def _load(self) -> list[str]:
+        if self._names is None:
+            module, table = self._where
+            self._names = [*getattr(importlib.import_module(f"gwpred.{module}"), table), *self._extra]
+        return self._names
+
+    def __getitem__(self, i: Any) -> Any:
+        return self._load()[i]
+
+    def __len__(self) -> int:
+        return len(self._load())
+
+    def __contains__(self, value: object) -> bool:
+        return value in self._load()
+
+
+_KERNELS = _Names("weights", "KERNELS", extra=("precomputed",))
+_DECODERS = _Names("model.steps", "DECODERS")
+_SCORERS = _Names("ranking", "SCORERS")
+_OUTPUT_KERNELS = _Names("ranking", "OUTPUT_KERNELS")
 
 
 class UsageError(Exception):
@@ -40,7 +82,7 @@ def _model_params(args: argparse.Namespace) -> dict[str, Any]:
         "node_label": args.node_label,
         "edge_label": _edge_label(args),
         "random_state": args.seed,
-        "verbose": not args.quiet,
+        "progress": not args.quiet,
     }
 
 
@@ -56,9 +98,8 @@ def _edge_label(args: argparse.Namespace) -> str | None:
 
 def _add_model_options(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("model")
-    g.add_argument("--kernel", default="rbf",
-                   choices=["rbf", "laplacian", "tanimoto", "cosine", "linear", "precomputed"],
-                   help="input kernel (default: rbf)")
+    g.add_argument("--kernel", default="rbf", choices=_KERNELS, metavar="KERNEL",
+                   help="input kernel: %(choices)s (default: rbf)")
     g.add_argument("--gamma", type=float, default=None,
                    help="rbf/laplacian bandwidth (default: median heuristic)")
     g.add_argument("--ridge", type=float, default=1e-3, help="kernel ridge regularisation (default: 1e-3)")
@@ -67,8 +108,9 @@ def _add_model_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--top-k", type=int, default=10, help="training graphs per prediction (default: 10)")
     g.add_argument("--alpha", type=float, default=0.9,
                    help="FGW trade-off: 0 labels only, 1 structure only (default: 0.9)")
-    g.add_argument("--decoding", default="anchored", choices=["anchored", "free"],
-                   help="decode as edits of the start graph (anchored) or from the barycenter alone (free)")
+    g.add_argument("--decoding", default="anchored", choices=_DECODERS, metavar="DECODER",
+                   help="%(choices)s: decode as edits of the start graph (anchored) or from the barycenter "
+                        "alone (free) (default: anchored)")
     g.add_argument("--consensus", type=float, default=0.8,
                    help="agreement needed to edit the start graph's edges, in [0.5, 1] (default: 0.8)")
     g.add_argument("--valence", action="store_true",
@@ -106,8 +148,8 @@ def _formulas(args: argparse.Namespace, n_rows: int) -> list[str | None] | None:
 
 # ----------------------------------------------------------------- commands
 def cmd_fit(args: argparse.Namespace) -> int:
-    from . import BarycenterGraphPredictor
-    from .io import read_features, read_graphs, save_model
+    from .io import read_features, read_graphs
+    from .model import BarycenterGraphPredictor, save_model
 
     X = read_features(args.features)
     graphs = read_graphs(args.graphs)
@@ -121,10 +163,11 @@ def cmd_fit(args: argparse.Namespace) -> int:
 
 
 def cmd_predict(args: argparse.Namespace) -> int:
-    from .io import MOLECULE_EXTENSIONS, load_model, read_features, write_graphs
+    from .io import MOLECULE_EXTENSIONS, read_features, write_graphs
+    from .model import load_model
 
     model = load_model(args.model)
-    model.set_params(verbose=not args.quiet)
+    model.set_params(progress=not args.quiet)
     X = read_features(args.features)
     formulas = _formulas(args, X.shape[0])
     if Path(args.out).suffix.lower() in MOLECULE_EXTENSIONS and not model.valence:
@@ -161,11 +204,9 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
     print(f"GED solved exactly for {100 * summary['exact_share']:.1f}% of pairs")
     if args.summary:
         out = {k: v for k, v in summary.items() if k != "items"}
-        Path(args.summary).write_text(json.dumps(out, indent=2))
+        atomic_write_text(args.summary, json.dumps(out, indent=2))
     if args.items:
-        import csv
-
-        with open(args.items, "w", newline="") as fh:
+        with atomic_open(Path(args.items), binary=False) as fh:
             w = csv.DictWriter(fh, fieldnames=["index", *summary["items"][0].keys()])
             w.writeheader()
             for i, item in enumerate(summary["items"]):
@@ -174,10 +215,10 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
-    from . import BarycenterGraphPredictor
     from .datasets import load_demo
     from .io import write_graphs
     from .metrics import summarize
+    from .model import BarycenterGraphPredictor
     from .plot import comparison_grid
     from .weights import kernel_matrix
 
@@ -219,7 +260,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
                "nearest_neighbour": {k: v for k, v in base.items() if k != "items"},
                "train_size": len(train), "test_size": len(test), "seed": args.seed,
                "params": model.get_params()}
-    (out / "summary.json").write_text(json.dumps(summary, indent=2, default=str))
+    atomic_write_text(out / "summary.json", json.dumps(summary, indent=2, default=str))
     show = list(range(min(args.show, len(test))))
     comparison_grid(
         [pred[i] for i in show], [truth[i] for i in show], str(out / "predictions.png"),
@@ -237,7 +278,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
 _DEMO_DRAWINGS = 8
 
 
-def _demo_report(args: argparse.Namespace, out: Path, model: Any, X_test: np.ndarray, pred: list, truth: list,
+def _demo_report(args: argparse.Namespace, out: Path, model: BarycenterGraphPredictor, X_test: np.ndarray, pred: list, truth: list,
                  train_graphs: list, ours: dict, base: dict) -> Path:
     """Write the demo's report.html; barycenters only for the items drawn in full."""
     from .report import write_report
@@ -254,8 +295,8 @@ def _demo_report(args: argparse.Namespace, out: Path, model: Any, X_test: np.nda
 
 
 def cmd_report(args: argparse.Namespace) -> int:
-    from .io import read_graphs
-    from .report import is_molecular, read_ranked, write_report
+    from .io import read_graphs, read_ranked
+    from .report import is_molecular, write_report
 
     out = Path(args.out)
     if out.suffix.lower() not in (".html", ".htm"):
@@ -286,8 +327,9 @@ def cmd_report(args: argparse.Namespace) -> int:
 
 
 def cmd_rank(args: argparse.Namespace) -> int:
-    from .io import load_model, read_features, read_graphs
-    from .ranking import CandidateLibrary, rank_candidates, write_ranked
+    from .io import read_features, read_graphs, write_ranked
+    from .model import load_model
+    from .ranking import CandidateLibrary, rank_candidates
 
     if args.k < 1:
         raise UsageError(f"--k must be at least 1; got {args.k}.")
@@ -325,18 +367,18 @@ def cmd_compare(args: argparse.Namespace) -> int:
     train, test = split_indices(len(graphs), n_train=args.n_train, n_test=args.n_test, random_state=args.seed)
     params = _model_params(args)
     params["kernel"] = args.kernel or kernel
-    params["verbose"] = False
+    params["progress"] = False
     t0 = time.perf_counter()
-    result = compare_methods(X, graphs, train, test, params=params, scorers=args.scorers,
+    result = compare_methods(X, graphs, train, test, params=params, scorers=args.scorers or list(_SCORERS),
                              output_kernels=args.output_kernels, k=args.k, fgw_rows=args.fgw_rows or None,
                              time_limit=args.time_limit, n_jobs=args.n_jobs, random_state=args.seed,
                              progress=not args.quiet, data=args.data)
     table = comparison_table(result)
     print(table)
-    (out / "comparison.txt").write_text(table + "\n")
+    atomic_write_text(out / "comparison.txt", table + "\n")
     summary = result.to_dict()
     summary["options"] = {k: v for k, v in vars(args).items() if k != "func"}
-    (out / "comparison.json").write_text(json.dumps(summary, indent=2, default=str))
+    atomic_write_text(out / "comparison.json", json.dumps(summary, indent=2, default=str))
     plot_comparison(result, str(out / "comparison.png"))
     print(f"\nwrote {out}/comparison.txt, comparison.json, comparison.png in {time.perf_counter() - t0:.0f} s")
     print(CAUTION)
@@ -349,8 +391,6 @@ def build_parser() -> argparse.ArgumentParser:
         prog="gwpred",
         description="Predict labeled graphs from vectors with fused Gromov-Wasserstein barycenters.",
     )
-    from . import __version__
-
     parser.add_argument("--version", action="version", version=f"gwpred {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
 
@@ -444,12 +484,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--formula-column", default="formula",
                    help="header of the formula column in --formulas (default: formula)")
     p.add_argument("--k", type=int, default=10, help="candidates kept per input (default: 10)")
-    p.add_argument("--scorer", default="kernel", choices=["kernel", "fgw", "objective"],
-                   help="kernel: weighted output-kernel similarity to the training graphs (higher is better); "
+    p.add_argument("--scorer", default="kernel", choices=_SCORERS, metavar="SCORER",
+                   help="%(choices)s. kernel: weighted output-kernel similarity to the training graphs (higher is better); "
                         "fgw: FGW distance to the predicted barycenter; objective: weighted FGW distances to "
                         "the training graphs (lower is better) (default: kernel)")
-    p.add_argument("--output-kernel", default="wl", choices=["wl", "fingerprint"],
-                   help="kernel scorer: Weisfeiler-Lehman subtree kernel, or Tanimoto on Morgan fingerprints "
+    p.add_argument("--output-kernel", default="wl", choices=_OUTPUT_KERNELS, metavar="KERNEL",
+                   help="%(choices)s. kernel scorer: Weisfeiler-Lehman subtree kernel, or Tanimoto on Morgan fingerprints "
                         "(molecules, needs gwpred[chem]) (default: wl)")
     common(p)
     p.set_defaults(func=cmd_rank)
@@ -466,10 +506,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--n-train", type=int, default=2700, help="training inputs (default: 2700)")
     p.add_argument("--n-test", type=int, default=300, help="test inputs (default: 300)")
     p.add_argument("--k", type=int, default=10, help="length of the ranked lists (default: 10)")
-    p.add_argument("--scorers", nargs="+", default=["kernel", "fgw", "objective"],
-                   choices=["kernel", "fgw", "objective"], help="scorers to run (default: all)")
-    p.add_argument("--output-kernels", nargs="+", default=["wl"], choices=["wl", "fingerprint"],
-                   help="output kernels of the kernel scorer (default: wl)")
+    p.add_argument("--scorers", nargs="+", default=None,
+                   choices=_SCORERS, metavar="SCORER", help="scorers to run: %(choices)s (default: all)")
+    p.add_argument("--output-kernels", nargs="+", default=["wl"], choices=_OUTPUT_KERNELS, metavar="KERNEL",
+                   help="output kernels of the kernel scorer: %(choices)s (default: wl)")
     p.add_argument("--fgw-rows", type=int, default=50,
                    help="test inputs (drawn at random) the FGW scorers run on; 0 runs them on all (default: 50)")
     p.add_argument("--time-limit", type=float, default=2.0,

@@ -10,14 +10,14 @@ knows nothing about kernels or solvers.
 from __future__ import annotations
 
 from collections.abc import Hashable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import networkx as nx
 import numpy as np
 from numpy.typing import NDArray
 
-__all__ = ["EncodedGraph", "LabelSpace", "check_graph"]
+__all__ = ["EncodedGraph", "LabelSpace", "TrainingSet", "check_graph"]
 
 
 @dataclass(frozen=True)
@@ -386,3 +386,86 @@ class LabelSpace:
             else:
                 g.add_edge(int(u), int(v), **{self.edge_label: lab})
         return g
+
+
+@dataclass(frozen=True, eq=False)
+class TrainingSet:
+    """The encoded training graphs of a fitted model, and what predictions read of them.
+
+    Built by :meth:`encode` in ``fit``; per-query steps, ranking, model files
+    and drawings read it instead of the estimator's state.
+
+    Attributes
+    ----------
+    labels : LabelSpace
+        The fitted label categories.
+    structures : list of ndarray of shape (n_i, n_i)
+        0/1 adjacency of each training graph.
+    features : list of ndarray of shape (n_i, n_features)
+        One-hot node labels (then numeric attributes).
+    channels : list of ndarray of shape (n_i, n_i, n_edge_labels)
+        One-hot edge-label channels.
+    sizes, n_edges : ndarray of shape (n_train,)
+        Node and edge counts.
+    max_degree : ndarray of shape (n_node_labels,)
+        Largest degree seen per node label.
+    connected : bool
+        Whether every training graph is connected.
+    derived : dict
+        Encodings derived from the graphs on demand (Weisfeiler-Lehman
+        features, fingerprints), kept by their users under their own keys;
+        never part of a model file.
+
+    Examples
+    --------
+    >>> g = nx.path_graph(3); nx.set_node_attributes(g, "C", "label")
+    >>> ts = TrainingSet.encode([g], LabelSpace().fit([g]))
+    >>> len(ts), ts.sizes.tolist(), ts.max_degree.tolist(), ts.connected
+    (1, [3], [2], True)
+    """
+
+    labels: LabelSpace
+    structures: list[NDArray[np.float64]]
+    features: list[NDArray[np.float64]]
+    channels: list[NDArray[np.float64]]
+    sizes: NDArray[np.int64]
+    n_edges: NDArray[np.int64]
+    max_degree: NDArray[np.int64]
+    connected: bool
+    derived: dict = field(default_factory=dict, repr=False)
+
+    @classmethod
+    def encode(cls, graphs: Sequence[nx.Graph], labels: LabelSpace, where: str = "graphs") -> TrainingSet:
+        """Encode graphs with a fitted label space (graph ``k`` is named ``where[k]`` in errors)."""
+        encoded = [labels.encode(g, f"{where}[{k}]") for k, g in enumerate(graphs)]
+        deg = np.zeros(labels.n_node_labels, dtype=np.int64)
+        for e in encoded:
+            cls_ = e.features[:, : labels.n_node_labels].argmax(1)
+            np.maximum.at(deg, cls_, e.structure.sum(1).astype(np.int64))
+        return cls(
+            labels=labels,
+            structures=[e.structure for e in encoded],
+            features=[e.features for e in encoded],
+            channels=[e.edge_channels for e in encoded],
+            sizes=np.array([len(e.nodes) for e in encoded], dtype=np.int64),
+            n_edges=np.array([g.number_of_edges() for g in graphs], dtype=np.int64),
+            max_degree=deg,
+            connected=all(nx.is_connected(g) for g in graphs),
+        )
+
+    def __len__(self) -> int:
+        return len(self.structures)
+
+    def node_classes(self, i: int) -> NDArray[np.intp]:
+        """Node label index of each node of training graph ``i``."""
+        return self.features[i][:, : self.labels.n_node_labels].argmax(1)
+
+    def edge_list(self, i: int) -> tuple[NDArray[np.intp], NDArray[np.intp]]:
+        """Edges ``(m, 2)`` of training graph ``i`` (``u < v``, row-major) and their label indices ``(m,)``."""
+        iu, ju = np.nonzero(np.triu(self.structures[i], 1))
+        return np.stack([iu, ju], 1), self.channels[i][iu, ju].argmax(-1)
+
+    def graph(self, i: int) -> nx.Graph:
+        """Training graph ``i`` rebuilt as a networkx graph (nodes ``0..n-1``)."""
+        edges, classes = self.edge_list(i)
+        return self.labels.build_graph(self.node_classes(i), edges, classes)

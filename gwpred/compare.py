@@ -28,22 +28,24 @@ from __future__ import annotations
 import time
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any
 
+import matplotlib
+import matplotlib.pyplot as plt
 import networkx as nx
 import numpy as np
 from numpy.typing import NDArray
 
-from .estimator import BarycenterGraphPredictor
-from .formula import hill_formula
+from ._utils import atomic_open
+from .datasets import load_demo, load_qm9
+from .formula import graph_formula
 from .metrics import exact_match, summarize
-from .ranking import (
-    CandidateLibrary,
-    prepare_candidates,
-    rank_candidates,
-    wl_graph_hashes,
-)
+from .model import BarycenterGraphPredictor
+from .plot import PALETTE
+from .ranking import CandidateLibrary, prepare_candidates, rank_candidates
 from .weights import kernel_matrix
+from .wl import wl_graph_hashes
 
 __all__ = [
     "DATA_SOURCES",
@@ -213,12 +215,8 @@ def load_comparison_data(
     if source not in DATA_SOURCES:
         raise ValueError(f"data must be one of {list(DATA_SOURCES)}; got {source!r}.")
     if source == "demo":
-        from .datasets import load_demo
-
         X, graphs = load_demo()
         return X, graphs, "rbf"
-    from .datasets import load_qm9
-
     kind = source.split("-", 1)[1]
     data = load_qm9(features=kind, progress=progress)
     return data.X, data.graphs, "rbf" if kind == "spectrum" else "tanimoto"
@@ -226,10 +224,7 @@ def load_comparison_data(
 
 def heavy_formula(graph: nx.Graph, node_label: str = "label") -> str:
     """Heavy-atom formula (Hill order, no hydrogens) from the node-label counts."""
-    counts: dict[str, int] = {}
-    for _, d in graph.nodes(data=True):
-        counts[str(d.get(node_label))] = counts.get(str(d.get(node_label)), 0) + 1
-    return hill_formula(counts)
+    return graph_formula(graph, node_label=node_label, hydrogens=False)
 
 
 def candidate_rows(
@@ -400,7 +395,7 @@ def compare_methods(
     node_label, edge_label = model.node_label, model.edge_label
     graphs = list(graphs)
     model.fit(X[train], [graphs[i] for i in train])
-    model.set_params(verbose=progress)
+    model.set_params(progress=progress)
     truth = [graphs[i] for i in test]
     library = CandidateLibrary(graphs)
     # a library of its own, so that the encodings timed below start from nothing
@@ -493,6 +488,7 @@ def compare_methods(
                 scorer=scorer,
                 filter=[cand[r] for r in rows],
                 output_kernel=ok,
+                progress=progress,
             )
             secs = time.perf_counter() - t0
             lists = [[graphs[j] for j, _ in row] for row in ranked]
@@ -565,13 +561,7 @@ def plot_comparison(result: Comparison, path: str) -> None:
     path : str
         PNG file to write.
     """
-    import matplotlib
-
     matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
-
-    from .plot import PALETTE
-
     fig, axes = plt.subplots(1, 3, figsize=(15, 4.5))
     names = list(dict.fromkeys(m.name for m in result.methods))
     colour = {nm: PALETTE[i % len(PALETTE)] for i, nm in enumerate(names)}
@@ -615,5 +605,7 @@ def plot_comparison(result: Comparison, path: str) -> None:
         ax.grid(alpha=0.3)
     fig.suptitle(f"{result.data}: {result.n_train} training, {result.n_test} test inputs", fontsize=10)
     fig.tight_layout(rect=(0, 0.13, 1, 1))
-    fig.savefig(path, dpi=120)
+    target = Path(path)
+    with atomic_open(target, binary=True) as fh:  # a killed run never leaves half a PNG
+        fig.savefig(fh, dpi=120, format=target.suffix.lstrip(".").lower() or "png")
     plt.close(fig)

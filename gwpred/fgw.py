@@ -35,6 +35,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
+import ot
 from numpy.typing import ArrayLike, NDArray
 
 __all__ = [
@@ -64,8 +65,6 @@ def _emd(a: Array, b: Array, M: Array, max_iter: int = 100_000) -> Array:
     b = b * a.sum() / b.sum()  # exact mass balance, rounded as ot.emd does
     if _emd_c is not None:
         return _emd_c(a, b, M, max_iter, 1, None, None)[0]
-    import ot  # pragma: no cover
-
     return ot.emd(a, b, M, numItermax=max_iter)  # pragma: no cover
 
 

@@ -12,15 +12,22 @@ outside the built-in table (C, N, O, F, ...).
 from __future__ import annotations
 
 import re
-from collections.abc import Hashable, Mapping
+from collections.abc import Hashable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import networkx as nx
 
+from ._utils import require_extra
+
 __all__ = [
+    "ELEMENTS",
     "Formula",
+    "SYMBOLS",
+    "atomic_number",
+    "bond_total",
     "default_valence",
+    "label_counts",
     "formula_matches",
     "graph_formula",
     "hill_formula",
@@ -30,7 +37,8 @@ __all__ = [
 ]
 
 # Periodic table symbols, Z = 1..118 (IUPAC).
-_SYMBOLS = [
+#: Element symbols in order of atomic number: ``SYMBOLS[Z - 1]``.
+SYMBOLS = (
     "H",
     "He",
     "Li",
@@ -149,8 +157,20 @@ _SYMBOLS = [
     "Lv",
     "Ts",
     "Og",
-]
-ELEMENTS = frozenset(_SYMBOLS)
+)
+#: The element table of gwpred: every symbol of Z = 1..118.
+ELEMENTS = frozenset(SYMBOLS)
+
+
+def atomic_number(symbol: str) -> int:
+    """Atomic number of an element symbol (IUPAC periodic table).
+
+    >>> atomic_number("C"), atomic_number("Og")
+    (6, 118)
+    """
+    if symbol not in ELEMENTS:
+        raise ValueError(f"{symbol!r} is not an element symbol (e.g. 'C', 'Cl').")
+    return SYMBOLS.index(symbol) + 1
 
 # Valence of neutral atoms in organic molecules (common practice: the
 # lowest "normal" valence; RDKit's default valences agree for these).
@@ -197,6 +217,59 @@ class Formula:
 
     def __str__(self) -> str:
         return hill_formula(self.heavy, self.hydrogens)
+
+
+def label_counts(formula: Formula, labels: Sequence[Hashable]) -> list[int]:
+    """Heavy atoms of ``formula`` counted per label, in the order of ``labels``.
+
+    >>> label_counts(parse_formula("C2H6O"), ["C", "N", "O"])
+    [2, 0, 1]
+    """
+    return [formula.heavy.get(lab, 0) for lab in labels]
+
+
+def bond_total(formula: Formula, counts: Sequence[int], valences: Sequence[int]) -> int | None:
+    """Total bond order between the heavy atoms that the formula's hydrogens leave.
+
+    Each heavy atom of valence :math:`v` carries :math:`v` bond ends; the
+    hydrogens take :math:`H` of them and the rest pair up into bonds between
+    heavy atoms: :math:`(\\sum_a n_a v_a - H) / 2` (a neutral, closed-shell
+    molecule; common practice, e.g. the degree-of-unsaturation count).
+
+    Parameters
+    ----------
+    formula : Formula
+    counts : sequence of int
+        Heavy atoms per label (see :func:`label_counts`).
+    valences : sequence of int
+        Valence per label, same order.
+
+    Returns
+    -------
+    int or None
+        None when the formula states no hydrogens.
+
+    Raises
+    ------
+    ValueError
+        When the free valences are negative or odd.
+
+    Examples
+    --------
+    >>> bond_total(parse_formula("C2H4O2"), [2, 2], [4, 2])  # acetic acid: 3 bonds + 1 double
+    4
+    """
+    if formula.hydrogens is None:
+        return None
+    free = int(sum(c * v for c, v in zip(counts, valences))) - formula.hydrogens
+    if free < 0 or free % 2:
+        raise ValueError(
+            f"formula {formula.text}: {formula.hydrogens} hydrogens leave "
+            f"{free} valences for bonds between heavy atoms, which is "
+            + ("negative" if free < 0 else "odd (a radical or an ion)")
+            + "; gwpred decodes neutral closed-shell molecules."
+        )
+    return free // 2
 
 
 def parse_formula(text: str) -> Formula:
@@ -341,13 +414,9 @@ def default_valence(symbol: str) -> int:
         )
     if symbol in _VALENCE:
         return _VALENCE[symbol]
-    try:
-        from rdkit import Chem
-    except ImportError:
-        raise ImportError(
-            f"the default valence of {symbol!r} comes from RDKit; install it with "
-            "pip install 'gwpred[chem]', or pass a valence table of your own."
-        ) from None
+    Chem = require_extra(
+        "rdkit.Chem", f"the default valence of {symbol!r} (or pass a valence table of your own)"
+    )
     v = int(Chem.GetPeriodicTable().GetDefaultValence(symbol))
     if v < 0:
         raise ValueError(

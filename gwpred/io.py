@@ -13,7 +13,8 @@ computation.
 * Feature matrices: ``.npy`` (loaded without pickle) or delimited text
   (``.csv`` / ``.tsv``) with an optional header row and ``id`` column.
 * Model archives: one ``.npz`` (zip of ``.npy`` members) with a JSON manifest
-  stored as a ``uint8`` member named ``__manifest__``; never pickled.
+  stored as a ``uint8`` member named ``__manifest__``; never pickled.  What a
+  fitted model stores in one is decided in :mod:`gwpred.model.files`.
 
 All writers go through a temporary file in the target directory followed by
 :func:`os.replace`, so an interrupted write does not leave a half-written file
@@ -28,19 +29,21 @@ import inspect
 import json
 import os
 import re
-import secrets
 import tokenize
 import zipfile
 import zlib
-from collections.abc import Iterable, Iterator, Mapping, Sequence
-from contextlib import contextmanager
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass
 from pathlib import Path
-from typing import IO, Any, Literal, Union, overload
+from typing import Any, Literal, overload
 from xml.etree import ElementTree
 
 import networkx as nx
 import numpy as np
 from networkx.readwrite.graphml import GraphMLReader, GraphMLWriter
+
+from . import _version, chem
+from ._utils import StrPath, atomic_open
 
 __all__ = [
     "ARCHIVE_FORMAT",
@@ -55,11 +58,12 @@ __all__ = [
     "read_formulas",
     "save_archive",
     "load_archive",
-    "save_model",
-    "load_model",
+    "graph_from_record",
+    "graph_to_json_line",
+    "RankedCandidate",
+    "read_ranked",
+    "write_ranked",
 ]
-
-StrPath = Union[str, "os.PathLike[str]"]
 
 #: Value of the ``"format"`` manifest entry of every model archive.
 ARCHIVE_FORMAT = "gwpred-model"
@@ -97,33 +101,6 @@ def _extension(path: Path, supported: Sequence[str], what: str) -> str:
 def _require_file(path: Path, what: str) -> None:
     if not path.exists():
         raise FileNotFoundError(f"{what} file not found: {str(path)!r}")
-
-
-@contextmanager
-def _atomic_open(path: Path, binary: bool) -> Iterator[IO[Any]]:
-    """Open a temporary sibling of ``path`` for writing; move it into place on success."""
-    parent = path.parent
-    if not parent.is_dir():
-        raise FileNotFoundError(
-            f"cannot write {str(path)!r}: directory {str(parent)!r} does not exist; create it first"
-        )
-    tmp = parent / f".{path.name}.{os.getpid()}.{secrets.token_hex(4)}.tmp"
-    try:
-        if binary:
-            fh: IO[Any] = open(tmp, "xb")
-        else:
-            fh = open(tmp, "x", encoding="utf-8", newline="")
-        with fh:
-            yield fh
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
 
 
 def _int_or_str(text: str) -> int | str:
@@ -167,7 +144,7 @@ def _check_node_link_names(G: nx.Graph, index: int) -> None:
                 )
 
 
-def _graph_to_json_line(G: nx.Graph, index: int) -> str:
+def graph_to_json_line(G: nx.Graph, index: int) -> str:
     _check_node_link_names(G, index)
     record = nx.node_link_data(G, **_node_link_keywords())
     try:
@@ -181,7 +158,7 @@ def _graph_to_json_line(G: nx.Graph, index: int) -> str:
         ) from err
 
 
-def _graph_from_record(record: Any, where: str) -> nx.Graph:
+def graph_from_record(record: Any, where: str) -> nx.Graph:
     if not isinstance(record, dict):
         raise ValueError(f"{where}: expected a JSON object (node-link record), got {type(record).__name__}")
     if "nodes" not in record:
@@ -229,13 +206,13 @@ def _read_jsonl(path: Path) -> list[nx.Graph]:
                 record = json.loads(line)
             except json.JSONDecodeError as err:
                 raise ValueError(f"{where}: malformed JSON ({err.msg} at column {err.colno})") from err
-            graphs.append(_graph_from_record(record, where))
+            graphs.append(graph_from_record(record, where))
     return graphs
 
 
 def _write_jsonl(path: Path, graphs: Sequence[nx.Graph]) -> None:
-    lines = [_graph_to_json_line(G, i) for i, G in enumerate(graphs)]
-    with _atomic_open(path, binary=False) as fh:
+    lines = [graph_to_json_line(G, i) for i, G in enumerate(graphs)]
+    with atomic_open(path, binary=False) as fh:
         for line in lines:
             fh.write(line)
             fh.write("\n")
@@ -292,7 +269,7 @@ def _write_graphml(path: Path, graphs: Sequence[nx.Graph]) -> None:
         # GraphMLWriter keeps the pending <data> items of earlier graphs and would
         # append them again for every later graph; drop them once they are written.
         writer.attributes.clear()
-    with _atomic_open(path, binary=True) as fh:
+    with atomic_open(path, binary=True) as fh:
         writer.dump(fh)
 
 
@@ -332,15 +309,7 @@ def _read_graphml(path: Path) -> list[nx.Graph]:
 
 def _chem(ext: str) -> Any:
     """Return :mod:`gwpred.chem` once RDKit is known to import; else an ImportError naming the extra."""
-    from . import chem
-
-    try:
-        chem._rdkit()
-    except ImportError as err:
-        raise ImportError(
-            f"{ext} graph files are read and written with RDKit, the optional extra 'chem' of "
-            "gwpred; install with pip install 'gwpred[chem]' (or use .jsonl / .graphml files)"
-        ) from err
+    chem.rdkit_modules(f"reading or writing {ext} graph files (or use .jsonl / .graphml files)")
     return chem
 
 
@@ -821,10 +790,10 @@ def write_features(path: StrPath, X: np.ndarray, ids: Sequence[str] | None = Non
         if len(id_list) != arr.shape[0]:
             raise ValueError(f"ids has {len(id_list)} entries but X has {arr.shape[0]} rows; give one id per row")
     if ext == ".npy":
-        with _atomic_open(p, binary=True) as fh:
+        with atomic_open(p, binary=True) as fh:
             np.save(fh, arr, allow_pickle=False)
         return
-    with _atomic_open(p, binary=False) as fh:
+    with atomic_open(p, binary=False) as fh:
         writer = csv.writer(fh, delimiter="," if ext == ".csv" else "\t", lineterminator="\n")
         header = [f"x{j}" for j in range(arr.shape[1])]
         writer.writerow(header if id_list is None else ["id", *header])
@@ -845,12 +814,8 @@ def _array_checksum(arr: np.ndarray) -> str:
 
 
 def _gwpred_version() -> str:
-    try:
-        import gwpred
-
-        return str(getattr(gwpred, "__version__", "unknown"))
-    except Exception:  # the package may be mid-construction; the version is informative only
-        return "unknown"
+    # read at call time, so that the recorded version is the running one
+    return str(getattr(_version, "__version__", "unknown"))
 
 
 def save_archive(path: StrPath, arrays: Mapping[str, np.ndarray], manifest: Mapping[str, Any]) -> None:
@@ -942,7 +907,7 @@ def save_archive(path: StrPath, arrays: Mapping[str, np.ndarray], manifest: Mapp
         raise ValueError(f"manifest holds NaN or infinity ({err}); JSON cannot store it") from err
     members = {_MANIFEST_KEY: np.frombuffer(text.encode("utf-8"), dtype=np.uint8)}
     members.update((name, arrays[name]) for name in sorted(arrays))
-    with _atomic_open(p, binary=True) as fh:
+    with atomic_open(p, binary=True) as fh:
         with zipfile.ZipFile(fh, mode="w", compression=zipfile.ZIP_DEFLATED) as zf:
             for name, arr in members.items():
                 info = zipfile.ZipInfo(name + ".npy", date_time=_ZIP_EPOCH)
@@ -1086,77 +1051,91 @@ def load_archive(path: StrPath) -> tuple[dict[str, np.ndarray], dict[str, Any]]:
     return arrays, manifest
 
 
-# --------------------------------------------------------------------------- models
+def __getattr__(name: str) -> Any:
+    # save_model / load_model moved up a layer, beside the estimator they build; an
+    # ImportError (not AttributeError) so that `from gwpred.io import load_model` shows this
+    if name in ("save_model", "load_model"):
+        raise ImportError(
+            f"gwpred.io.{name} moved: use gwpred.{name} (from gwpred import {name}); "
+            "model files written before the move load unchanged"
+        )
+    raise AttributeError(f"module 'gwpred.io' has no attribute {name!r}")
 
-_MODEL_KIND = "BarycenterGraphPredictor"
+
+# --------------------------------------------------------------------------- ranked candidate lists
+# One JSON object per input row: {"row": i, "ranked": [{"candidate": j, "score": s,
+# "graph": <node-link record>}, ...]}, best first.  ``gwpred rank`` writes them
+# (:func:`write_ranked`), the HTML report reads them (:func:`read_ranked`).
 
 
-def _plain(value: Any) -> Any:
-    """numpy scalars -> Python scalars, so that JSON can hold them."""
-    return value.item() if isinstance(value, np.generic) else value
+@dataclass(frozen=True)
+class RankedCandidate:
+    """One entry of a ranked candidate list.
+
+    Attributes
+    ----------
+    graph : networkx.Graph
+    candidate : int or None
+        The candidate's index in its source list, when known.
+    score : float or None
+        Its score (best first in the list), when known.
+    """
+
+    graph: nx.Graph
+    candidate: int | None = None
+    score: float | None = None
 
 
-def save_model(model: Any, path: StrPath) -> None:
-    """Save a fitted :class:`~gwpred.BarycenterGraphPredictor` as a model archive.
+def write_ranked(path: StrPath, ranked: Sequence[Sequence[tuple[int, float]]], candidates: Any) -> None:
+    """Write ranked lists as JSON Lines, one object per input row.
 
-    The archive holds the constructor parameters and label categories (JSON
-    manifest), the training graphs as flat integer arrays, and the training
-    inputs (or the training kernel matrix with ``kernel="precomputed"``);
-    kernel factorisations are recomputed on loading.
+    Each line is ``{"row": i, "ranked": [{"candidate": j, "score": s,
+    "graph": <node-link record>}, ...]}``, best first; the graph is the
+    candidate in networkx's node-link form with the edge list under
+    ``"edges"``.  The file is replaced atomically.
 
     Parameters
     ----------
-    model : BarycenterGraphPredictor
-        A fitted model.
     path : str or os.PathLike
-        Target ``.npz`` file.
+        Target ``.jsonl`` file.
+    ranked : list of list of (int, float)
+        As returned by :func:`gwpred.ranking.rank_candidates`.
+    candidates : list of networkx.Graph, CandidateLibrary, or list of lists
+        The candidates that were ranked (indices refer to them): one list
+        shared by all rows, an object holding such a list as ``graphs``
+        (:class:`gwpred.ranking.CandidateLibrary`), or one list per row.
 
     Raises
     ------
     ValueError
-        If the model is not fitted.
+        For a path that does not end in ``.jsonl``, or a graph whose
+        attributes JSON cannot hold.
     """
-    from .estimator import BarycenterGraphPredictor
-
-    if not isinstance(model, BarycenterGraphPredictor) or not hasattr(model, "labels_"):
-        raise ValueError("save_model needs a fitted BarycenterGraphPredictor; call fit first.")
-    labels = model.labels_
-    nodes, edges, edge_cls, n_nodes, n_edges = [], [], [], [], []
-    for C, F, E in zip(model._structures, model._features, model._channels):
-        iu, ju = np.nonzero(np.triu(C, 1))
-        nodes.append(F[:, : labels.n_node_labels].argmax(1))
-        edges.append(np.stack([iu, ju], 1))
-        edge_cls.append(E[iu, ju].argmax(-1))
-        n_nodes.append(len(F))
-        n_edges.append(len(iu))
-    weights = model.weights_
-    arrays = {
-        "node_classes": np.concatenate(nodes).astype(np.int32),
-        "edges": np.concatenate(edges).astype(np.int32).reshape(-1, 2),
-        "edge_classes": np.concatenate(edge_cls).astype(np.int32),
-        "n_nodes": np.asarray(n_nodes, dtype=np.int32),
-        "n_edges": np.asarray(n_edges, dtype=np.int32),
-        "inputs": weights.K_fit_ if model.kernel == "precomputed" else weights.X_fit_,
-    }
-    gamma = float(weights.gamma_)
-    valence = model.get_params().get("valence")
-    if isinstance(valence, dict) and not all(isinstance(k, str) for k in valence):
-        raise ValueError(
-            "valence tables with non-text labels cannot be stored in a model file (JSON keys are "
-            "text); use text node labels, or refit after loading"
-        )
-    manifest = {
-        "kind": _MODEL_KIND,
-        "params": {k: _plain(v) for k, v in model.get_params().items()},
-        "node_labels": [_plain(v) for v in labels.node_labels_],
-        "edge_labels": [_plain(v) for v in labels.edge_labels_],
-        "gamma": gamma if np.isfinite(gamma) else None,
-    }
-    save_archive(path, arrays, manifest)
+    target = Path(path)
+    if target.suffix.lower() != ".jsonl":
+        raise ValueError(f"ranked lists are written as JSON Lines: give a .jsonl path; got {str(path)!r}.")
+    shared = getattr(candidates, "graphs", candidates)
+    per_row = not all(isinstance(g, nx.Graph) for g in shared)
+    lines = []
+    for r, row in enumerate(ranked):
+        pool = shared[r] if per_row else shared
+        items = [
+            {"candidate": j, "score": score, "graph": json.loads(graph_to_json_line(pool[j], j))}
+            for j, score in row
+        ]
+        lines.append(json.dumps({"row": r, "ranked": items}, allow_nan=False, ensure_ascii=False))
+    with atomic_open(target, binary=False) as fh:
+        for line in lines:
+            fh.write(line + "\n")
 
 
-def load_model(path: StrPath) -> Any:
-    """Load a model saved by :func:`save_model`.
+def read_ranked(path: StrPath) -> dict[int, list[RankedCandidate]]:
+    """Read ranked candidate lists, one JSON object per line.
+
+    Each line is ``{"row": i, "ranked": [{"candidate": j, "score": s, "graph": G}, ...]}``
+    with the candidates best first and ``G`` a networkx node-link record (edge list under
+    ``"edges"``, as ``gwpred.io`` writes graphs). ``candidate`` and ``score`` may be
+    missing or null. Blank lines are skipped.
 
     Parameters
     ----------
@@ -1164,52 +1143,58 @@ def load_model(path: StrPath) -> Any:
 
     Returns
     -------
-    BarycenterGraphPredictor
-        A fitted model that predicts exactly as the saved one.
+    dict
+        Row -> list of :class:`RankedCandidate`, best first.
 
     Raises
     ------
+    FileNotFoundError
+        If the file does not exist.
     ValueError
-        If the file is not a gwpred model, is corrupted or truncated, or was
-        written by a newer gwpred (see :func:`load_archive`), or its contents
-        are inconsistent.
+        If a line is not valid JSON or lacks ``row``/``ranked``/``graph``, a row number
+        is negative or repeated, a score is not a number, or a graph record is invalid.
     """
-    from .estimator import BarycenterGraphPredictor
+    path = Path(path)
+    if not path.is_file():
+        raise FileNotFoundError(f"ranked candidate file {str(path)!r} does not exist")
+    out: dict[int, list[RankedCandidate]] = {}
+    with open(path, encoding="utf-8") as fh:
+        for lineno, line in enumerate(fh, start=1):
+            if not line.strip():
+                continue
+            where = f"{str(path)!r} line {lineno}"
+            try:
+                record = json.loads(line)
+            except json.JSONDecodeError as err:
+                raise ValueError(f"{where}: malformed JSON ({err.msg} at column {err.colno})") from err
+            row, items = _ranked_record(record, where)
+            if row in out:
+                raise ValueError(f"{where}: row {row} appears twice; give one candidate list per row")
+            out[row] = [_ranked_item(item, f"{where}, candidate {k}") for k, item in enumerate(items)]
+    return out
 
-    arrays, manifest = load_archive(path)
-    where = f"model file {os.fspath(path)!r}"
-    need = ("node_classes", "edges", "edge_classes", "n_nodes", "n_edges", "inputs")
-    missing = [k for k in need if k not in arrays]
-    if manifest.get("kind") != _MODEL_KIND or missing:
-        raise ValueError(
-            f"{where} is a gwpred archive but not a saved BarycenterGraphPredictor "
-            f"(kind={manifest.get('kind')!r}, missing arrays: {missing})."
-        )
-    try:
-        model = BarycenterGraphPredictor(**manifest["params"])
-        n_nodes, n_edges = arrays["n_nodes"], arrays["n_edges"]
-        node_off = np.concatenate([[0], np.cumsum(n_nodes)])
-        edge_off = np.concatenate([[0], np.cumsum(n_edges)])
-        if node_off[-1] != len(arrays["node_classes"]) or edge_off[-1] != len(arrays["edges"]):
-            raise ValueError("graph arrays do not add up")
-        from .codec import LabelSpace
 
-        labels = LabelSpace.from_categories(
-            manifest["node_labels"],
-            manifest["edge_labels"],
-            node_label=model.node_label,
-            edge_label=model.edge_label,
-            handle_unknown=model.handle_unknown,
+def _ranked_record(record: Any, where: str) -> tuple[int, list]:
+    if not isinstance(record, dict) or "row" not in record or "ranked" not in record:
+        raise ValueError(f'{where}: expected an object {{"row": i, "ranked": [...]}}, got {str(record)[:80]}')
+    row = record["row"]
+    if isinstance(row, bool) or not isinstance(row, int) or row < 0:
+        raise ValueError(f"{where}: row must be an int >= 0 (the item's position), got {row!r}")
+    items = record["ranked"]
+    if not isinstance(items, list):
+        raise ValueError(  # noqa: TRY004 - a malformed file is a bad value, as the other errors here
+            f"{where}: ranked must be a list of candidates, got {type(items).__name__}"
         )
-        graphs = [
-            labels.build_graph(
-                arrays["node_classes"][node_off[k] : node_off[k + 1]],
-                arrays["edges"][edge_off[k] : edge_off[k + 1]],
-                arrays["edge_classes"][edge_off[k] : edge_off[k + 1]],
-            )
-            for k in range(len(n_nodes))
-        ]
-        model._fit(arrays["inputs"], graphs, labels=labels, gamma=manifest["gamma"])
-    except (KeyError, IndexError, TypeError, ValueError) as err:
-        raise ValueError(f"{where} has inconsistent contents ({err}); it may be corrupted.") from err
-    return model
+    return row, items
+
+
+def _ranked_item(item: Any, where: str) -> RankedCandidate:
+    if not isinstance(item, dict) or "graph" not in item:
+        raise ValueError(f'{where}: expected an object with a "graph" (node-link record), got {str(item)[:80]}')
+    score = item.get("score")
+    if score is not None and (isinstance(score, bool) or not isinstance(score, (int, float))):
+        raise ValueError(f"{where}: score must be a number or null, got {score!r}")
+    cand = item.get("candidate")
+    if cand is not None and (isinstance(cand, bool) or not isinstance(cand, int)):
+        raise ValueError(f"{where}: candidate must be an int or null, got {cand!r}")
+    return RankedCandidate(graph_from_record(item["graph"], where), cand, None if score is None else float(score))

@@ -18,11 +18,21 @@ from __future__ import annotations
 import math
 from collections.abc import Hashable, Mapping, Sequence
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any
 
+import matplotlib.pyplot as plt
 import networkx as nx
 import numpy as np
+from matplotlib import patheffects as pe
+from matplotlib.collections import LineCollection
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Rectangle
 from numpy.typing import ArrayLike, NDArray
+
+from ._utils import atomic_open
+from .ged import edit_distance
 
 __all__ = [
     "EDIT_COLOURS",
@@ -187,7 +197,6 @@ def edge_styles(labels: Sequence[Any]) -> dict[Any, tuple[int, str]]:
 
 def _stroke_effects(strokes: int, width: float, background: Any) -> list:
     """Path effects that draw one line as 1, 2 or 3 parallel strokes of ``width``."""
-    from matplotlib import patheffects as pe
 
     if strokes <= 1:
         return []
@@ -340,7 +349,6 @@ def graph_layout(
 def _new_axes(ax: Any, figsize: tuple[float, float]) -> Any:
     if ax is not None:
         return ax
-    import matplotlib.pyplot as plt
 
     _, ax = plt.subplots(figsize=figsize)
     return ax
@@ -463,7 +471,6 @@ def _draw_edges(
 
     Returns the drawn points of every edge, keyed both ways round.
     """
-    from matplotlib.collections import LineCollection
 
     paths = _edge_paths(graph, pos, st.radius)
     groups: dict[tuple, list] = {}
@@ -534,7 +541,6 @@ def _legend_handles(
     edge_name: str,
     background: Any = "white",
 ) -> list:
-    from matplotlib.lines import Line2D
 
     handles = [
         Line2D(
@@ -1047,7 +1053,6 @@ def draw_alignment(
     _check_graph(predicted, "predicted")
     _check_graph(true, "true")
     if mapping is None:
-        from .metrics import edit_distance
 
         mapping = edit_distance(
             predicted,
@@ -1148,7 +1153,6 @@ def _both_ways(colour_of: Mapping[tuple, str]) -> dict[tuple, str]:
 
 
 def _edit_handles(edits: AlignmentEdits) -> list:
-    from matplotlib.lines import Line2D
 
     handles = []
     for key, k in edits.counts().items():
@@ -1236,7 +1240,7 @@ def draw_structure(
     Parameters
     ----------
     structure : array-like of shape (n, n)
-        For example :attr:`gwpred.estimator.SoftGraph.structure`.
+        For example :attr:`gwpred.SoftGraph.structure`.
     ax : matplotlib Axes, default=None
     labels : sequence of length n, default=None
         Tick text per node (for example its most likely label).
@@ -1294,7 +1298,7 @@ def draw_node_scores(
     Parameters
     ----------
     node_scores : array-like of shape (n, n_labels)
-        For example :attr:`gwpred.estimator.SoftGraph.node_scores`.
+        For example :attr:`gwpred.SoftGraph.node_scores`.
     label_names : sequence of length n_labels
         The label of each column (the model's ``labels_.node_labels_``).
     ax : matplotlib Axes, default=None
@@ -1393,7 +1397,6 @@ def draw_neighbors(
     TypeError
         If an item of ``graphs`` is not a simple undirected networkx graph.
     """
-    from matplotlib.patches import Rectangle
 
     graphs = list(graphs)
     w = np.asarray(weights, dtype=float)
@@ -1490,8 +1493,6 @@ def comparison_grid(
         Text under the figure (for example a caution line).
     node_label, edge_label : str, default="label"
     """
-    from matplotlib.figure import Figure
-    from matplotlib.lines import Line2D
 
     per_row = 2 if len(predicted) > 1 else 1  # two (predicted, true) pairs side by side
     rows = -(-len(predicted) // per_row)
@@ -1525,4 +1526,6 @@ def comparison_grid(
     if caption:
         fig.text(0.5, 0.005, caption, ha="center", va="bottom", fontsize=6.5, wrap=True)
     fig.tight_layout(rect=(0, 0.5 / height if caption else 0, 1, 1 - 0.5 / height))
-    fig.savefig(path, dpi=110)
+    target = Path(path)
+    with atomic_open(target, binary=True) as fh:  # a killed run never leaves half a PNG
+        fig.savefig(fh, dpi=110, format=target.suffix.lstrip(".").lower() or "png")

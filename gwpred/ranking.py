@@ -52,7 +52,7 @@ returned are positions in the shared list, or in the input's own list.
 
 Node order
 ----------
-Candidate encodings are put in a canonical node order (:func:`canonical_order`:
+Candidate encodings are put in a canonical node order (:func:`gwpred.wl.canonical_order`:
 colour refinement of labels and edge labels, then a search that
 individualises each node of a tied class in turn and keeps the smallest
 labeled adjacency), so FGW values do not depend on how the candidate's nodes
@@ -61,285 +61,128 @@ QM9 molecules at random and gets identical arrays).  Only graphs so symmetric th
 its budget could keep a dependence on numbering.  WL kernel values never
 depend on node order.  FGW values are local optima of a non-convex problem:
 two candidates that differ slightly can be scored from different optima.
+
+Fitted models
+-------------
+A model is read only through :class:`FittedModel` (its encoded training
+set, its neighbours and weights, its soft barycenters); encodings of the
+training graphs are cached in ``model.training_.derived``, so a refitted
+model starts afresh.  Scorers and output kernels are tables
+(name -> functions): a new one is a new entry.
 """
 
 from __future__ import annotations
 
-import hashlib
 import numbers
-import os
 from collections import Counter
-from collections.abc import Callable, Hashable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Protocol
 
 import networkx as nx
 import numpy as np
 import scipy.sparse as sp
 from numpy.typing import ArrayLike, NDArray
+from sklearn.utils.validation import check_is_fitted
 
-from .codec import LabelSpace, check_graph
+from . import wl
+from ._utils import check_inputs, progress_bar, require_extra
+from .chem import graph_to_mol, morgan_fingerprints, rdkit_modules
+from .codec import LabelSpace, TrainingSet
 from .fgw import feature_costs, fgw_to_many, pad_graphs
 from .formula import Formula, parse_formula
+from .wl import (
+    IdGraph,
+    LabelIds,
+    array_ids,
+    canonical_order,
+    wl_encodings,
+    wl_feature_counts,
+    wl_graph_hashes,
+)
 
 __all__ = [
     "OUTPUT_KERNELS",
     "SCORERS",
     "CandidateLibrary",
+    "FGWArrays",
+    "FittedModel",
+    "candidate_fgw_arrays",
     "canonical_order",
+    "fgw_arrays",
     "fgw_candidate_values",
     "prepare_candidates",
     "rank_candidates",
     "wl_feature_counts",
     "wl_graph_hashes",
-    "write_ranked",
 ]
 
-SCORERS = ("kernel", "fgw", "objective")
-"""Scorer names of :func:`rank_candidates`."""
-
-OUTPUT_KERNELS = ("wl", "fingerprint")
-"""Output kernels of the ``kernel`` scorer."""
-
-_HIGHER_IS_BETTER = {"kernel": True, "fgw": False, "objective": False}
 # scores are rounded so that equal values tie exactly (ties -> lower index)
 _DECIMALS = 10
 
 Ranked = list[list[tuple[int, float]]]
-Adjacency = list[list[tuple[int, int]]]
 
 
-# --------------------------------------------------------------------------- label ids
-def _stable_id(value: Hashable) -> int:
-    """Process-independent integer for a label value (48 bits)."""
-    text = repr((type(value).__name__, str(value))).encode()
-    return int.from_bytes(hashlib.blake2b(text, digest_size=6).digest(), "big")
+class FittedModel(Protocol):
+    """What ranking reads of a fitted :class:`~gwpred.BarycenterGraphPredictor`."""
 
-
-@dataclass(frozen=True)
-class _Space:
-    """Label categories of a fitted model, as the ranking code needs them."""
-
+    training_: TrainingSet
+    labels_: LabelSpace
+    alpha: float
     node_label: str
     edge_label: str | None
-    node_index: dict
-    edge_index: dict
-    n_node: int
-    n_edge: int
-    key: tuple
+    progress: bool
 
-    @classmethod
-    def of(cls, labels: LabelSpace) -> _Space:
-        key = (
-            labels.node_label,
-            labels.edge_label,
-            tuple(repr(v) for v in labels.node_labels_),
-            tuple(repr(v) for v in labels.edge_labels_),
-        )
-        return cls(
-            labels.node_label,
-            labels.edge_label,
-            {v: i for i, v in enumerate(labels.node_labels_)},
-            {v: i for i, v in enumerate(labels.edge_labels_)},
-            labels.n_node_labels,
-            labels.n_edge_labels,
-            key,
-        )
+    def neighbors(self, X: ArrayLike) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
+        """Kept training graphs of each input and their weights (validates ``X``)."""
+        ...
 
-    def node_id(self, value: Hashable) -> int:
-        """Category index, or ``n_node + stable id`` for an unseen label."""
-        try:
-            j = self.node_index.get(value)
-        except TypeError:  # unhashable label
-            j = None
-        return j if j is not None else self.n_node + _stable_id(value)
-
-    def edge_id(self, value: Hashable) -> int:
-        try:
-            j = self.edge_index.get(value)
-        except TypeError:
-            j = None
-        return j if j is not None else self.n_edge + _stable_id(value)
+    def predict_barycenters(self, X: ArrayLike, formulas: Any = None) -> list[Any]:
+        """Soft barycenters (``structure``, ``node_scores``, ``edge_scores``, ...) per input."""
+        ...
 
 
+# --------------------------------------------------------------------------- FGW arrays
 @dataclass(frozen=True)
-class _Ids:
-    """A graph as label ids: node ids, and per node a list of (neighbour, edge id)."""
+class FGWArrays:
+    """A candidate as FGW sees it, in canonical node order.
 
-    nodes: list[int]
-    adjacency: Adjacency
+    Attributes
+    ----------
+    structure : ndarray of shape (n, n)
+        Adjacency.
+    features : ndarray of shape (n, n_node + 1)
+        One-hot node labels; the last column is any label unseen in training.
+    channels : ndarray of shape (n, n, n_edge + 1)
+        One-hot edge labels; the last channel is any label unseen in training.
+    """
 
-
-def _graph_ids(graph: Any, space: _Space, where: str) -> _Ids:
-    check_graph(graph, where)
-    order = list(graph.nodes)
-    pos = {v: i for i, v in enumerate(order)}
-    nodes = []
-    for v, data in graph.nodes(data=True):
-        if space.node_label not in data:
-            raise ValueError(
-                f"node {v!r} of {where} has no {space.node_label!r} attribute; every candidate "
-                "node needs a label, like the training graphs."
-            )
-        nodes.append(space.node_id(data[space.node_label]))
-    adjacency: Adjacency = [[] for _ in order]
-    for u, v, data in graph.edges(data=True):
-        e = space.edge_id(data.get(space.edge_label) if space.edge_label is not None else None)
-        adjacency[pos[u]].append((pos[v], e))
-        adjacency[pos[v]].append((pos[u], e))
-    return _Ids(nodes, adjacency)
+    structure: NDArray[np.float64]
+    features: NDArray[np.float64]
+    channels: NDArray[np.float64]
 
 
-def _array_ids(structure: NDArray, features: NDArray, channels: NDArray, n_node: int) -> _Ids:
-    """The same for a training graph stored as arrays by the estimator."""
-    nodes = features[:, :n_node].argmax(1).tolist()
-    adjacency: Adjacency = [[] for _ in nodes]
-    iu, ju = np.nonzero(np.triu(structure, 1))
-    for i, j, e in zip(iu.tolist(), ju.tolist(), channels[iu, ju].argmax(-1).tolist()):
-        adjacency[i].append((j, e))
-        adjacency[j].append((i, e))
-    return _Ids(nodes, adjacency)
-
-
-# --------------------------------------------------------------------------- WL features
-def wl_feature_counts(
-    nodes: Sequence[int], adjacency: Adjacency, iterations: int = 3
-) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
-    """Weisfeiler-Lehman subtree patterns of a labeled graph, with their counts.
-
-    Round 0 colours each node by its label; round ``t`` by its colour and the
-    sorted multiset of (edge label, neighbour colour) pairs of round
-    ``t - 1`` (Shervashidze et al., JMLR 2011, with edge labels).  Every
-    (round, colour) is one feature, identified by a 64-bit hash.
+def fgw_arrays(ids: IdGraph, n_node: int, n_edge: int, canonical: bool = True) -> FGWArrays:
+    """FGW arrays of a graph written as label ids (:func:`gwpred.wl.graph_ids`).
 
     Parameters
     ----------
-    nodes : sequence of int
-        Node label ids.
-    adjacency : list of list of (int, int)
-        Per node, its (neighbour, edge label id) pairs.
-    iterations : int, default=3
-        Refinement rounds after round 0.
+    ids : IdGraph
+    n_node, n_edge : int
+        Known node and edge categories; larger ids share the last column.
+    canonical : bool, default=True
+        Put the nodes in :func:`gwpred.wl.canonical_order` (else keep their order).
 
     Returns
     -------
-    features : ndarray of int64
-        Sorted feature hashes.
-    counts : ndarray of float64
-        How many nodes carry each feature (over all rounds).
+    FGWArrays
 
     Examples
     --------
-    >>> f, c = wl_feature_counts([0, 0], [[(1, 0)], [(0, 0)]], iterations=1)
-    >>> len(f), c.tolist()
-    (2, [2.0, 2.0])
+    >>> a = fgw_arrays(IdGraph([5, 0], [[(1, 0)], [(0, 0)]]), 1, 1)
+    >>> a.features.tolist(), a.structure.tolist()
+    ([[1.0, 0.0], [0.0, 1.0]], [[0.0, 1.0], [1.0, 0.0]])
     """
-    colours = [hash((0, x)) for x in nodes]
-    every = list(colours)
-    for t in range(1, iterations + 1):
-        colours = [
-            hash((t, colours[v], tuple(sorted((e, colours[u]) for u, e in nbrs))))
-            for v, nbrs in enumerate(adjacency)
-        ]
-        every.extend(colours)
-    feats, counts = np.unique(np.asarray(every, dtype=np.int64), return_counts=True)
-    return feats, counts.astype(np.float64)
-
-
-# --------------------------------------------------------------------------- canonical order
-def _ranks(values: Sequence[Any]) -> list[int]:
-    index = {v: i for i, v in enumerate(sorted(set(values)))}
-    return [index[v] for v in values]
-
-
-def _refine(colours: list[int], adjacency: Adjacency) -> list[int]:
-    """Colour refinement to a stable partition; colours are canonical ranks."""
-    n_classes = len(set(colours))
-    while True:
-        sig = [
-            (colours[v], tuple(sorted((e, colours[u]) for u, e in nbrs))) for v, nbrs in enumerate(adjacency)
-        ]
-        new = _ranks(sig)
-        k = max(new) + 1 if new else 0
-        if k == n_classes:
-            return new
-        colours, n_classes = new, k
-
-
-def _certificate(order: list[int], nodes: Sequence[int], adjacency: Adjacency) -> tuple:
-    """The labeled graph written in ``order``: node ids, then sorted (i, j, edge id) triples."""
-    where = {v: i for i, v in enumerate(order)}
-    edges = sorted(
-        (where[v], where[u], e) for v, nbrs in enumerate(adjacency) for u, e in nbrs if where[v] < where[u]
-    )
-    return (tuple(nodes[v] for v in order), tuple(edges))
-
-
-def canonical_order(nodes: Sequence[int], adjacency: Adjacency, max_leaves: int = 4096) -> list[int]:
-    """A node order that does not depend on the input numbering.
-
-    Colour refinement (node labels, then the multisets of (edge label,
-    neighbour colour)) with canonical colour names; while colours are tied,
-    each node of the first tied class is individualised in turn and refined
-    again, and of all the discrete orders reached the one whose labeled
-    adjacency is lexicographically smallest is returned (the individualise
-    and refine scheme of canonical labeling, McKay & Piperno 2014, without
-    automorphism pruning).
-
-    Parameters
-    ----------
-    nodes : sequence of int
-        Node label ids.
-    adjacency : list of list of (int, int)
-        Per node, its (neighbour, edge label id) pairs.
-    max_leaves : int, default=4096
-        Search budget; beyond it (only very symmetric graphs get there) the
-        best order found so far is returned, which may depend on numbering.
-
-    Returns
-    -------
-    list of int
-        Node positions in canonical order.
-
-    Examples
-    --------
-    >>> canonical_order([1, 0, 1], [[(1, 0)], [(0, 0), (2, 0)], [(1, 0)]])[0]
-    1
-    """
-    n = len(nodes)
-    best: list[Any] = [None, None]
-    leaves = 0
-
-    def search(colours: list[int]) -> None:
-        nonlocal leaves
-        if len(set(colours)) == n:
-            leaves += 1
-            order = sorted(range(n), key=colours.__getitem__)
-            cert = _certificate(order, nodes, adjacency)
-            if best[0] is None or cert < best[0]:
-                best[0], best[1] = cert, order
-            return
-        counts = Counter(colours)
-        tied = min(c for c, k in counts.items() if k > 1)
-        for v in [u for u in range(n) if colours[u] == tied]:
-            if leaves >= max_leaves:
-                return
-            split = [2 * c + 1 for c in colours]
-            split[v] -= 1
-            search(_refine(split, adjacency))
-
-    search(_refine(_ranks(list(nodes)), adjacency))
-    return best[1]
-
-
-@dataclass(frozen=True)
-class _FGWArrays:
-    structure: NDArray[np.float64]  # (n, n) adjacency
-    features: NDArray[np.float64]  # (n, n_node + 1): one-hot, last column = unseen label
-    channels: NDArray[np.float64]  # (n, n, n_edge + 1): one-hot edge labels, last = unseen
-
-
-def _fgw_arrays(ids: _Ids, n_node: int, n_edge: int, canonical: bool = True) -> _FGWArrays:
     n = len(ids.nodes)
     order = canonical_order(ids.nodes, ids.adjacency) if canonical else list(range(n))
     where = {v: i for i, v in enumerate(order)}
@@ -352,7 +195,7 @@ def _fgw_arrays(ids: _Ids, n_node: int, n_edge: int, canonical: bool = True) -> 
         for u, e in nbrs:
             C[where[v], where[u]] = 1.0
             E[where[v], where[u], min(e, n_edge)] = 1.0
-    return _FGWArrays(C, F, E)
+    return FGWArrays(C, F, E)
 
 
 # --------------------------------------------------------------------------- candidates
@@ -632,153 +475,31 @@ def fgw_candidate_values(
     return np.maximum(out, 0.0)
 
 
-# --------------------------------------------------------------------------- model side
-def _model_cache(model: Any) -> dict:
-    """Per-model cache of training encodings, reset when the model is refitted."""
-    cache = getattr(model, "_ranking_cache", None)
-    if cache is None or cache.get("token") is not model._structures:
-        cache = {"token": model._structures}
-        model._ranking_cache = cache
-    return cache
+# --------------------------------------------------------------------------- candidate encodings
+def _fgw_encoder(graphs: Sequence[nx.Graph], space: LabelIds) -> Callable[[int], FGWArrays]:
+    def encode(i: int) -> FGWArrays:
+        ids = wl.graph_ids(graphs[i], space, f"candidates[{i}]")
+        return fgw_arrays(ids, space.n_node, space.n_edge)
+
+    return encode
 
 
-def _training_ids(model: Any) -> list[_Ids]:
-    cache = _model_cache(model)
-    if "ids" not in cache:
-        k = model.labels_.n_node_labels
-        cache["ids"] = [
-            _array_ids(C, F, E, k) for C, F, E in zip(model._structures, model._features, model._channels)
-        ]
-    return cache["ids"]
+def candidate_fgw_arrays(library: CandidateLibrary, space: LabelIds, indices: Sequence[int]) -> list[FGWArrays]:
+    """FGW arrays of library candidates (cached in the library per label space).
 
+    Parameters
+    ----------
+    library : CandidateLibrary
+    space : LabelIds
+        Label ids of the fitted model (``LabelIds.of(model.labels_)``).
+    indices : sequence of int
+        Candidates to encode, in the order returned.
 
-@dataclass(frozen=True)
-class _TrainWL:
-    vocabulary: NDArray[np.int64]  # sorted feature hashes seen in training
-    matrix: sp.csr_matrix  # (n_train, n_vocab), rows normalised to unit norm
-
-
-def _training_wl(model: Any, iterations: int) -> _TrainWL:
-    cache = _model_cache(model)
-    key = ("wl", iterations)
-    if key not in cache:
-        per = [wl_feature_counts(ids.nodes, ids.adjacency, iterations) for ids in _training_ids(model)]
-        vocab = np.unique(np.concatenate([f for f, _ in per]))
-        rows = np.repeat(np.arange(len(per)), [len(f) for f, _ in per])
-        cols = np.searchsorted(vocab, np.concatenate([f for f, _ in per]))
-        vals = np.concatenate([c / np.linalg.norm(c) for _, c in per])
-        M = sp.csr_matrix((vals, (rows, cols)), shape=(len(per), len(vocab)))
-        cache[key] = _TrainWL(vocab, M)
-    return cache[key]
-
-
-def _fingerprint_bits(graphs: Sequence[nx.Graph], radius: int, n_bits: int) -> NDArray[np.float64]:
-    """Morgan bits via :func:`gwpred.chem.morgan_fingerprints`; graphs RDKit rejects
-    (for example charged atoms whose charge is not stored) get the bits of the
-    literal, unsanitised molecule."""
-    from .chem import graph_to_mol, morgan_fingerprints
-
-    try:
-        return morgan_fingerprints(graphs, radius=radius, n_bits=n_bits)
-    except ValueError:
-        pass
-    from rdkit import Chem
-    from rdkit.Chem import rdFingerprintGenerator
-
-    generator = rdFingerprintGenerator.GetMorganGenerator(radius=radius, fpSize=n_bits)
-    out = np.zeros((len(graphs), n_bits))
-    for i, g in enumerate(graphs):
-        try:
-            out[i] = morgan_fingerprints([g], radius=radius, n_bits=n_bits)[0]
-        except ValueError:
-            mol = graph_to_mol(g, sanitize=False)
-            Chem.FastFindRings(mol)
-            out[i] = generator.GetFingerprintAsNumPy(mol)
-    return out
-
-
-def _training_fingerprints(model: Any, radius: int, n_bits: int) -> sp.csr_matrix:
-    cache = _model_cache(model)
-    key = ("fingerprint", radius, n_bits)
-    if key not in cache:
-        labels = model.labels_
-        graphs = [labels.build_graph(ids.nodes, *_edge_lists(ids)) for ids in _training_ids(model)]
-        cache[key] = _sparse_bits(_bits_matrix(graphs, n_bits), n_bits)
-    return cache[key]
-
-
-def _edge_lists(ids: _Ids) -> tuple[list[tuple[int, int]], list[int]]:
-    edges, classes = [], []
-    for v, nbrs in enumerate(ids.adjacency):
-        for u, e in nbrs:
-            if v < u:
-                edges.append((v, u))
-                classes.append(e)
-    return edges, classes
-
-
-def _training_fgw(model: Any, i: int) -> _FGWArrays:
-    cache = _model_cache(model)
-    store = cache.setdefault("fgw", {})
-    if i not in store:
-        k = model.labels_.n_node_labels
-        C, F, E = model._structures[i], model._features[i][:, :k], model._channels[i]
-        store[i] = _FGWArrays(
-            C,
-            np.concatenate([F, np.zeros((len(F), 1))], 1),
-            np.concatenate([E, np.zeros(E.shape[:2] + (1,))], 2),
-        )
-    return store[i]
-
-
-# --------------------------------------------------------------------------- scorers
-def _union(rows: list[NDArray[np.int64]]) -> tuple[NDArray[np.int64], list[NDArray[np.int64]]]:
-    """Sorted union of the rows' library indices, and each row's positions in it."""
-    union = np.unique(np.concatenate(rows))
-    return union, [np.searchsorted(union, r) for r in rows]
-
-
-def _kernel_scores(
-    model: Any,
-    X: NDArray,
-    problem: _Problem,
-    space: _Space,
-    output_kernel: str,
-    wl_iterations: int,
-    fingerprint_bits: int,
-    bar: Any,
-) -> list[NDArray[np.float64]]:
-    idx, w = model._neighbors(X)
-    lib = problem.library
-    union, local = _union(problem.rows)
-    out = []
-    if output_kernel == "wl":
-        train = _training_wl(model, wl_iterations)
-        W = sp.csr_matrix(
-            (w.ravel(), (np.repeat(np.arange(len(idx)), idx.shape[1]), idx.ravel())),
-            shape=(len(idx), train.matrix.shape[0]),
-        )
-        H = (W @ train.matrix).T.tocsc()  # (n_vocab, n_rows): weighted training features
-        encoded = lib.cached(("wl", space.key, wl_iterations), union, _wl_encoder(lib, space, wl_iterations))
-        Phi = _wl_rows(encoded, train.vocabulary)  # (n_union, n_vocab), built once
-        for r, pos in enumerate(local):
-            out.append((Phi[pos] @ H[:, r]).toarray().ravel())
-            bar.update(1)
-        return out
-    # Tanimoto on bits, |a & b| / (|a| + |b| - |a & b|), with sparse candidate bits
-    train_fp = _training_fingerprints(model, 2, fingerprint_bits)
-    cand = _library_fingerprints(lib, union, fingerprint_bits)
-    cand_bits = np.asarray(cand.sum(1)).ravel()
-    train_bits = np.asarray(train_fp.sum(1)).ravel()
-    for r, pos in enumerate(local):
-        keep = w[r] > 0
-        t = idx[r][keep]
-        inter = (cand[pos] @ train_fp[t].T).toarray()  # (m, k)
-        union_bits = cand_bits[pos][:, None] + train_bits[t][None, :] - inter
-        K = np.where(union_bits > 0, inter / np.where(union_bits > 0, union_bits, 1.0), 1.0)
-        out.append(K @ w[r][keep])
-        bar.update(1)
-    return out
+    Returns
+    -------
+    list of FGWArrays
+    """
+    return library.cached(("fgw", space.key), indices, _fgw_encoder(library.graphs, space))
 
 
 def _bits_matrix(graphs: Sequence[nx.Graph], n_bits: int) -> list[NDArray[np.int32]]:
@@ -806,15 +527,6 @@ def _library_fingerprints(lib: CandidateLibrary, indices: NDArray[np.int64], n_b
     return _sparse_bits([memo[i] for i in idx], n_bits)
 
 
-def _wl_encoder(lib: CandidateLibrary, space: _Space, iterations: int) -> Callable[[int], tuple]:
-    def encode(i: int) -> tuple:
-        ids = _graph_ids(lib.graphs[i], space, f"candidates[{i}]")
-        feats, counts = wl_feature_counts(ids.nodes, ids.adjacency, iterations)
-        return feats, counts / np.linalg.norm(counts)
-
-    return encode
-
-
 def _wl_rows(encoded: list[tuple], vocabulary: NDArray[np.int64]) -> sp.csr_matrix:
     """Candidate WL rows over the training vocabulary (features unseen in training dropped;
     rows were normalised with all their features)."""
@@ -827,15 +539,197 @@ def _wl_rows(encoded: list[tuple], vocabulary: NDArray[np.int64]) -> sp.csr_matr
     return sp.csr_matrix((vals[hit], (rows[hit], pos[hit])), shape=(len(encoded), len(vocabulary)))
 
 
-def _fgw_encoder(lib: CandidateLibrary, space: _Space) -> Callable[[int], _FGWArrays]:
-    def encode(i: int) -> _FGWArrays:
-        ids = _graph_ids(lib.graphs[i], space, f"candidates[{i}]")
-        return _fgw_arrays(ids, space.n_node, space.n_edge)
-
-    return encode
+# --------------------------------------------------------------------------- training side
+# Encodings of the training graphs live in ``training.derived`` under these keys, so they
+# are computed once per fitted model (a refit builds a new training set).
+_DERIVED = "ranking"
 
 
-def _barycenter_formulas(model: Any, filter: Any, n_rows: int) -> list[Any] | None:
+def _training_ids(training: TrainingSet) -> list[IdGraph]:
+    key = (_DERIVED, "ids")
+    if key not in training.derived:
+        k = training.labels.n_node_labels
+        training.derived[key] = [
+            array_ids(C, F, E, k) for C, F, E in zip(training.structures, training.features, training.channels)
+        ]
+    return training.derived[key]
+
+
+@dataclass(frozen=True)
+class _TrainWL:
+    vocabulary: NDArray[np.int64]  # sorted feature hashes seen in training
+    matrix: sp.csr_matrix  # (n_train, n_vocab), rows normalised to unit norm
+
+
+def _training_wl(training: TrainingSet, iterations: int) -> _TrainWL:
+    key = (_DERIVED, "wl", iterations)
+    if key not in training.derived:
+        per = [wl_feature_counts(ids.nodes, ids.adjacency, iterations) for ids in _training_ids(training)]
+        vocab = np.unique(np.concatenate([f for f, _ in per]))
+        rows = np.repeat(np.arange(len(per)), [len(f) for f, _ in per])
+        cols = np.searchsorted(vocab, np.concatenate([f for f, _ in per]))
+        vals = np.concatenate([c / np.linalg.norm(c) for _, c in per])
+        M = sp.csr_matrix((vals, (rows, cols)), shape=(len(per), len(vocab)))
+        training.derived[key] = _TrainWL(vocab, M)
+    return training.derived[key]
+
+
+def _fingerprint_bits(graphs: Sequence[nx.Graph], radius: int, n_bits: int) -> NDArray[np.float64]:
+    """Morgan bits via :func:`gwpred.chem.morgan_fingerprints`; graphs RDKit rejects
+    (for example charged atoms whose charge is not stored) get the bits of the
+    literal, unsanitised molecule."""
+    try:
+        return morgan_fingerprints(graphs, radius=radius, n_bits=n_bits)
+    except ValueError:
+        pass
+    Chem, _ = rdkit_modules(_FINGERPRINT_PURPOSE)
+    rdFingerprintGenerator = require_extra("rdkit.Chem.rdFingerprintGenerator", _FINGERPRINT_PURPOSE)
+    generator = rdFingerprintGenerator.GetMorganGenerator(radius=radius, fpSize=n_bits)
+    out = np.zeros((len(graphs), n_bits))
+    for i, g in enumerate(graphs):
+        try:
+            out[i] = morgan_fingerprints([g], radius=radius, n_bits=n_bits)[0]
+        except ValueError:
+            mol = graph_to_mol(g, sanitize=False)
+            Chem.FastFindRings(mol)
+            out[i] = generator.GetFingerprintAsNumPy(mol)
+    return out
+
+
+def _training_fingerprints(training: TrainingSet, radius: int, n_bits: int) -> sp.csr_matrix:
+    key = (_DERIVED, "fingerprint", radius, n_bits)
+    if key not in training.derived:
+        graphs = [training.graph(i) for i in range(len(training))]
+        training.derived[key] = _sparse_bits(_bits_matrix(graphs, n_bits), n_bits)
+    return training.derived[key]
+
+
+def _training_fgw(training: TrainingSet, i: int) -> FGWArrays:
+    store = training.derived.setdefault((_DERIVED, "fgw"), {})
+    if i not in store:
+        k = training.labels.n_node_labels
+        C, F, E = training.structures[i], training.features[i][:, :k], training.channels[i]
+        store[i] = FGWArrays(
+            C,
+            np.concatenate([F, np.zeros((len(F), 1))], 1),
+            np.concatenate([E, np.zeros(E.shape[:2] + (1,))], 2),
+        )
+    return store[i]
+
+
+# --------------------------------------------------------------------------- scorers
+@dataclass(frozen=True)
+class _Options:
+    """Settings of one ranking call that scorers read."""
+
+    output_kernel: str
+    wl_iterations: int
+    fingerprint_bits: int
+
+
+@dataclass(frozen=True)
+class _Job:
+    """One ranking call: the model, its inputs and each row's candidates."""
+
+    model: FittedModel
+    X: NDArray[np.float64]
+    problem: _Problem
+    space: LabelIds
+    filter: Any
+    options: _Options
+
+
+def _union(rows: list[NDArray[np.int64]]) -> tuple[NDArray[np.int64], list[NDArray[np.int64]]]:
+    """Sorted union of the rows' library indices, and each row's positions in it."""
+    union = np.unique(np.concatenate(rows))
+    return union, [np.searchsorted(union, r) for r in rows]
+
+
+# ---- output kernels of the "kernel" scorer: sum_i w_i(x) k(y_i, c)
+def _wl_scores(
+    job: _Job, idx: NDArray[np.int64], w: NDArray[np.float64], union: NDArray[np.int64], local: list
+) -> Iterator[NDArray[np.float64]]:
+    train = _training_wl(job.model.training_, job.options.wl_iterations)
+    W = sp.csr_matrix(
+        (w.ravel(), (np.repeat(np.arange(len(idx)), idx.shape[1]), idx.ravel())),
+        shape=(len(idx), train.matrix.shape[0]),
+    )
+    H = (W @ train.matrix).T.tocsc()  # (n_vocab, n_rows): weighted training features
+    encoded = wl_encodings(job.problem.library, job.space, union, job.options.wl_iterations)
+    Phi = _wl_rows(encoded, train.vocabulary)  # (n_union, n_vocab), built once
+    for r, pos in enumerate(local):
+        yield (Phi[pos] @ H[:, r]).toarray().ravel()
+
+
+def _fingerprint_scores(
+    job: _Job, idx: NDArray[np.int64], w: NDArray[np.float64], union: NDArray[np.int64], local: list
+) -> Iterator[NDArray[np.float64]]:
+    # Tanimoto on bits, |a & b| / (|a| + |b| - |a & b|), with sparse candidate bits
+    n_bits = job.options.fingerprint_bits
+    train_fp = _training_fingerprints(job.model.training_, 2, n_bits)
+    cand = _library_fingerprints(job.problem.library, union, n_bits)
+    cand_bits = np.asarray(cand.sum(1)).ravel()
+    train_bits = np.asarray(train_fp.sum(1)).ravel()
+    for r, pos in enumerate(local):
+        keep = w[r] > 0
+        t = idx[r][keep]
+        inter = (cand[pos] @ train_fp[t].T).toarray()  # (m, k)
+        union_bits = cand_bits[pos][:, None] + train_bits[t][None, :] - inter
+        K = np.where(union_bits > 0, inter / np.where(union_bits > 0, union_bits, 1.0), 1.0)
+        yield K @ w[r][keep]
+
+
+def _prepare_wl(
+    model: FittedModel, library: CandidateLibrary, idx: NDArray[np.int64], space: LabelIds, options: _Options
+) -> None:
+    _training_wl(model.training_, options.wl_iterations)
+    wl_encodings(library, space, idx, options.wl_iterations)
+
+
+def _prepare_fingerprints(
+    model: FittedModel, library: CandidateLibrary, idx: NDArray[np.int64], space: LabelIds, options: _Options
+) -> None:
+    _training_fingerprints(model.training_, 2, options.fingerprint_bits)
+    _library_fingerprints(library, idx, options.fingerprint_bits)
+
+
+_FINGERPRINT_PURPOSE = "output_kernel='fingerprint'"
+
+
+def _no_extra() -> None:
+    return None
+
+
+def _needs_rdkit() -> None:
+    rdkit_modules(_FINGERPRINT_PURPOSE)
+
+
+@dataclass(frozen=True)
+class _OutputKernel:
+    """One output kernel: its scores per row, the encodings it caches, the extras it needs."""
+
+    scores: Callable[..., Iterator[NDArray[np.float64]]]
+    prepare: Callable[[FittedModel, CandidateLibrary, NDArray[np.int64], LabelIds, _Options], None]
+    check: Callable[[], None]
+
+
+_OUTPUT_KERNEL_TABLE: dict[str, _OutputKernel] = {
+    "wl": _OutputKernel(_wl_scores, _prepare_wl, _no_extra),
+    "fingerprint": _OutputKernel(_fingerprint_scores, _prepare_fingerprints, _needs_rdkit),
+}
+
+OUTPUT_KERNELS = tuple(_OUTPUT_KERNEL_TABLE)
+"""Output kernels of the ``kernel`` scorer."""
+
+
+# ---- scorers
+def _kernel_scores(job: _Job) -> Iterator[NDArray[np.float64]]:
+    idx, w = job.model.neighbors(job.X)
+    union, local = _union(job.problem.rows)
+    yield from _OUTPUT_KERNEL_TABLE[job.options.output_kernel].scores(job, idx, w, union, local)
+
+
+def _barycenter_formulas(model: FittedModel, filter: Any, n_rows: int) -> list[Any] | None:
     """Formulas of a formula filter, to size the barycenters (rows with unseen elements: None)."""
     if filter is None or isinstance(filter, (str, Formula)) or not isinstance(filter, Sequence):
         return None
@@ -850,45 +744,7 @@ def _barycenter_formulas(model: Any, filter: Any, n_rows: int) -> list[Any] | No
     return out if any(f is not None for f in out) else None
 
 
-def _fgw_scores(
-    model: Any, X: NDArray, problem: _Problem, space: _Space, filter: Any, bar: Any, objective: bool
-) -> list[NDArray[np.float64]]:
-    lib = problem.library
-    key = ("fgw", space.key)
-    encode = _fgw_encoder(lib, space)
-    out = []
-    if not objective:
-        softs = model.predict_barycenters(X, _barycenter_formulas(model, filter, len(X)))
-        for soft, rows in zip(softs, problem.rows):
-            cands = lib.cached(key, rows, encode)
-            k = model.labels_.n_node_labels
-            F = np.concatenate([soft.node_scores[:, :k], np.zeros((len(soft.node_scores), 1))], 1)
-            E = np.concatenate([soft.edge_scores, np.zeros(soft.edge_scores.shape[:2] + (1,))], 2)
-            out.append(_values(soft.structure, F, E, cands, model.alpha))
-            bar.update(1)
-        return out
-    idx, w = model._neighbors(X)
-    memo: dict[int, dict[int, float]] = {}  # FGW(training graph, candidate), shared by the rows
-    for r, rows in enumerate(problem.rows):
-        total = np.zeros(len(rows))
-        for i, wi in zip(idx[r].tolist(), w[r].tolist()):
-            if wi <= 0:
-                continue
-            done = memo.setdefault(i, {})
-            todo = [c for c in rows.tolist() if c not in done]
-            if todo:
-                y = _training_fgw(model, i)
-                vals = _values(
-                    y.structure, y.features, y.channels, lib.cached(key, todo, encode), model.alpha
-                )
-                done.update(zip(todo, vals.tolist()))
-            total += wi * np.array([done[c] for c in rows.tolist()])
-        out.append(total)
-        bar.update(1)
-    return out
-
-
-def _values(C: NDArray, F: NDArray, E: NDArray, cands: list[_FGWArrays], alpha: float) -> NDArray[np.float64]:
+def _values(C: NDArray, F: NDArray, E: NDArray, cands: list[FGWArrays], alpha: float) -> NDArray[np.float64]:
     return fgw_candidate_values(
         C,
         F,
@@ -900,9 +756,90 @@ def _values(C: NDArray, F: NDArray, E: NDArray, cands: list[_FGWArrays], alpha: 
     )
 
 
+def _fgw_scores(job: _Job) -> Iterator[NDArray[np.float64]]:
+    """FGW from the model's soft barycenter of each input."""
+    model, lib = job.model, job.problem.library
+    softs = model.predict_barycenters(job.X, _barycenter_formulas(model, job.filter, len(job.X)))
+    k = model.labels_.n_node_labels
+    for soft, rows in zip(softs, job.problem.rows):
+        cands = candidate_fgw_arrays(lib, job.space, rows)
+        F = np.concatenate([soft.node_scores[:, :k], np.zeros((len(soft.node_scores), 1))], 1)
+        E = np.concatenate([soft.edge_scores, np.zeros(soft.edge_scores.shape[:2] + (1,))], 2)
+        yield _values(soft.structure, F, E, cands, model.alpha)
+
+
+def _objective_scores(job: _Job) -> Iterator[NDArray[np.float64]]:
+    """The barycenter objective: sum_i w_i(x) FGW(y_i, c)."""
+    model, lib = job.model, job.problem.library
+    idx, w = model.neighbors(job.X)
+    memo: dict[int, dict[int, float]] = {}  # FGW(training graph, candidate), shared by the rows
+    for r, rows in enumerate(job.problem.rows):
+        total = np.zeros(len(rows))
+        for i, wi in zip(idx[r].tolist(), w[r].tolist()):
+            if wi <= 0:
+                continue
+            done = memo.setdefault(i, {})
+            todo = [c for c in rows.tolist() if c not in done]
+            if todo:
+                y = _training_fgw(model.training_, i)
+                vals = _values(
+                    y.structure, y.features, y.channels, candidate_fgw_arrays(lib, job.space, todo), model.alpha
+                )
+                done.update(zip(todo, vals.tolist()))
+            total += wi * np.array([done[c] for c in rows.tolist()])
+        yield total
+
+
+def _prepare_kernel(
+    model: FittedModel, library: CandidateLibrary, idx: NDArray[np.int64], space: LabelIds, options: _Options
+) -> None:
+    _OUTPUT_KERNEL_TABLE[options.output_kernel].prepare(model, library, idx, space, options)
+
+
+def _prepare_fgw(
+    model: FittedModel, library: CandidateLibrary, idx: NDArray[np.int64], space: LabelIds, options: _Options
+) -> None:
+    candidate_fgw_arrays(library, space, idx)
+
+
+def _check_kernel(options: _Options) -> None:
+    _OUTPUT_KERNEL_TABLE[options.output_kernel].check()
+
+
+def _check_nothing(options: _Options) -> None:
+    return None
+
+
+@dataclass(frozen=True)
+class _Scorer:
+    """One scorer: its scores per row (a generator), the encodings it caches, its checks."""
+
+    scores: Callable[[_Job], Iterator[NDArray[np.float64]]]
+    prepare: Callable[[FittedModel, CandidateLibrary, NDArray[np.int64], LabelIds, _Options], None]
+    check: Callable[[_Options], None]
+    higher_is_better: bool
+
+
+_SCORER_TABLE: dict[str, _Scorer] = {
+    "kernel": _Scorer(_kernel_scores, _prepare_kernel, _check_kernel, higher_is_better=True),
+    "fgw": _Scorer(_fgw_scores, _prepare_fgw, _check_nothing, higher_is_better=False),
+    "objective": _Scorer(_objective_scores, _prepare_fgw, _check_nothing, higher_is_better=False),
+}
+
+SCORERS = tuple(_SCORER_TABLE)
+"""Scorer names of :func:`rank_candidates`."""
+
+
+def _check_names(scorer: Any, output_kernel: Any) -> None:
+    if scorer not in SCORERS:
+        raise ValueError(f"scorer must be one of {list(SCORERS)}; got {scorer!r}.")
+    if output_kernel not in OUTPUT_KERNELS:
+        raise ValueError(f"output_kernel must be one of {list(OUTPUT_KERNELS)}; got {output_kernel!r}.")
+
+
 # --------------------------------------------------------------------------- helpers
 def prepare_candidates(
-    model: Any,
+    model: FittedModel,
     library: CandidateLibrary,
     indices: ArrayLike | None = None,
     *,
@@ -926,95 +863,11 @@ def prepare_candidates(
     scorer, output_kernel, wl_iterations, fingerprint_bits
         As in :func:`rank_candidates`.
     """
-    if scorer not in SCORERS:
-        raise ValueError(f"scorer must be one of {list(SCORERS)}; got {scorer!r}.")
-    if output_kernel not in OUTPUT_KERNELS:
-        raise ValueError(f"output_kernel must be one of {list(OUTPUT_KERNELS)}; got {output_kernel!r}.")
+    _check_names(scorer, output_kernel)
     idx = np.arange(len(library)) if indices is None else np.unique(np.asarray(indices, dtype=np.int64))
-    space = _Space.of(model.labels_)
-    if scorer != "kernel":
-        library.cached(("fgw", space.key), idx, _fgw_encoder(library, space))
-    elif output_kernel == "wl":
-        _training_wl(model, wl_iterations)
-        library.cached(("wl", space.key, wl_iterations), idx, _wl_encoder(library, space, wl_iterations))
-    else:
-        _training_fingerprints(model, 2, fingerprint_bits)
-        _library_fingerprints(library, idx, fingerprint_bits)
-
-
-def wl_graph_hashes(
-    library: CandidateLibrary, labels: LabelSpace, indices: ArrayLike | None = None, iterations: int = 3
-) -> NDArray[np.int64]:
-    """One 64-bit Weisfeiler-Lehman hash per candidate (cached with the WL encodings).
-
-    Label-isomorphic graphs get equal hashes; unequal hashes prove two graphs
-    different (equal ones do not prove them the same: check with
-    :func:`gwpred.metrics.exact_match`).
-
-    Parameters
-    ----------
-    library : CandidateLibrary
-    labels : LabelSpace
-        Fitted label space (``model.labels_``).
-    indices : array-like of int, default=None
-        Candidates to hash; None hashes all.
-    iterations : int, default=3
-
-    Returns
-    -------
-    ndarray of int64 of shape (len(indices),)
-    """
-    idx = np.arange(len(library)) if indices is None else np.asarray(indices, dtype=np.int64)
-    space = _Space.of(labels)
-    encoded = library.cached(("wl", space.key, iterations), idx, _wl_encoder(library, space, iterations))
-    digests = b"".join(hashlib.blake2b(f.tobytes() + v.tobytes(), digest_size=8).digest() for f, v in encoded)
-    return np.frombuffer(digests, dtype=np.int64).copy()
-
-
-def write_ranked(path: str | os.PathLike[str], ranked: Ranked, candidates: Sequence[Any]) -> None:
-    """Write ranked lists as JSON Lines, one object per input row.
-
-    Each line is ``{"row": i, "ranked": [{"candidate": j, "score": s,
-    "graph": <node-link record>}, ...]}``, best first; the graph is the
-    candidate in networkx's node-link form with the edge list under
-    ``"edges"``.  The file is replaced atomically.
-
-    Parameters
-    ----------
-    path : str or os.PathLike
-        Target ``.jsonl`` file.
-    ranked : list of list of (int, float)
-        As returned by :func:`rank_candidates`.
-    candidates : list of networkx.Graph, CandidateLibrary, or list of lists
-        The candidates that were ranked (indices refer to them).
-
-    Raises
-    ------
-    ValueError
-        For a path that does not end in ``.jsonl``, or a graph whose
-        attributes JSON cannot hold.
-    """
-    import json
-    from pathlib import Path
-
-    from .io import _atomic_open, _graph_to_json_line
-
-    target = Path(path)
-    if target.suffix.lower() != ".jsonl":
-        raise ValueError(f"ranked lists are written as JSON Lines: give a .jsonl path; got {str(path)!r}.")
-    shared = candidates.graphs if isinstance(candidates, CandidateLibrary) else candidates
-    per_row = not all(isinstance(g, nx.Graph) for g in shared)
-    lines = []
-    for r, row in enumerate(ranked):
-        pool = shared[r] if per_row else shared
-        items = [
-            {"candidate": j, "score": score, "graph": json.loads(_graph_to_json_line(pool[j], j))}
-            for j, score in row
-        ]
-        lines.append(json.dumps({"row": r, "ranked": items}, allow_nan=False, ensure_ascii=False))
-    with _atomic_open(target, binary=False) as fh:
-        for line in lines:
-            fh.write(line + "\n")
+    space = LabelIds.of(model.labels_)
+    options = _Options(output_kernel, wl_iterations, fingerprint_bits)
+    _SCORER_TABLE[scorer].prepare(model, library, idx, space, options)
 
 
 # --------------------------------------------------------------------------- entry point
@@ -1028,7 +881,7 @@ def _top(
 
 
 def rank_candidates(
-    model: Any,
+    model: FittedModel,
     X: ArrayLike,
     candidates: Any,
     *,
@@ -1038,14 +891,14 @@ def rank_candidates(
     output_kernel: str = "wl",
     wl_iterations: int = 3,
     fingerprint_bits: int = 2048,
-    progress: bool | None = None,
+    progress: bool = False,
 ) -> Ranked:
     """Rank candidate graphs for each input of a fitted model (see the module notes).
 
     Parameters
     ----------
     model : BarycenterGraphPredictor
-        A fitted model.
+        A fitted model (anything that follows :class:`FittedModel`).
     X : array-like of shape (n_queries, n_features)
         Inputs, as for ``predict``.
     candidates : list of networkx.Graph, CandidateLibrary, or list of lists
@@ -1067,8 +920,8 @@ def rank_candidates(
         Refinement rounds of the WL kernel.
     fingerprint_bits : int, default=2048
         Fingerprint length of the ``fingerprint`` kernel.
-    progress : bool or None, default=None
-        Progress bar over the inputs; None follows ``model.verbose``.
+    progress : bool, default=False
+        Progress bar over the inputs.
 
     Returns
     -------
@@ -1089,13 +942,8 @@ def rank_candidates(
     ImportError
         For ``output_kernel="fingerprint"`` without RDKit.
     """
-    from sklearn.utils.validation import check_is_fitted
-
-    check_is_fitted(model, "weights_")
-    if scorer not in SCORERS:
-        raise ValueError(f"scorer must be one of {list(SCORERS)}; got {scorer!r}.")
-    if output_kernel not in OUTPUT_KERNELS:
-        raise ValueError(f"output_kernel must be one of {list(OUTPUT_KERNELS)}; got {output_kernel!r}.")
+    check_is_fitted(model, "training_")
+    _check_names(scorer, output_kernel)
     for name, value, lo in (
         ("k", k, 1),
         ("wl_iterations", wl_iterations, 0),
@@ -1103,29 +951,19 @@ def rank_candidates(
     ):
         if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Integral) or value < lo:
             raise ValueError(f"{name} must be an integer >= {lo}; got {value!r}.")
-    from .estimator import _check_X
-
-    X = _check_X(X)
+    X = check_inputs(X)
     if isinstance(filter, np.ndarray):
         filter = list(filter)
     problem = _candidate_sets(candidates, len(X))
     n_given = [len(r) for r in problem.rows]
-    space = _Space.of(model.labels_)
+    space = LabelIds.of(model.labels_)
     problem, notes = _apply_filter(problem, filter, space.node_label)
     _check_nonempty(problem, notes, n_given)
-    if scorer == "kernel" and output_kernel == "fingerprint":
-        from .chem import _rdkit
-
-        _rdkit()
-    from tqdm.auto import tqdm
-
-    show = model.verbose if progress is None else progress
-    with tqdm(total=len(X), disable=not show, desc=f"ranking ({scorer})", unit="input") as bar:
-        if scorer == "kernel":
-            scores = _kernel_scores(
-                model, X, problem, space, output_kernel, int(wl_iterations), int(fingerprint_bits), bar
-            )
-        else:
-            scores = _fgw_scores(model, X, problem, space, filter, bar, objective=scorer == "objective")
-    higher = _HIGHER_IS_BETTER[scorer]
-    return [_top(s, pos, int(k), higher) for s, pos in zip(scores, problem.positions)]
+    options = _Options(output_kernel, int(wl_iterations), int(fingerprint_bits))
+    method = _SCORER_TABLE[scorer]
+    method.check(options)
+    job = _Job(model, X, problem, space, filter, options)
+    scores = list(
+        progress_bar(method.scores(job), progress=progress, total=len(X), desc=f"ranking ({scorer})", unit="input")
+    )
+    return [_top(s, pos, int(k), method.higher_is_better) for s, pos in zip(scores, problem.positions)]

@@ -13,153 +13,48 @@ from __future__ import annotations
 
 import html
 import io
-import json
 import math
 import os
 import re
-import sys
 from collections.abc import Hashable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+import matplotlib
 import networkx as nx
 import numpy as np
+from matplotlib.figure import Figure
+
+from ._utils import CAUTION, atomic_write_text, has_extra, progress_bar, require_extra
+from .chem import check_molecule, graph_to_mol
+from .formula import ELEMENTS
+from .io import RankedCandidate, read_ranked, write_ranked
+from .metrics import TOP_K, edit_distance, exact_match, hit_rank, summarize
+from .plot import (
+    EDIT_COLOURS,
+    alignment_edits,
+    draw_alignment,
+    draw_graph,
+    draw_neighbors,
+    draw_node_scores,
+    draw_structure,
+)
 
 __all__ = [
-    "ELEMENT_SYMBOLS",
     "RankedCandidate",
     "build_report",
     "is_molecular",
     "read_ranked",
+    "write_ranked",
     "write_report",
 ]
 
-#: The 118 element symbols of the IUPAC periodic table (from memory).
-ELEMENT_SYMBOLS = frozenset(
-    re.split(
-        r"\s+",
-        """H He Li Be B C N O F Ne Na Mg Al Si P S Cl Ar K Ca Sc Ti V Cr Mn Fe Co Ni Cu Zn Ga Ge As
-        Se Br Kr Rb Sr Y Zr Nb Mo Tc Ru Rh Pd Ag Cd In Sn Sb Te I Xe Cs Ba La Ce Pr Nd Pm Sm Eu Gd
-        Tb Dy Ho Er Tm Yb Lu Hf Ta W Re Os Ir Pt Au Hg Tl Pb Bi Po At Rn Fr Ra Ac Th Pa U Np Pu Am
-        Cm Bk Cf Es Fm Md No Lr Rf Db Sg Bh Hs Mt Ds Rg Cn Nh Fl Mc Lv Ts Og""",
-    )
-)
-
 # candidates whose match with the truth is checked (as in gwpred.metrics' top-k accuracy)
-_HIT_DEPTH = 10
-_TOP_K = (1, 5, 10)
-
-
-@dataclass(frozen=True)
-class RankedCandidate:
-    """One entry of a ranked candidate list.
-
-    Attributes
-    ----------
-    graph : networkx.Graph
-    candidate : int or None
-        The candidate's index in its source list, when known.
-    score : float or None
-        Its score (best first in the list), when known.
-    """
-
-    graph: nx.Graph
-    candidate: int | None = None
-    score: float | None = None
+_HIT_DEPTH = max(TOP_K)
 
 
 # --------------------------------------------------------------------------- inputs
-
-
-def read_ranked(path: str | os.PathLike) -> dict[int, list[RankedCandidate]]:
-    """Read ranked candidate lists, one JSON object per line.
-
-    Each line is ``{"row": i, "ranked": [{"candidate": j, "score": s, "graph": G}, ...]}``
-    with the candidates best first and ``G`` a networkx node-link record (edge list under
-    ``"edges"``, as ``gwpred.io`` writes graphs). ``candidate`` and ``score`` may be
-    missing or null. Blank lines are skipped.
-
-    Parameters
-    ----------
-    path : str or os.PathLike
-
-    Returns
-    -------
-    dict
-        Row -> list of :class:`RankedCandidate`, best first.
-
-    Raises
-    ------
-    FileNotFoundError
-        If the file does not exist.
-    ValueError
-        If a line is not valid JSON or lacks ``row``/``ranked``/``graph``, a row number
-        is negative or repeated, a score is not a number, or a graph record is invalid.
-    """
-    from .io import _graph_from_record
-
-    path = Path(path)
-    if not path.is_file():
-        raise FileNotFoundError(f"ranked candidate file {str(path)!r} does not exist")
-    out: dict[int, list[RankedCandidate]] = {}
-    with open(path, encoding="utf-8") as fh:
-        for lineno, line in enumerate(fh, start=1):
-            if not line.strip():
-                continue
-            where = f"{str(path)!r} line {lineno}"
-            try:
-                record = json.loads(line)
-            except json.JSONDecodeError as err:
-                raise ValueError(
-                    f"{where}: malformed JSON ({err.msg} at column {err.colno})"
-                ) from err
-            row, items = _ranked_record(record, where)
-            if row in out:
-                raise ValueError(
-                    f"{where}: row {row} appears twice; give one candidate list per row"
-                )
-            out[row] = [
-                _ranked_item(item, f"{where}, candidate {k}", _graph_from_record)
-                for k, item in enumerate(items)
-            ]
-    return out
-
-
-def _ranked_record(record: Any, where: str) -> tuple[int, list]:
-    if not isinstance(record, dict) or "row" not in record or "ranked" not in record:
-        raise ValueError(
-            f'{where}: expected an object {{"row": i, "ranked": [...]}}, got {str(record)[:80]}'
-        )
-    row = record["row"]
-    if isinstance(row, bool) or not isinstance(row, int) or row < 0:
-        raise ValueError(
-            f"{where}: row must be an int >= 0 (the item's position), got {row!r}"
-        )
-    items = record["ranked"]
-    if not isinstance(items, list):
-        raise ValueError(  # noqa: TRY004 - a malformed file is a bad value, as the other errors here
-            f"{where}: ranked must be a list of candidates, got {type(items).__name__}"
-        )
-    return row, items
-
-
-def _ranked_item(item: Any, where: str, to_graph: Any) -> RankedCandidate:
-    if not isinstance(item, dict) or "graph" not in item:
-        raise ValueError(
-            f'{where}: expected an object with a "graph" (node-link record), got {str(item)[:80]}'
-        )
-    score = item.get("score")
-    if score is not None and (
-        isinstance(score, bool) or not isinstance(score, (int, float))
-    ):
-        raise ValueError(f"{where}: score must be a number or null, got {score!r}")
-    cand = item.get("candidate")
-    if cand is not None and (isinstance(cand, bool) or not isinstance(cand, int)):
-        raise ValueError(f"{where}: candidate must be an int or null, got {cand!r}")
-    return RankedCandidate(
-        to_graph(item["graph"], where), cand, None if score is None else float(score)
-    )
 
 
 def is_molecular(graphs: Sequence[nx.Graph], node_label: Hashable = "label") -> bool:
@@ -174,7 +69,7 @@ def is_molecular(graphs: Sequence[nx.Graph], node_label: Hashable = "label") -> 
     seen = False
     for g in graphs:
         for _, lab in g.nodes(data=node_label):
-            if not (isinstance(lab, str) and lab in ELEMENT_SYMBOLS):
+            if not (isinstance(lab, str) and lab in ELEMENTS):
                 return False
             seen = True
     return seen
@@ -287,8 +182,6 @@ class _Svgs:
     def figure(self, fig: Any, tight: bool = True) -> str:
         """Inline SVG of a figure; ``tight=False`` keeps the figure's own margins (one
         drawing pass instead of two: for figures laid out with :func:`_figure`'s margins)."""
-        import matplotlib
-
         buf = io.StringIO()
         # text as text (small files, selectable), stable ids, no date: reproducible pages
         with matplotlib.rc_context({"svg.fonttype": "none", "svg.hashsalt": "gwpred"}):
@@ -309,8 +202,6 @@ def _figure(
     wspace: float = 0.2,
 ) -> Any:
     """A figure (outside pyplot); ``margins`` = (left, bottom, right, top) in inches."""
-    from matplotlib.figure import Figure
-
     fig = Figure(figsize=(width, height))
     if margins is not None:
         left, bottom, right, top = margins
@@ -332,14 +223,6 @@ def _rgb(colour: str) -> tuple[float, float, float]:
     return (int(c[0:2], 16) / 255, int(c[2:4], 16) / 255, int(c[4:6], 16) / 255)
 
 
-def _rdkit_available() -> bool:
-    try:
-        import rdkit  # noqa: F401
-    except ImportError:
-        return False
-    return True
-
-
 def _mol_svg(
     graph: nx.Graph,
     *,
@@ -353,11 +236,8 @@ def _mol_svg(
     """RDKit depiction of a heavy-atom graph as SVG, with highlighted atoms and bonds; None if impossible."""
     if edge_label is None or graph.number_of_nodes() == 0:
         return None
-    from rdkit.Chem import rdDepictor
-    from rdkit.Chem.Draw import rdMolDraw2D
-
-    from .chem import graph_to_mol
-
+    rdDepictor = require_extra("rdkit.Chem.rdDepictor", "molecule depictions")
+    rdMolDraw2D = require_extra("rdkit.Chem.Draw.rdMolDraw2D", "molecule depictions")
     try:
         mol = graph_to_mol(
             graph,
@@ -427,22 +307,12 @@ class _Options:
 
 
 def _hit_rank(item: _Item, opts: _Options) -> int | None:
-    from .metrics import exact_match
-
-    for k, cand in enumerate((item.candidates or [])[:_HIT_DEPTH]):
-        if exact_match(
-            cand.graph,
-            item.true,
-            node_label=opts.node_label,
-            edge_label=opts.edge_label,
-        ):
-            return k + 1
-    return None
+    """Rank of the truth among the first candidates (:func:`gwpred.metrics.hit_rank`)."""
+    head = [c.graph for c in (item.candidates or [])[:_HIT_DEPTH]]
+    return hit_rank(head, item.true, item.index, opts.node_label, opts.edge_label)
 
 
 def _chem_fields(item: _Item, opts: _Options) -> None:
-    from .chem import check_molecule
-
     kw = {"node_label": str(opts.node_label), "edge_label": str(opts.edge_label)}
     try:
         check = check_molecule(item.predicted, **kw)
@@ -574,7 +444,7 @@ def _summary_cards(summary: dict | None, items: list[_Item], opts: _Options) -> 
         cards.append(_card(_pct(float(np.mean(checked))), "valid molecules (RDKit)"))
     ranked = [it for it in items if it.candidates]
     if ranked and summary is not None:
-        for k in _TOP_K:
+        for k in TOP_K:
             share = np.mean(
                 [it.hit_rank is not None and it.hit_rank <= k for it in ranked]
             )
@@ -715,9 +585,6 @@ def _figure_html(svg: str, caption: str) -> str:
 
 
 def _alignment_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
-    from .metrics import edit_distance
-    from .plot import EDIT_COLOURS, alignment_edits, draw_alignment
-
     r = edit_distance(
         item.predicted,
         item.true,
@@ -782,8 +649,6 @@ def _alignment_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
 
 
 def _predicted_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
-    from .plot import draw_graph
-
     if opts.molecules and opts.rdkit:
         svg = _mol_svg(
             item.predicted,
@@ -806,8 +671,6 @@ def _predicted_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
 
 
 def _barycenter_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
-    from .plot import draw_neighbors, draw_node_scores, draw_structure
-
     soft = opts.barycenters.get(item.index)
     if soft is None:
         return []
@@ -866,9 +729,6 @@ def _barycenter_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
 
 
 def _candidate_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
-    from .metrics import exact_match
-    from .plot import draw_graph
-
     shown = (item.candidates or [])[: opts.top]
     if not shown:
         return []
@@ -1051,8 +911,6 @@ def build_report(
         that do not exist, ``summary`` does not cover the items, or ``barycenters`` is
         longer than the items or points to graphs outside ``training_graphs``.
     """
-    from tqdm.auto import tqdm
-
     predicted = _check_graphs(predicted, "predicted")
     truth = None if true is None else _check_graphs(true, "true")
     if truth is not None and len(truth) != len(predicted):
@@ -1078,7 +936,7 @@ def build_report(
         else bool(molecules)
     )
     # depictions, SMILES and validity need bond orders, so edge labels must be read
-    rdkit = molecular and edge_label is not None and _rdkit_available()
+    rdkit = molecular and edge_label is not None and has_extra("rdkit")
     opts = _Options(
         node_label,
         edge_label,
@@ -1094,8 +952,6 @@ def build_report(
 
     if truth is not None:
         if summary is None:
-            from .metrics import summarize
-
             summary = summarize(
                 predicted,
                 truth,
@@ -1129,8 +985,6 @@ def build_report(
             it.hit_rank = _hit_rank(it, opts)
         if rdkit:
             _chem_fields(it, opts)
-
-    from .cli import CAUTION
 
     svgs = _Svgs()
     parts = [f"<h1>{_e(title)}</h1>"]
@@ -1171,7 +1025,7 @@ def build_report(
     parts.append("<h2>Panels</h2>")
     if truth is not None:
         parts.append(_key())
-    for it in tqdm(items, disable=not progress, file=sys.stderr, desc="report panels"):
+    for it in progress_bar(items, progress=progress, desc="report panels"):
         parts.append(_panel(it, opts, svgs, it.index < drawings, drawings))
     return _page(title, "\n".join(parts))
 
@@ -1259,11 +1113,5 @@ def write_report(
             f"folder {str(path.parent)!r} does not exist; create it first"
         )
     text = build_report(predicted, true, **kwargs)
-    tmp = path.with_name(f".{path.name}.tmp{os.getpid()}")
-    try:
-        tmp.write_text(text, encoding="utf-8")
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
+    atomic_write_text(path, text)
     return path

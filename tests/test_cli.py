@@ -187,7 +187,7 @@ def test_fit_writes_a_loadable_model(capsys, tmp_path, files, demo):
     assert code == 0, err
     assert f"fitted on {len(TRAIN)} graphs" in out
     assert f"model written to {model_path}" in out
-    from gwpred.io import load_model
+    from gwpred import load_model
 
     model = load_model(model_path)
     assert (model.top_k, model.alpha, model.random_state) == (3, 0.5, 0)

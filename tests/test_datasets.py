@@ -29,7 +29,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from gwpred import datasets
+from gwpred.datasets import demo as demo_module
+from gwpred.datasets import qm9 as qm9_module
+from gwpred.datasets import spectra as spectra_module
 from gwpred.datasets import (
     Qm9Data,
     broadened_spectra,
@@ -321,7 +323,7 @@ def test_batch_equals_singles_across_blocks(monkeypatch):
     lists = [rng.uniform(300, 4100, size=rng.integers(0, 12)) for _ in range(40)]
     single = np.array([lorentzian_spectrum(f) for f in lists])
     # a tiny block size forces molecules to straddle block boundaries
-    monkeypatch.setattr(datasets, "_BLOCK_ELEMENTS", 361 * 3)
+    monkeypatch.setattr(spectra_module, "_BLOCK_ELEMENTS", 361 * 3)
     np.testing.assert_allclose(lorentzian_spectra(lists), single, rtol=1e-13, atol=1e-15)
     assert lorentzian_spectra([]).shape == (0, 361)
 
@@ -458,7 +460,7 @@ def test_load_demo_missing_path(tmp_path):
 
 
 def test_load_demo_missing_bundled_file(monkeypatch):
-    monkeypatch.setattr(datasets, "_DEMO_FILE", "absent_demo.npz")
+    monkeypatch.setattr(demo_module, "_DEMO_FILE", "absent_demo.npz")
     with pytest.raises(FileNotFoundError, match=r"absent_demo\.npz was found neither .*python data/make_demo\.py"):
         load_demo()
 
@@ -592,7 +594,7 @@ def test_broadened_spectra_blocks(monkeypatch):
     lists = [rng.uniform(300, 4100, size=rng.integers(0, 9)) for _ in range(25)]
     heights = [rng.uniform(0, 3, size=f.size) for f in lists]
     whole = broadened_spectra(lists, shape="gaussian", intensities=heights)
-    monkeypatch.setattr(datasets, "_BLOCK_ELEMENTS", 361 * 2)
+    monkeypatch.setattr(spectra_module, "_BLOCK_ELEMENTS", 361 * 2)
     np.testing.assert_allclose(
         broadened_spectra(lists, shape="gaussian", intensities=heights), whole, rtol=1e-13, atol=1e-15
     )
@@ -772,13 +774,13 @@ EXPECTED_SMALL_REJECTIONS = {
 
 def _spy_parse(monkeypatch) -> list:
     calls = []
-    real = datasets._parse_qm9
+    real = qm9_module._parse_qm9
 
     def spy(*args, **kwargs):
         calls.append(1)
         return real(*args, **kwargs)
 
-    monkeypatch.setattr(datasets, "_parse_qm9", spy)
+    monkeypatch.setattr(qm9_module, "_parse_qm9", spy)
     return calls
 
 
@@ -849,7 +851,7 @@ def test_load_qm9_small_rebuilds_when_source_changes(small_qm9, monkeypatch, qm9
 def test_load_qm9_small_rebuilds_on_format_version(small_qm9, monkeypatch, capsys):
     cache, _, _ = small_qm9
     before = load_qm9(features=None, cache_dir=cache, progress=False)
-    monkeypatch.setattr(datasets, "_QM9_CACHE_VERSION", 2)
+    monkeypatch.setattr(qm9_module, "_QM9_CACHE_VERSION", 2)
     calls = _spy_parse(monkeypatch)
     after = load_qm9(features=None, cache_dir=cache, progress=True)
     assert calls == [1]
@@ -926,7 +928,7 @@ def test_load_qm9_small_unwritable_cache_warns_and_returns_data(small_qm9, monke
     def refuse(path, arrays):
         raise PermissionError(13, "Permission denied", str(path))
 
-    monkeypatch.setattr(datasets, "_write_qm9_cache", refuse)
+    monkeypatch.setattr(qm9_module, "_write_qm9_cache", refuse)
     with pytest.warns(RuntimeWarning, match=r"could not write the QM9 cache file .*Permission denied.*pass cache_dir= a writable folder"):
         data = load_qm9(features=None, cache_dir=cache, progress=False)
     assert len(data) == 24
@@ -939,8 +941,8 @@ def test_load_qm9_cache_location(tmp_path, monkeypatch):
     assert (tmp_path / "from_env" / "qm9_full.npz").is_file()
     monkeypatch.delenv("GWPRED_CACHE")
     monkeypatch.setenv("HOME", str(tmp_path / "home"))  # Path.home() reads HOME on POSIX
-    assert datasets._qm9_cache_path(None) == tmp_path / "home" / ".cache" / "gwpred" / "qm9_full.npz"
-    assert datasets._qm9_cache_path("~/x") == tmp_path / "home" / "x" / "qm9_full.npz"
+    assert qm9_module._qm9_cache_path(None) == tmp_path / "home" / ".cache" / "gwpred" / "qm9_full.npz"
+    assert qm9_module._qm9_cache_path("~/x") == tmp_path / "home" / "x" / "qm9_full.npz"
 
 
 def test_load_qm9_small_features_and_range(small_qm9):
@@ -1038,10 +1040,10 @@ def test_load_qm9_cache_dir_is_a_file(tmp_path):
 def test_hill_formula_order():
     # Common practice (Hill system): C, then H, then the others alphabetically; without C,
     # everything alphabetically. Counts in the QM9 Stoichiometry order H, C, N, O, F.
-    assert datasets._hill_formula([6, 2, 0, 1, 0]) == "C2H6O"
-    assert datasets._hill_formula([3, 0, 1, 0, 0]) == "H3N"
-    assert datasets._hill_formula([1, 0, 0, 0, 1]) == "FH"
-    assert datasets._hill_formula([0, 1, 0, 1, 2]) == "CF2O"
+    assert qm9_module._hill_formula([6, 2, 0, 1, 0]) == "C2H6O"
+    assert qm9_module._hill_formula([3, 0, 1, 0, 0]) == "H3N"
+    assert qm9_module._hill_formula([1, 0, 0, 0, 1]) == "FH"
+    assert qm9_module._hill_formula([0, 1, 0, 1, 2]) == "CF2O"
 
 
 # --------------------------------------------------------------------------
@@ -1183,7 +1185,7 @@ def test_qm9_full_second_call_reads_cache(qm9_full, qm9_cache_dir, monkeypatch, 
     def no_parse(*args, **kwargs):
         raise AssertionError("the cache should have been used")
 
-    monkeypatch.setattr(datasets, "_parse_qm9", no_parse)
+    monkeypatch.setattr(qm9_module, "_parse_qm9", no_parse)
     again = load_qm9(features=None, cache_dir=qm9_cache_dir, progress=True)
     err = capsys.readouterr().err
     assert "QM9 from cache" in err and "130,831 rows, 130,495 passed the checks, 336 rejected" in err
@@ -1249,7 +1251,7 @@ def _graph(nodes, edges):
 def test_qm9_row_checks_on_unusual_graphs(graph, stoichiometry, reason):
     # Invented graphs that graph_from_smiles should never return: the checks still catch them.
     freqs = "[" + ",".join(["1000.0"] * 12) + "]"
-    assert datasets._qm9_molecule(1, "X", stoichiometry, freqs, lambda s: graph) == reason
+    assert qm9_module._qm9_molecule(1, "X", stoichiometry, freqs, lambda s: graph) == reason
 
 
 @pytest.mark.parametrize(
@@ -1263,5 +1265,5 @@ def test_implied_hydrogens_agree_with_rdkit(smiles, hydrogens):
 
     mol = Chem.MolFromSmiles(smiles)
     assert sum(a.GetTotalNumHs() for a in mol.GetAtoms()) == hydrogens
-    parts = datasets._graph_parts(graph_from_smiles(smiles, check_hydrogens=False))
-    assert datasets._implied_hydrogens(*parts) == hydrogens
+    parts = qm9_module._graph_parts(graph_from_smiles(smiles, check_hydrogens=False))
+    assert qm9_module._implied_hydrogens(*parts) == hydrogens

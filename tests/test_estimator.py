@@ -1,4 +1,4 @@
-"""Tests for gwpred.estimator.BarycenterGraphPredictor.
+"""Tests for gwpred.model.BarycenterGraphPredictor.
 
 Outside references used here:
 
@@ -514,3 +514,27 @@ def test_precomputed_kernel_of_wrong_shape():
     model = BarycenterGraphPredictor(kernel="precomputed", top_k=1).fit(K, graphs)
     with pytest.raises(ValueError, match=r"X has 5 columns but the model was fitted with 6; .*kernel to the training items"):
         model.predict(K[:2, :5])
+
+
+def test_predict_on_two_workers_equals_one():
+    # the per-query steps run in joblib worker processes (outside reference: joblib/loky);
+    # the predictions on QM9 spectra must not depend on where they ran
+    X, graphs = load_demo()
+    one = BarycenterGraphPredictor(top_k=5, valence=True).fit(X[:200], graphs[:200])
+    two = BarycenterGraphPredictor(top_k=5, valence=True, n_jobs=2).fit(X[:200], graphs[:200])
+    a, b = one.predict(X[200:212]), two.predict(X[200:212])
+    assert [nx.node_link_data(g, edges="edges") for g in a] == [nx.node_link_data(g, edges="edges") for g in b]
+
+
+@pytest.mark.parametrize(
+    "params, exc, match",
+    [
+        ({"n_jobs": 0}, ValueError, r"n_jobs must be a non-zero integer \(1: no parallelism, -1: one worker per processor\); got 0\."),
+        ({"progress": "yes"}, ValueError, r"progress must be bool; got 'yes'\."),
+        ({"decoding": "round"}, ValueError, r"decoding must be one of \['anchored', 'free'\]; got 'round'\."),
+    ],
+)
+def test_new_parameter_checks(params, exc, match):
+    X, graphs = toy()
+    with pytest.raises(exc, match=match):
+        BarycenterGraphPredictor(**params).fit(X, graphs)

@@ -18,7 +18,8 @@ from __future__ import annotations
 import networkx as nx
 import pytest
 
-from gwpred.datasets import _read_demo_arrays, _read_demo_bytes, load_demo
+from gwpred.datasets import load_demo
+from gwpred.datasets.demo import _read_demo_arrays, _read_demo_bytes
 from gwpred.formula import (
     Formula,
     default_valence,

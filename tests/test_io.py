@@ -689,12 +689,12 @@ def test_archive_object_member_refused_at_load(tmp_path: Path) -> None:
 
 
 def test_gwpred_version_falls_back(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    import gwpred
+    from gwpred import _version  # where the version string lives since the layered re-lay
 
-    monkeypatch.setattr(gwpred, "__version__", "9.9.9", raising=False)
+    monkeypatch.setattr(_version, "__version__", "9.9.9", raising=False)
     save_archive(tmp_path / "m.npz", {}, {})
     assert load_archive(tmp_path / "m.npz")[1]["gwpred_version"] == "9.9.9"
-    monkeypatch.delattr(gwpred, "__version__")
+    monkeypatch.delattr(_version, "__version__")
     save_archive(tmp_path / "m.npz", {}, {})
     assert load_archive(tmp_path / "m.npz")[1]["gwpred_version"] == "unknown"
     assert os.listdir(tmp_path) == ["m.npz"]

@@ -26,7 +26,13 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from scipy.optimize import linprog
 
+import gwpred.parallel
+from gwpred.ged._lagrangian import lagrangian, star_decomposition
+from gwpred.ged._programs import program, relaxation, variable_bounds
+from gwpred.ged._search import PathCost, padded
+from gwpred.ged._solve import mapping_dict, prepare
 from gwpred.metrics import (
     EditDistance,
     edit_distance,
@@ -666,18 +672,12 @@ def test_branch_lower_bound_never_exceeds_networkx():
 
 def _prepared(g1: nx.Graph, g2: nx.Graph, costs: dict = UNIT):
     """gwpred's index form of both graphs and their cost tables (as edit_distance builds them)."""
-    from gwpred.metrics import _prepare
-
-    return _prepare(g1, g2, "label", "label", cost_kwargs(costs))
+    return prepare(g1, g2, "label", "label", cost_kwargs(costs))
 
 
 def _relaxation_optimum(prog) -> float:
     """Reference: optimum of the program's linear relaxation from scipy.optimize.linprog."""
-    from scipy.optimize import linprog
-
-    from gwpred.metrics import _variable_bounds
-
-    lo, hi = _variable_bounds(prog)
+    lo, hi = variable_bounds(prog)
     ref = linprog(
         prog.c, A_ub=prog.matrix, b_ub=prog.ub, bounds=np.column_stack([lo, hi]), method="highs"
     )
@@ -691,20 +691,18 @@ def test_relaxation_stopped_early_is_still_a_lower_bound():
     # target (HiGHS option objective_bound, documented as the "objective bound for
     # termination of the dual simplex"). References: the relaxation's optimum from
     # scipy.optimize.linprog on the same program, and the exact distance from networkx.
-    from gwpred.metrics import _program, _relaxation
-
     rng = random.Random(77)
     stopped = full = 0
     for _ in range(120):
         g1 = random_graph(rng, 3, 6)
         g2 = random_graph(rng, 3, 6)
         a, b, costs = _prepared(g1, g2)
-        prog = _program(a, b, costs)
+        prog = program(a, b, costs)
         ref = _relaxation_optimum(prog)
         ged = networkx_ged(g1, g2)
         assert ref <= ged + 1e-7  # a relaxation
         for stop_at in (ref - 0.5, ref + 0.5, ged - 0.9):
-            bound, image = _relaxation(prog, len(a.nodes), len(b.nodes), None, stop_at)
+            bound, image = relaxation(prog, len(a.nodes), len(b.nodes), None, stop_at)
             assert bound <= ref + 1e-6 and bound <= ged + 1e-9
             if image is None:  # stopped at the target: the bound is the target
                 stopped += 1
@@ -724,15 +722,6 @@ def test_lagrangian_bound_is_below_relaxation_and_networkx():
     # same program, and the exact distance from networkx.graph_edit_distance. Random
     # unit costs and costs in multiples of 0.25, 300 pairs of up to 6 nodes (those with a
     # node of degree 6 are skipped, as in edit_distance).
-    from gwpred.metrics import (
-        _lagrangian,
-        _mapping_dict,
-        _padded,
-        _PathCost,
-        _program,
-        _stars,
-    )
-
     rng = random.Random(1987)
     closed = tried = 0
     for k in range(300):
@@ -740,39 +729,37 @@ def test_lagrangian_bound_is_below_relaxation_and_networkx():
         g1 = random_graph(rng, 2, 6)
         g2 = random_graph(rng, 2, 6)
         a, b, costs = _prepared(g1, g2, cost_dict)
-        stars = _stars(a, b, costs)
+        stars = star_decomposition(a, b, costs)
         if stars is None:
             continue
         tried += 1
-        ref = _relaxation_optimum(_program(a, b, costs))
+        ref = _relaxation_optimum(program(a, b, costs))
         ged = networkx_ged(g1, g2, cost_dict)
-        lower, upper, image, _ = _lagrangian(
-            stars, _padded(a, b, costs), _PathCost(a, b, costs), costs, -math.inf, math.inf, None
+        lower, upper, image, _ = lagrangian(
+            stars, padded(a, b, costs), PathCost(a, b, costs), costs, -math.inf, math.inf, None
         )
         q = costs.unit
         assert lower <= math.ceil(ref / q - 1e-6) * q + 1e-9
         assert lower <= ged + 1e-9 <= upper + 2e-9
-        mapping = _mapping_dict(a, b, image)
+        mapping = mapping_dict(a, b, image)
         assert mapping_cost(g1, g2, mapping, cost_dict) == pytest.approx(upper, abs=1e-9)
         closed += lower == upper
     assert tried >= 150 and closed >= tried // 2, (tried, closed)
 
 
 def test_vectorised_path_cost_matches_the_definition():
-    # _PathCost (every edit path's cost inside edit_distance) against mapping_cost above,
+    # PathCost (every edit path's cost inside edit_distance) against mapping_cost above,
     # which follows the definition of an edit path's cost, on random node maps and costs.
-    from gwpred.metrics import _mapping_dict, _PathCost
-
     rng = random.Random(5)
     for k in range(200):
         cost_dict = UNIT if k % 2 == 0 else _costs_with_strict_triangle(rng)
         g1 = random_graph(rng, 1, 7)
         g2 = random_graph(rng, 1, 7)
         a, b, costs = _prepared(g1, g2, cost_dict)
-        cost = _PathCost(a, b, costs)
+        cost = PathCost(a, b, costs)
         slots = rng.sample(range(len(b.nodes) + len(a.nodes)), len(a.nodes))
         image = np.array([i if i < len(b.nodes) else -1 for i in slots], dtype=np.intp)
-        mapping = _mapping_dict(a, b, image)
+        mapping = mapping_dict(a, b, image)
         assert cost(image) == pytest.approx(mapping_cost(g1, g2, mapping, cost_dict), abs=1e-9)
 
 
@@ -1167,11 +1154,9 @@ def test_summarize_in_parallel_equals_serial(capsys):
 
 def test_summarize_in_parallel_without_generator_support(monkeypatch, capsys):
     # joblib < 1.3 has no return_as generators: batches, same numbers, full progress bar.
-    import gwpred.metrics
-
     pred, true, ranked = _parallel_case()
     serial = summarize(pred, true, ranked=ranked)
-    monkeypatch.setattr(gwpred.metrics, "_generator_mode", lambda: None)
+    monkeypatch.setattr(gwpred.parallel, "_generator_mode", lambda: None)
     assert summarize(pred, true, ranked=ranked, n_jobs=2, progress=True) == serial
     assert "24/24" in capsys.readouterr().err
 

@@ -1,4 +1,4 @@
-"""Tests for saved models: gwpred.io.save_model / load_model.
+"""Tests for saved models: gwpred.save_model / load_model (gwpred.model.files).
 
 Outside references used here:
 
@@ -24,9 +24,9 @@ import numpy as np
 import pytest
 from sklearn.base import clone
 
-from gwpred import BarycenterGraphPredictor
+from gwpred import BarycenterGraphPredictor, load_model, save_model
 from gwpred.datasets import load_demo
-from gwpred.io import ARCHIVE_FORMAT, ARCHIVE_VERSION, load_archive, load_model, save_archive, save_model
+from gwpred.io import ARCHIVE_FORMAT, ARCHIVE_VERSION, load_archive, save_archive
 from gwpred.weights import kernel_matrix
 
 N_TRAIN = 150
@@ -416,3 +416,42 @@ def test_valence_table_round_trips_and_non_text_keys_are_refused(tmp_path):
     model = BarycenterGraphPredictor(top_k=1, valence={6: 2}, edge_label=None).fit(X, [h, h, h])
     with pytest.raises(ValueError, match="non-text labels cannot be stored"):
         save_model(model, tmp_path / "n.npz")
+
+
+# --------------------------------------------------------------------------
+# files of the first (flat) package layout
+# --------------------------------------------------------------------------
+DATA = Path(__file__).parent / "data"
+
+
+def test_model_file_of_the_flat_layout_loads_and_predicts_as_saved():
+    # tests/data/model_flat_layout.npz was written by gwpred 0.1.0 before the package was
+    # re-laid into layers (gwpred/estimator.py, gwpred/io.py.save_model), from the first 60
+    # bundled QM9 molecules with valence=True and the old parameter name verbose=False;
+    # model_flat_layout_predictions.json holds what that code predicted for molecules 60-69.
+    model = load_model(DATA / "model_flat_layout.npz")
+    assert model.get_params()["progress"] is False and model.valence is True
+    expected = json.loads((DATA / "model_flat_layout_predictions.json").read_text())
+    X, _ = load_demo()
+    pred = model.predict(X[60:70])
+    assert [[g.nodes[i]["label"] for i in range(len(g))] for g in pred] == expected["nodes"]
+    edges = [sorted([int(u), int(v), d["label"]] for u, v, d in g.edges(data=True)) for g in pred]
+    assert edges == expected["edges"]
+
+
+def test_save_and_load_moved_out_of_io_with_a_message():
+    import gwpred.io
+
+    with pytest.raises(ImportError, match=r"gwpred.io.save_model moved: use gwpred.save_model"):
+        gwpred.io.save_model  # noqa: B018
+    with pytest.raises(ImportError, match=r"use gwpred.load_model .*load unchanged"):
+        from gwpred.io import load_model as _  # noqa: F401
+
+
+def test_model_file_with_an_unknown_parameter_is_refused(tmp_path, small_model_file):
+    path = small_model_file[0]
+    arrays, manifest = load_archive(path)
+    manifest["params"]["from_the_future"] = 1
+    save_archive(tmp_path / "new.npz", arrays, manifest)
+    with pytest.raises(ValueError, match=r"parameters \['from_the_future'\] are unknown to this gwpred; .*upgrade"):
+        load_model(tmp_path / "new.npz")

@@ -41,11 +41,11 @@ from sklearn.exceptions import NotFittedError
 from gwpred import BarycenterGraphPredictor
 from gwpred.cli import main
 from gwpred.datasets import load_demo
+from gwpred.io import write_ranked
 from gwpred.ranking import (
     CandidateLibrary,
     fgw_candidate_values,
     prepare_candidates,
-    write_ranked,
 )
 
 N_TRAIN = 300
@@ -265,9 +265,10 @@ def test_scores_do_not_change_when_candidate_nodes_are_renumbered(demo, model, c
 
 
 def test_canonical_arrays_of_every_demo_molecule_survive_renumbering(demo, model):
-    from gwpred.ranking import _fgw_arrays, _graph_ids, _Space
+    from gwpred.ranking import fgw_arrays
+    from gwpred.wl import LabelIds, graph_ids
 
-    space = _Space.of(model.labels_)
+    space = LabelIds.of(model.labels_)
     graphs = list(demo[1])
     pytest.importorskip("rdkit")
     from gwpred.chem import graph_from_smiles
@@ -276,8 +277,8 @@ def test_canonical_arrays_of_every_demo_molecule_survive_renumbering(demo, model
     graphs.append(graph_from_smiles("C(CC1CC1)C1CC1"))
     for seed, g in enumerate(graphs):
         h = renumbered(g, seed)
-        a = _fgw_arrays(_graph_ids(g, space, "g"), space.n_node, space.n_edge)
-        b = _fgw_arrays(_graph_ids(h, space, "h"), space.n_node, space.n_edge)
+        a = fgw_arrays(graph_ids(g, space, "g"), space.n_node, space.n_edge)
+        b = fgw_arrays(graph_ids(h, space, "h"), space.n_node, space.n_edge)
         for x, y in ((a.structure, b.structure), (a.features, b.features), (a.channels, b.channels)):
             assert np.array_equal(x, y), seed
 
@@ -343,16 +344,16 @@ def test_k_longer_than_the_set_returns_all(demo, model, cands):
 
 
 def test_library_encodes_each_candidate_once(demo, model, cands, monkeypatch):
-    from gwpred import ranking
+    from gwpred import wl
 
     calls = Counter()
-    original = ranking._graph_ids
+    original = wl.graph_ids
 
     def counting(graph, space, where):
         calls[where] += 1
         return original(graph, space, where)
 
-    monkeypatch.setattr(ranking, "_graph_ids", counting)
+    monkeypatch.setattr(wl, "graph_ids", counting)
     library = CandidateLibrary(cands[:8])
     X = demo[0][QUERIES]
     for _ in range(2):
@@ -528,7 +529,8 @@ def test_write_ranked_per_input_lists(tmp_path, demo, model, cands):
 
 @pytest.fixture(scope="module")
 def cli_files(tmp_path_factory, demo, model):
-    from gwpred.io import save_model, write_features, write_graphs
+    from gwpred import save_model
+    from gwpred.io import write_features, write_graphs
 
     X, graphs, _ = demo
     d = tmp_path_factory.mktemp("rank")

@@ -32,7 +32,8 @@ import numpy as np
 import pytest
 
 from gwpred import BarycenterGraphPredictor
-from gwpred.cli import CAUTION, main
+from gwpred._utils import CAUTION
+from gwpred.cli import main
 from gwpred.datasets import load_demo
 from gwpred.io import write_graphs
 from gwpred.metrics import summarize
@@ -251,7 +252,7 @@ def test_molecules_without_rdkit_or_without_bond_orders(pairs, monkeypatch):
     assert (
         "END OF HEADER" not in text and "valid molecule" not in text
     )  # no RDKit output
-    monkeypatch.setattr(report, "_rdkit_available", lambda: False)
+    monkeypatch.setattr(report, "has_extra", lambda name: False)
     text = build_report(pred[:2], truth[:2], drawings=1)
     assert (
         CAUTION in text
@@ -428,11 +429,11 @@ def test_read_ranked_errors(tmp_path, line, message):
 
 
 def test_reads_what_gwpred_rank_writes(tmp_path, qm9):
-    # the file format of gwpred.ranking.write_ranked (the ``gwpred rank`` command)
-    ranking = pytest.importorskip("gwpred.ranking")
+    # the file format of gwpred.io.write_ranked (the ``gwpred rank`` command)
+    gio = pytest.importorskip("gwpred.io")
     _, graphs, _ = qm9
     path = tmp_path / "ranked.jsonl"
-    ranking.write_ranked(path, [[(1, 0.5), (0, 0.25)], [(2, 0.75)]], graphs[:3])
+    gio.write_ranked(path, [[(1, 0.5), (0, 0.25)], [(2, 0.75)]], graphs[:3])
     got = read_ranked(path)
     assert [(c.candidate, c.score) for c in got[0]] == [(1, 0.5), (0, 0.25)]
     assert nx.utils.graphs_equal(got[1][0].graph, graphs[2])

@@ -1,0 +1,14 @@
+"""The predictor: scikit-learn glue, pure per-query steps and model files.
+
+- :mod:`gwpred.model.estimator`: :class:`BarycenterGraphPredictor` (parameters,
+  ``fit`` -> :class:`~gwpred.codec.TrainingSet`, ``predict`` over the queries);
+- :mod:`gwpred.model.steps`: size vote, start graph, barycenter and decoder
+  table for one query, on plain arrays;
+- :mod:`gwpred.model.files`: :func:`save_model` / :func:`load_model`.
+"""
+
+from .estimator import BarycenterGraphPredictor
+from .files import load_model, save_model
+from .steps import SoftGraph
+
+__all__ = ["BarycenterGraphPredictor", "SoftGraph", "load_model", "save_model"]

@@ -1,0 +1,480 @@
+"""The scikit-learn estimator: vectors in, labeled graphs out.
+
+Glue only: parameters are checked against a declarative table
+(:data:`BarycenterGraphPredictor._parameter_rules`), ``fit`` builds a
+:class:`~gwpred.codec.TrainingSet` and a weight model
+(:mod:`gwpred.weights`), and ``predict`` maps the pure per-query steps of
+:mod:`gwpred.model.steps` over the inputs through
+:func:`gwpred.parallel.parallel_map`.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import networkx as nx
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+from sklearn.base import BaseEstimator
+from sklearn.utils import check_random_state
+from sklearn.utils.validation import check_is_fitted
+
+from .._utils import Interval, Options, Rule, Types, check_inputs, validate_params
+from ..codec import LabelSpace, TrainingSet
+from ..ged import edit_distance
+from ..parallel import N_JOBS_RULE, parallel_map
+from ..ranking import rank_candidates
+from ..weights import KERNELS, KernelRidgeWeights, sparsify
+from .steps import (
+    DECODERS,
+    Settings,
+    SoftGraph,
+    barycenter_query,
+    neighbourhood,
+    parse_formulas,
+    predict_query,
+    valence_arrays,
+)
+
+__all__ = ["BarycenterGraphPredictor"]
+
+_POSITIVE_INT = Rule(Interval(1, np.inf, integer=True))
+_NON_NEGATIVE = Rule(Interval(0.0))
+
+
+class BarycenterGraphPredictor(BaseEstimator):
+    r"""Predict labeled graphs as FGW barycenters of kernel-weighted training graphs.
+
+    For an input ``x`` the training graphs get kernel ridge weights
+    :math:`\alpha(x) = (K + n\lambda I)^{-1} k(x)` (Brogat-Motte et al., ICML
+    2022); the ``top_k`` largest, clipped at zero and normalised, weight an FGW
+    barycenter (Vayer et al. 2019) that is decoded into a discrete graph.
+
+    Parameters
+    ----------
+    kernel : {"rbf", "laplacian", "tanimoto", "cosine", "linear", "precomputed"}, default="rbf"
+        Input kernel. With ``precomputed``, ``fit`` takes the (n, n) training
+        kernel and ``predict`` the (n_queries, n) kernel to the training items.
+    gamma : float or None, default=None
+        Bandwidth for ``rbf``/``laplacian``; ``None`` is the median heuristic.
+    ridge : float, default=1e-3
+        Kernel ridge regularisation :math:`\lambda`.
+    weighting : {"ridge", "knn"}, default="ridge"
+        ``ridge``: kernel ridge coefficients; ``knn``: the ``top_k`` most
+        similar training inputs weighted by kernel value.
+    top_k : int, default=10
+        Training graphs kept per prediction.
+    alpha : float, default=0.9
+        FGW trade-off between node features (0) and structure (1).
+    n_nodes : "vote" or int, default="vote"
+        Size of the predicted graph: the weighted median size of the kept
+        training graphs, or a fixed number.
+    max_outer : int, default=5
+        Barycenter iterations (plans, then closed-form updates).
+    max_inner : int, default=100
+        Conditional-gradient iterations per FGW plan.
+    tol : float, default=1e-6
+        Relative tolerance of both loops.
+    edges : {"budget", "threshold"}, default="budget"
+        Edge policy of ``free`` decoding: ``budget`` keeps as many edges as the weighted training graphs vote
+        for (their cycle rank); ``threshold`` keeps pairs scoring >= 0.5.
+    connect : "auto" or bool, default="auto"
+        Decode connected graphs; ``auto`` does so when all training graphs are.
+    decoding : {"anchored", "free"}, default="anchored"
+        A key of :data:`gwpred.model.steps.DECODERS`. ``anchored``: the
+        barycenter starts from a real training graph (the anchor: the
+        highest-weight kept graph of the chosen size) and is decoded as edits
+        of it: node labels from the barycenter, anchor edges kept unless the
+        weighted graphs disagree (pair score <= 1 - consensus), pairs added
+        where they agree (score >= consensus).  ``free``: decode the
+        barycenter alone, with the ``edges`` policy.  Measured on the demo
+        data (``benchmarks/bench_decoding.py``), anchored decoding has the
+        lower mean GED.
+    consensus : float, default=0.8
+        Agreement needed for ``anchored`` decoding to change an anchor edge.
+    valence : bool or dict, default=False
+        Molecules: decode graphs whose atoms keep their valences (node labels
+        are element symbols, edge labels bond orders 1/2/3; neutral atoms:
+        C 4, N 3, O 2, F 1, other elements from RDKit), connected, and as close
+        as possible to the ordinary decoding (an integer program, see
+        :func:`~gwpred.decode.decode_valence`): a valid decoding stays as it
+        is, an invalid one is repaired with as few edits as possible.  A dict
+        maps labels to valences of your own.  Always on for inputs given a
+        formula; those are decoded as the composition's graph that agrees
+        best with the barycenter.
+    node_label, edge_label : str, default="label"
+        Graph attributes that hold node and edge labels (``edge_label=None``
+        ignores edge labels).
+    handle_unknown : {"error", "ignore"}, default="error"
+        Policy for labels unseen in training (see :class:`~gwpred.codec.LabelSpace`).
+    random_state : int, RandomState or None, default=None
+        Seeds the subsample of the bandwidth heuristic (used with more than
+        1000 training inputs); ``None`` uses seed 0, so results are repeatable.
+        Everything else is deterministic (ties are broken by index).
+    progress : bool, default=False
+        Show progress bars for long loops.
+    n_jobs : int, default=1
+        Worker processes for the queries of ``predict`` (-1: one per
+        processor); results do not depend on it.
+
+    Attributes
+    ----------
+    training_ : TrainingSet
+        The encoded training graphs.
+    labels_ : LabelSpace
+        Fitted node and edge label categories (``training_.labels``).
+    weights_ : KernelRidgeWeights
+        Fitted weight model.
+    n_train_ : int
+    sizes_, n_edges_ : ndarray of shape (n_train,)
+        Node and edge counts of the training graphs.
+    max_degree_ : ndarray of shape (n_node_labels,)
+        Largest degree seen per node label.
+    connected_ : bool
+        Whether every training graph is connected.
+
+    Examples
+    --------
+    >>> import networkx as nx, numpy as np
+    >>> def chain(n):
+    ...     g = nx.path_graph(n); nx.set_node_attributes(g, "C", "label"); return g
+    >>> X = np.arange(6.0).reshape(-1, 1); graphs = [chain(k + 2) for k in range(6)]
+    >>> model = BarycenterGraphPredictor(top_k=1).fit(X, graphs)
+    >>> model.predict([[2.0]])[0].number_of_nodes()
+    4
+    """
+
+    #: Allowed values of every constructor parameter, checked when ``fit`` starts.
+    _parameter_rules: dict[str, Rule] = {
+        "kernel": Rule(Options((*KERNELS, "precomputed"))),
+        "gamma": Rule(None, Interval(np.finfo(float).tiny), what="a positive number or None"),
+        "ridge": _NON_NEGATIVE,
+        "weighting": Rule(Options(("ridge", "knn"))),
+        "top_k": _POSITIVE_INT,
+        "alpha": Rule(Interval(0.0, 1.0)),
+        "n_nodes": Rule(Options(("vote",)), Interval(1, np.inf, integer=True)),
+        "max_outer": _POSITIVE_INT,
+        "max_inner": _POSITIVE_INT,
+        "tol": _NON_NEGATIVE,
+        "edges": Rule(Options(("budget", "threshold"))),
+        "connect": Rule(Options(("auto", True, False))),
+        "decoding": Rule(Options(tuple(DECODERS))),
+        "consensus": Rule(Interval(0.5, 1.0)),
+        "valence": Rule(Types((bool, dict)), what="True, False or a dict of label -> valence", error=TypeError),
+        "handle_unknown": Rule(Options(("error", "ignore"))),
+        "progress": Rule(Types((bool,))),
+        "n_jobs": N_JOBS_RULE,
+    }
+
+    def __init__(
+        self,
+        kernel: str = "rbf",
+        gamma: float | None = None,
+        ridge: float = 1e-3,
+        weighting: str = "ridge",
+        top_k: int = 10,
+        alpha: float = 0.9,
+        n_nodes: str | int = "vote",
+        max_outer: int = 5,
+        max_inner: int = 100,
+        tol: float = 1e-6,
+        edges: str = "budget",
+        connect: str | bool = "auto",
+        decoding: str = "anchored",
+        consensus: float = 0.8,
+        valence: bool | dict = False,
+        node_label: str = "label",
+        edge_label: str | None = "label",
+        handle_unknown: str = "error",
+        random_state: Any = None,
+        progress: bool = False,
+        n_jobs: int = 1,
+    ) -> None:
+        self.kernel = kernel
+        self.gamma = gamma
+        self.ridge = ridge
+        self.weighting = weighting
+        self.top_k = top_k
+        self.alpha = alpha
+        self.n_nodes = n_nodes
+        self.max_outer = max_outer
+        self.max_inner = max_inner
+        self.tol = tol
+        self.edges = edges
+        self.connect = connect
+        self.decoding = decoding
+        self.consensus = consensus
+        self.valence = valence
+        self.node_label = node_label
+        self.edge_label = edge_label
+        self.handle_unknown = handle_unknown
+        self.random_state = random_state
+        self.progress = progress
+        self.n_jobs = n_jobs
+
+    # ----------------------------------------------------------------- fit
+    def fit(self, X: ArrayLike, graphs: list[nx.Graph]) -> BarycenterGraphPredictor:
+        """Learn label categories, encode the training graphs and fit the weights.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features), or (n_samples, n_samples) with ``kernel="precomputed"``
+            Training inputs.
+        graphs : list of networkx.Graph of length n_samples
+            Training graphs (undirected, simple, at least one node, every node labeled).
+
+        Returns
+        -------
+        BarycenterGraphPredictor
+            ``self``.
+
+        Raises
+        ------
+        ValueError
+            For invalid parameters, non-finite inputs, mismatched lengths,
+            empty graphs, self-loops or unlabeled nodes.
+        TypeError
+            For graphs that are not simple undirected networkx graphs.
+        """
+        validate_params(self.get_params(deep=False), self._parameter_rules)
+        X = check_inputs(X)
+        graphs = list(graphs) if not isinstance(graphs, nx.Graph) else [graphs]
+        if len(graphs) != X.shape[0]:
+            raise ValueError(
+                f"X has {X.shape[0]} rows but {len(graphs)} graphs were given; "
+                "pass one graph per input row."
+            )
+        labels = LabelSpace(self.node_label, self.edge_label, handle_unknown=self.handle_unknown).fit(graphs)
+        return self.fit_encoded(X, TrainingSet.encode(graphs, labels))
+
+    def fit_encoded(
+        self, X: ArrayLike, training: TrainingSet, gamma: float | None = None
+    ) -> BarycenterGraphPredictor:
+        """Fit on training graphs already encoded (model files restore a model through it).
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features), or (n_samples, n_samples) with ``kernel="precomputed"``
+            Training inputs.
+        training : TrainingSet
+            The encoded training graphs, one per row of ``X``; its label space
+            is kept as it is.
+        gamma : float or None, default=None
+            Bandwidth to use instead of ``self.gamma`` (a stored, already
+            resolved median heuristic); the parameter itself is unchanged.
+
+        Returns
+        -------
+        BarycenterGraphPredictor
+            ``self``.
+        """
+        validate_params(self.get_params(deep=False), self._parameter_rules)
+        X = check_inputs(X)
+        if len(training) != X.shape[0]:
+            raise ValueError(
+                f"X has {X.shape[0]} rows but the training set holds {len(training)} graphs; "
+                "pass one graph per input row."
+            )
+        self.training_ = training
+        self.labels_ = training.labels
+        self.sizes_ = training.sizes
+        self.n_edges_ = training.n_edges
+        self.max_degree_ = training.max_degree
+        self.connected_ = training.connected
+        seed = 0 if self.random_state is None else check_random_state(self.random_state).randint(2**31 - 1)
+        self.weights_ = KernelRidgeWeights(
+            self.kernel, self.gamma if gamma is None else gamma, self.ridge, self.weighting, random_state=seed
+        )
+        self.weights_.fit(X)
+        self.n_train_ = X.shape[0]
+        self.n_features_in_ = X.shape[1]
+        return self
+
+    # ------------------------------------------------------------- predict
+    def neighbors(self, X: ArrayLike) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
+        """The kept training graphs of each input and their barycentric weights.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_queries, n_features)
+
+        Returns
+        -------
+        indices : ndarray of shape (n_queries, top_k)
+            Training indices by decreasing weight.
+        weights : ndarray of shape (n_queries, top_k)
+            Non-negative, each row sums to one (zeros where fewer were kept).
+        """
+        check_is_fitted(self, "weights_")
+        X = check_inputs(X)
+        expected = self.n_train_ if self.kernel == "precomputed" else self.n_features_in_
+        if X.shape[1] != expected:
+            raise ValueError(
+                f"X has {X.shape[1]} columns but the model was fitted with {expected}; "
+                "use the same features (or the kernel to the training items) as in fit."
+            )
+        return sparsify(self.weights_.raw_weights(X), self.top_k)
+
+    def _settings(self, need_valences: bool) -> Settings:
+        valences = orders = None
+        if need_valences:
+            valences, orders = valence_arrays(self.labels_, self.valence)
+        return Settings(
+            alpha=self.alpha,
+            max_outer=self.max_outer,
+            max_inner=self.max_inner,
+            tol=self.tol,
+            n_nodes=self.n_nodes,
+            decoding=self.decoding,
+            edges=self.edges,
+            consensus=self.consensus,
+            connect=self.connected_ if self.connect == "auto" else bool(self.connect),
+            labels=self.labels_,
+            max_degree=self.max_degree_,
+            valence=bool(self.valence),
+            valences=valences,
+            orders=orders,
+        )
+
+    def _map(self, step: Any, X: ArrayLike, formulas: Any, decode: bool) -> list:
+        """Run one per-query step over the inputs (in order, through the parallel seam)."""
+        idx, w = self.neighbors(X)
+        parsed = parse_formulas(formulas, len(idx), self.labels_.node_labels_)
+        # valence tables are needed (and checked) only to decode molecules
+        settings = self._settings(decode and (bool(self.valence) or any(f is not None for f in parsed)))
+        tasks = [(neighbourhood(self.training_, i, ww), settings, f) for i, ww, f in zip(idx, w, parsed)]
+        return parallel_map(step, tasks, n_jobs=self.n_jobs, progress=self.progress, desc="barycenters", unit="graph")
+
+    def predict_barycenters(self, X: ArrayLike, formulas: Any = None) -> list[SoftGraph]:
+        """Soft barycenters for new inputs, before decoding (for inspection).
+
+        Parameters
+        ----------
+        X : array-like of shape (n_queries, n_features)
+        formulas : list of (str or None), default=None
+            Per row, a molecular formula (see :meth:`predict`); it fixes the
+            barycenter's size to the formula's number of heavy atoms.
+
+        Returns
+        -------
+        list of SoftGraph
+        """
+        return self._map(barycenter_query, X, formulas, decode=False)
+
+    def predict(self, X: ArrayLike, formulas: Any = None) -> list[nx.Graph]:
+        """Predict one labeled graph per input row.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_queries, n_features)
+        formulas : list of (str or None), default=None
+            Molecules: per row, the molecular formula of the unknown (e.g.
+            ``"C4H6O2"``, as from a mass measurement) or None.  The predicted
+            graph then has exactly the formula's heavy atoms, obeys valences
+            and, when the formula gives hydrogens, has the matching number of
+            implicit hydrogens (hence degree of unsaturation).
+
+        Returns
+        -------
+        list of networkx.Graph
+            Nodes ``0..n-1`` labeled with ``node_label``; edges labeled with
+            ``edge_label`` (when edge labels are used).
+
+        Raises
+        ------
+        sklearn.exceptions.NotFittedError
+            Before ``fit``.
+        ValueError
+            For non-finite inputs, a wrong number of columns, or a formula
+            that cannot be read, holds elements unseen in training, or that
+            no connected molecule of its atoms can have.
+        """
+        return self._map(predict_query, X, formulas, decode=True)
+
+    def score(self, X: ArrayLike, graphs: list[nx.Graph]) -> float:
+        """Negative mean graph edit distance to the true graphs (higher is better).
+
+        Uniform edit costs (1 per node or edge insertion, deletion or label
+        substitution), exact values; used by ``GridSearchCV``.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_queries, n_features)
+        graphs : list of networkx.Graph of length n_queries
+
+        Returns
+        -------
+        float
+        """
+        pred = self.predict(X)
+        if len(pred) != len(graphs):
+            raise ValueError(
+                f"X has {len(pred)} rows but {len(graphs)} graphs were given; pass one graph per row."
+            )
+        ged = [
+            edit_distance(p, t, node_label=self.node_label, edge_label=self.edge_label).value
+            for p, t in zip(pred, graphs)
+        ]
+        return -float(np.mean(ged))
+
+    def rank(
+        self,
+        X: ArrayLike,
+        candidates: Any,
+        k: int = 10,
+        scorer: str = "kernel",
+        filter: Any = None,
+        *,
+        output_kernel: str = "wl",
+    ) -> list[list[tuple[int, float]]]:
+        """Rank given candidate graphs for each input instead of generating one.
+
+        Thin wrapper of :func:`gwpred.ranking.rank_candidates`, which documents
+        the scorers, filters, node-order invariance and how labels unseen in
+        training are handled (they never match; such candidates are still ranked).
+
+        Parameters
+        ----------
+        X : array-like of shape (n_queries, n_features)
+        candidates : list of networkx.Graph, CandidateLibrary, or list of lists
+            One candidate set shared by all inputs (a
+            :class:`~gwpred.ranking.CandidateLibrary` keeps its encodings
+            between calls), or one list of graphs per input row.
+        k : int, default=10
+            Candidates returned per input.
+        scorer : {"kernel", "fgw", "objective"}, default="kernel"
+            ``kernel``: sum_i w_i(x) k(y_i, c) over the training graphs (higher
+            is better); ``fgw``: FGW distance from the predicted barycenter;
+            ``objective``: sum_i w_i(x) FGW(y_i, c) (both lower is better).
+        filter : list or None, default=None
+            Per input row: a molecular formula (same heavy atoms), a node
+            count, an array of candidate indices, or None.
+        output_kernel : {"wl", "fingerprint"}, default="wl"
+            Output kernel of the ``kernel`` scorer: Weisfeiler-Lehman subtree
+            kernel, or Tanimoto on Morgan fingerprints (molecules, needs RDKit).
+
+        Returns
+        -------
+        list of list of (int, float)
+            Per input, up to ``k`` (candidate index, score) pairs, best first;
+            equal scores are ordered by candidate index.
+
+        Raises
+        ------
+        ValueError
+            For an unknown scorer, a row without candidates, mismatched lengths
+            or invalid candidate graphs (see :func:`~gwpred.ranking.rank_candidates`).
+
+        Examples
+        --------
+        >>> import networkx as nx, numpy as np
+        >>> def chain(n):
+        ...     g = nx.path_graph(n); nx.set_node_attributes(g, "C", "label"); return g
+        >>> model = BarycenterGraphPredictor(top_k=1).fit(np.arange(4.0).reshape(-1, 1), [chain(n + 2) for n in range(4)])
+        >>> [j for j, _ in model.rank([[1.0]], [chain(5), chain(3), chain(2)], k=2)[0]]
+        [1, 0]
+        """
+        return rank_candidates(
+            self, X, candidates, k=k, scorer=scorer, filter=filter, output_kernel=output_kernel,
+            progress=self.progress,
+        )

@@ -1,0 +1,151 @@
+"""Model files: a fitted :class:`~gwpred.model.BarycenterGraphPredictor` as arrays + JSON.
+
+What is stored is decided here; how an archive is written and checked
+(checksums, no pickle, atomic writes) is :func:`gwpred.io.save_archive` /
+:func:`gwpred.io.load_archive`.  Files written by every earlier gwpred layout
+load unchanged (the format never named a module); a file whose parameters
+use the older name ``verbose`` for ``progress`` is read as such.
+"""
+
+from __future__ import annotations
+
+import os
+from typing import Any
+
+import numpy as np
+
+from .._utils import StrPath
+from ..codec import LabelSpace, TrainingSet
+from ..io import load_archive, save_archive
+from .estimator import BarycenterGraphPredictor
+
+__all__ = ["load_model", "save_model"]
+
+_MODEL_KIND = "BarycenterGraphPredictor"
+# parameter names of earlier releases -> today's
+_RENAMED_PARAMS = {"verbose": "progress"}
+
+
+def _plain(value: Any) -> Any:
+    """numpy scalars -> Python scalars, so that JSON can hold them."""
+    return value.item() if isinstance(value, np.generic) else value
+
+
+def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
+    """Save a fitted :class:`~gwpred.BarycenterGraphPredictor` as a model archive.
+
+    The archive holds the constructor parameters and label categories (JSON
+    manifest), the training graphs as flat integer arrays, and the training
+    inputs (or the training kernel matrix with ``kernel="precomputed"``);
+    kernel factorisations are recomputed on loading.
+
+    Parameters
+    ----------
+    model : BarycenterGraphPredictor
+        A fitted model.
+    path : str or os.PathLike
+        Target ``.npz`` file.
+
+    Raises
+    ------
+    ValueError
+        If the model is not fitted.
+    """
+    if not isinstance(model, BarycenterGraphPredictor) or not hasattr(model, "training_"):
+        raise ValueError("save_model needs a fitted BarycenterGraphPredictor; call fit first.")
+    training = model.training_
+    labels = training.labels
+    nodes, edges, edge_cls = [], [], []
+    for i in range(len(training)):
+        e, c = training.edge_list(i)
+        nodes.append(training.node_classes(i))
+        edges.append(e)
+        edge_cls.append(c)
+    weights = model.weights_
+    arrays = {
+        "node_classes": np.concatenate(nodes).astype(np.int32),
+        "edges": np.concatenate(edges).astype(np.int32).reshape(-1, 2),
+        "edge_classes": np.concatenate(edge_cls).astype(np.int32),
+        "n_nodes": training.sizes.astype(np.int32),
+        "n_edges": np.asarray([len(e) for e in edges], dtype=np.int32),
+        "inputs": weights.K_fit_ if model.kernel == "precomputed" else weights.X_fit_,
+    }
+    gamma = float(weights.gamma_)
+    valence = model.get_params().get("valence")
+    if isinstance(valence, dict) and not all(isinstance(k, str) for k in valence):
+        raise ValueError(
+            "valence tables with non-text labels cannot be stored in a model file (JSON keys are "
+            "text); use text node labels, or refit after loading"
+        )
+    manifest = {
+        "kind": _MODEL_KIND,
+        "params": {k: _plain(v) for k, v in model.get_params().items()},
+        "node_labels": [_plain(v) for v in labels.node_labels_],
+        "edge_labels": [_plain(v) for v in labels.edge_labels_],
+        "gamma": gamma if np.isfinite(gamma) else None,
+    }
+    save_archive(path, arrays, manifest)
+
+
+def load_model(path: StrPath) -> BarycenterGraphPredictor:
+    """Load a model saved by :func:`save_model` (by this or any earlier gwpred 0.1 layout).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+
+    Returns
+    -------
+    BarycenterGraphPredictor
+        A fitted model that predicts exactly as the saved one.
+
+    Raises
+    ------
+    ValueError
+        If the file is not a gwpred model, is corrupted or truncated, or was
+        written by a newer gwpred (see :func:`~gwpred.io.load_archive`), or its
+        contents are inconsistent.
+    """
+    arrays, manifest = load_archive(path)
+    where = f"model file {os.fspath(path)!r}"
+    need = ("node_classes", "edges", "edge_classes", "n_nodes", "n_edges", "inputs")
+    missing = [k for k in need if k not in arrays]
+    if manifest.get("kind") != _MODEL_KIND or missing:
+        raise ValueError(
+            f"{where} is a gwpred archive but not a saved BarycenterGraphPredictor "
+            f"(kind={manifest.get('kind')!r}, missing arrays: {missing})."
+        )
+    try:
+        params = {_RENAMED_PARAMS.get(k, k): v for k, v in manifest["params"].items()}
+        known = BarycenterGraphPredictor().get_params()
+        unknown = sorted(set(params) - set(known))
+        if unknown:
+            raise ValueError(
+                f"parameters {unknown} are unknown to this gwpred; the file may come from a newer "
+                "release: upgrade gwpred"
+            )
+        model = BarycenterGraphPredictor(**params)
+        n_nodes, n_edges = arrays["n_nodes"], arrays["n_edges"]
+        node_off = np.concatenate([[0], np.cumsum(n_nodes)])
+        edge_off = np.concatenate([[0], np.cumsum(n_edges)])
+        if node_off[-1] != len(arrays["node_classes"]) or edge_off[-1] != len(arrays["edges"]):
+            raise ValueError("graph arrays do not add up")
+        labels = LabelSpace.from_categories(
+            manifest["node_labels"],
+            manifest["edge_labels"],
+            node_label=model.node_label,
+            edge_label=model.edge_label,
+            handle_unknown=model.handle_unknown,
+        )
+        graphs = [
+            labels.build_graph(
+                arrays["node_classes"][node_off[k] : node_off[k + 1]],
+                arrays["edges"][edge_off[k] : edge_off[k + 1]],
+                arrays["edge_classes"][edge_off[k] : edge_off[k + 1]],
+            )
+            for k in range(len(n_nodes))
+        ]
+        model.fit_encoded(arrays["inputs"], TrainingSet.encode(graphs, labels), gamma=manifest["gamma"])
+    except (KeyError, IndexError, TypeError, ValueError) as err:
+        raise ValueError(f"{where} has inconsistent contents ({err}); it may be corrupted.") from err
+    return model

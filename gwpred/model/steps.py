@@ -1,0 +1,434 @@
+"""Pure per-query steps of the barycenter predictor.
+
+For one input, given its kept training graphs and their weights (a
+:class:`Neighbourhood`) and the estimator's settings (:class:`Settings`):
+
+1. :func:`choose_size` votes the size (weighted median of the kept sizes, a
+   fixed number, or a formula's heavy-atom count);
+2. :func:`choose_start` picks the start graph (the *anchor*: the
+   highest-weight kept graph of that size);
+3. :func:`solve_barycenter` runs the FGW barycenter from it
+   (:func:`gwpred.fgw.fgw_barycenter`) and averages the edge-label channels;
+4. :func:`decode_query` decodes the soft barycenter with the decoder named in
+   :data:`DECODERS`, then, for molecules, repairs it into a valid one or
+   decodes the formula's graph (:func:`gwpred.decode.decode_valence`).
+
+Everything here takes and returns plain arrays and dataclasses, so a query can
+run in another process (:func:`gwpred.parallel.parallel_map`) without the
+estimator.
+"""
+
+from __future__ import annotations
+
+import numbers
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import networkx as nx
+import numpy as np
+from numpy.typing import NDArray
+
+from ..codec import LabelSpace, TrainingSet
+from ..decode import (
+    DecodedGraph,
+    decode_anchored,
+    decode_barycenter,
+    decode_valence,
+    edge_budget,
+    weighted_median,
+)
+from ..fgw import fgw_barycenter, transport_average
+from ..formula import Formula, bond_total, label_counts, parse_formula, valence_table
+
+__all__ = [
+    "DECODERS",
+    "Neighbourhood",
+    "Settings",
+    "SoftGraph",
+    "barycenter_query",
+    "bond_orders",
+    "choose_size",
+    "choose_start",
+    "decode_query",
+    "formula_counts",
+    "neighbourhood",
+    "parse_formulas",
+    "predict_query",
+    "solve_barycenter",
+    "valence_arrays",
+]
+
+
+@dataclass(frozen=True)
+class SoftGraph:
+    """A soft barycenter prediction, before decoding.
+
+    Attributes
+    ----------
+    structure : ndarray of shape (n, n)
+        Soft adjacency: transported average of the neighbours' adjacency.
+    node_scores : ndarray of shape (n, n_node_labels)
+        Soft one-hot node labels (rows sum to one for known labels).
+    edge_scores : ndarray of shape (n, n, n_edge_labels)
+        Soft edge-label channels; they sum to ``structure``.
+    neighbors : ndarray of shape (k,)
+        Training indices used, by decreasing weight.
+    weights : ndarray of shape (k,)
+        Their barycentric weights (non-negative, sum one).
+    objective : float
+        Weighted FGW objective of the barycenter.
+    anchor : int
+        Training index of the graph the barycenter started from.
+    anchor_structure : ndarray of shape (n, n)
+        Its 0/1 adjacency in the barycenter's node order.
+    anchor_edge_classes : ndarray of shape (n, n)
+        Its edge label indices in the same order.
+    """
+
+    structure: NDArray[np.float64]
+    node_scores: NDArray[np.float64]
+    edge_scores: NDArray[np.float64]
+    neighbors: NDArray[np.int64]
+    weights: NDArray[np.float64]
+    objective: float
+    anchor: int
+    anchor_structure: NDArray[np.float64]
+    anchor_edge_classes: NDArray[np.int64]
+
+
+@dataclass(frozen=True)
+class Settings:
+    """What a query needs of the estimator: its parameters, resolved, and fitted label facts.
+
+    Attributes
+    ----------
+    alpha, max_outer, max_inner, tol : float, int, int, float
+        FGW trade-off and iteration limits (see the estimator).
+    n_nodes : "vote" or int
+        Size rule.
+    decoding : str
+        Key of :data:`DECODERS`.
+    edges : {"budget", "threshold"}
+        Edge policy of ``free`` decoding.
+    consensus : float
+        Agreement needed by ``anchored`` decoding to change an anchor edge.
+    connect : bool
+        Decode connected graphs.
+    labels : LabelSpace
+        Fitted label categories (to build the graph).
+    max_degree : ndarray of shape (n_node_labels,)
+        Largest degree per node label in training.
+    valence : bool
+        Repair decodings into valid molecules.
+    valences, orders : list of int or None
+        Valence per node label and bond order per edge label; needed when
+        ``valence`` is on or a formula is given.
+    """
+
+    alpha: float
+    max_outer: int
+    max_inner: int
+    tol: float
+    n_nodes: str | int
+    decoding: str
+    edges: str
+    consensus: float
+    connect: bool
+    labels: LabelSpace
+    max_degree: NDArray[np.int64]
+    valence: bool
+    valences: list[int] | None
+    orders: list[int] | None
+
+
+@dataclass(frozen=True)
+class Neighbourhood:
+    """The kept training graphs of one query, by decreasing weight.
+
+    Attributes
+    ----------
+    indices : ndarray of shape (k,)
+        Training indices.
+    weights : ndarray of shape (k,)
+        Barycentric weights (positive, sum one).
+    structures, features, channels : list of ndarray
+        Their encodings (see :class:`~gwpred.codec.TrainingSet`).
+    sizes, n_edges : ndarray of shape (k,)
+        Their node and edge counts.
+    """
+
+    indices: NDArray[np.int64]
+    weights: NDArray[np.float64]
+    structures: list[NDArray[np.float64]]
+    features: list[NDArray[np.float64]]
+    channels: list[NDArray[np.float64]]
+    sizes: NDArray[np.int64]
+    n_edges: NDArray[np.int64]
+
+
+def neighbourhood(training: TrainingSet, indices: NDArray[np.int64], weights: NDArray[np.float64]) -> Neighbourhood:
+    """Gather the kept graphs of one query (positive weights only) from the training set."""
+    keep = weights > 0
+    idx, w = indices[keep], weights[keep]
+    return Neighbourhood(
+        idx,
+        w,
+        [training.structures[i] for i in idx],
+        [training.features[i] for i in idx],
+        [training.channels[i] for i in idx],
+        training.sizes[idx],
+        training.n_edges[idx],
+    )
+
+
+# --------------------------------------------------------------------------- formulas and valences
+
+
+def parse_formulas(formulas: Any, n_rows: int, known: Sequence[Any]) -> list[Formula | None]:
+    """Parse per-row formulas; check the length and that every element was seen in training.
+
+    Parameters
+    ----------
+    formulas : list of (str, Formula or None), or None
+    n_rows : int
+        Number of input rows.
+    known : sequence
+        Node labels seen in training.
+
+    Returns
+    -------
+    list of (Formula or None)
+        One per row; blank strings and None give None.
+
+    Raises
+    ------
+    TypeError
+        For a single string instead of a list.
+    ValueError
+        For a wrong length, an unreadable formula or an element unseen in training.
+    """
+    if formulas is None:
+        return [None] * n_rows
+    if isinstance(formulas, (str, Formula)):
+        raise TypeError(
+            "formulas must be a list with one formula (or None) per input row, not a single string."
+        )
+    formulas = list(formulas)
+    if len(formulas) != n_rows:
+        raise ValueError(
+            f"X has {n_rows} rows but {len(formulas)} formulas were given; pass one formula "
+            "(or None) per row."
+        )
+    known_set = set(known)
+    out: list[Formula | None] = []
+    for r, f in enumerate(formulas):
+        if f is None or (isinstance(f, str) and not f.strip()):
+            out.append(None)
+            continue
+        try:
+            parsed = f if isinstance(f, Formula) else parse_formula(f)
+        except (TypeError, ValueError) as exc:
+            raise ValueError(f"formulas[{r}]: {exc}") from None
+        unknown = sorted(set(parsed.heavy) - known_set)
+        if unknown:
+            raise ValueError(
+                f"formulas[{r}] ({parsed.text}) holds {unknown}, never seen as a node label in "
+                f"training (known: {sorted(map(str, known_set))}); the model cannot place them."
+            )
+        out.append(parsed)
+    return out
+
+
+def bond_orders(edge_labels: Sequence[Any], edge_label: str | None) -> list[int]:
+    """Bond order of each edge label (None: single bonds), for valence decoding.
+
+    Raises
+    ------
+    ValueError
+        When an edge label is not 1, 2 or 3.
+    """
+    orders = []
+    for lab in edge_labels:
+        if lab is None:
+            orders.append(1)
+        elif isinstance(lab, numbers.Integral) and not isinstance(lab, bool) and 1 <= lab <= 3:
+            orders.append(int(lab))
+        else:
+            raise ValueError(
+                f"valence decoding needs bond orders 1, 2 or 3 as edge labels; the training graphs "
+                f"have edge label {lab!r} (attribute {edge_label!r})."
+            )
+    return orders
+
+
+def valence_arrays(labels: LabelSpace, valence: bool | dict) -> tuple[list[int], list[int]]:
+    """Valence per node label and bond order per edge label of a fitted label space."""
+    table = valence if isinstance(valence, dict) else None
+    return valence_table(labels.node_labels_, table), bond_orders(labels.edge_labels_, labels.edge_label)
+
+
+# --------------------------------------------------------------------------- size, start, barycenter
+
+
+def choose_size(hood: Neighbourhood, n_nodes: str | int, counts: NDArray[np.int64] | None = None) -> int:
+    """Size of the predicted graph: a formula's heavy atoms, a fixed number, or the weighted median size."""
+    if counts is not None:  # a formula fixes the size
+        return int(counts.sum())
+    if n_nodes == "vote":
+        return int(weighted_median(hood.sizes, hood.weights))
+    return int(n_nodes)
+
+
+def choose_start(hood: Neighbourhood, n: int) -> int:
+    """Position (in the neighbourhood) of the start graph: the highest-weight graph of size ``n``.
+
+    A real graph, because a constant start leaves all plans uniform; without a
+    graph of that size, the closest in size.
+    """
+    same = np.flatnonzero(hood.sizes == n)
+    return int(same[0]) if same.size else int(np.argmin(np.abs(hood.sizes - n)))
+
+
+def solve_barycenter(hood: Neighbourhood, settings: Settings, counts: NDArray[np.int64] | None = None) -> SoftGraph:
+    """The FGW barycenter of one query's kept graphs, started from its anchor.
+
+    Parameters
+    ----------
+    hood : Neighbourhood
+    settings : Settings
+    counts : ndarray of shape (n_node_labels,), optional
+        Heavy atoms per label of a known formula (fixes the size).
+
+    Returns
+    -------
+    SoftGraph
+    """
+    n = choose_size(hood, settings.n_nodes, counts)
+    pos = choose_start(hood, n)
+    anchor = hood.indices[pos]
+    C0, F0 = hood.structures[pos], hood.features[pos]
+    L0 = hood.channels[pos].argmax(-1)
+    if C0.shape[0] != n:  # fixed size without a training graph of that size
+        reps = np.resize(np.arange(C0.shape[0]), n)
+        C0, F0, L0 = C0[np.ix_(reps, reps)], F0[reps], L0[np.ix_(reps, reps)]
+        np.fill_diagonal(C0, 0.0)
+    res = fgw_barycenter(
+        hood.structures,
+        hood.features,
+        hood.weights,
+        C0,
+        F0,
+        alpha=settings.alpha,
+        init_plans="features",
+        init_from=pos if hood.sizes[pos] == n else None,
+        # anchored decoding needs the barycenter's nodes to stay the anchor's
+        # nodes: warm starts only (benchmarks/bench_decoding.py)
+        restarts=0 if settings.decoding == "anchored" else 2,
+        max_outer=settings.max_outer,
+        tol_outer=settings.tol,
+        max_inner=settings.max_inner,
+        tol_inner=settings.tol,
+    )
+    m = int(hood.sizes.max())
+    chans = np.zeros((len(hood.indices), m, m, settings.labels.n_edge_labels))
+    for s, E in enumerate(hood.channels):
+        k = E.shape[0]
+        chans[s, :k, :k] = E
+    E = transport_average(res.plans, chans, hood.weights, np.full(n, 1.0 / n))
+    return SoftGraph(res.structure, res.features, E, hood.indices, hood.weights, res.objective, int(anchor), C0, L0)
+
+
+# --------------------------------------------------------------------------- decoding
+
+
+def _decode_anchored(soft: SoftGraph, hood: Neighbourhood, settings: Settings) -> DecodedGraph:
+    k = settings.labels.n_node_labels
+    return decode_anchored(
+        soft.structure,
+        soft.node_scores[:, :k],
+        soft.edge_scores,
+        soft.anchor_structure,
+        soft.anchor_edge_classes,
+        consensus=settings.consensus,
+        connected=settings.connect,
+        max_degree=settings.max_degree,
+    )
+
+
+def _decode_free(soft: SoftGraph, hood: Neighbourhood, settings: Settings) -> DecodedGraph:
+    k = settings.labels.n_node_labels
+    budget = None
+    if settings.edges == "budget":
+        budget = edge_budget(soft.structure.shape[0], hood.sizes, hood.n_edges, soft.weights)
+    return decode_barycenter(
+        soft.structure,
+        soft.node_scores[:, :k],
+        soft.edge_scores,
+        n_edges=budget,
+        connected=settings.connect,
+        max_degree=settings.max_degree,
+    )
+
+
+#: Decoders by name: ``(soft, neighbourhood, settings) -> DecodedGraph``. A new
+#: decoder is a new entry (and a choice of the estimator's ``decoding``).
+DECODERS: dict[str, Callable[[SoftGraph, Neighbourhood, Settings], DecodedGraph]] = {
+    "anchored": _decode_anchored,
+    "free": _decode_free,
+}
+
+
+def decode_query(
+    soft: SoftGraph, hood: Neighbourhood, settings: Settings, formula: Formula | None = None
+) -> nx.Graph:
+    """Decode one soft barycenter into a labeled graph.
+
+    The decoder ``settings.decoding`` gives the ordinary decoding.  With
+    ``settings.valence`` it is repaired into a valid molecule with the fewest
+    edits; with a formula, the decoding is instead the formula's graph that
+    agrees best with the barycenter (measured better than staying close to
+    the ordinary decoding, ``benchmarks/bench_qm9.py``).
+    """
+    out = DECODERS[settings.decoding](soft, hood, settings)
+    labels = settings.labels
+    if not (settings.valence or formula is not None):
+        return labels.build_graph(out.node_classes, out.edges, out.edge_classes)
+    assert settings.valences is not None and settings.orders is not None  # set by the estimator
+    counts = None if formula is None else np.array(label_counts(formula, labels.node_labels_), dtype=np.int64)
+    total = None if formula is None else bond_total(formula, counts, settings.valences)
+    k = labels.n_node_labels
+    try:
+        out = decode_valence(
+            soft.structure,
+            soft.node_scores[:, :k],
+            soft.edge_scores,
+            settings.valences,
+            settings.orders,
+            reference=None if formula is not None else out,
+            connected=settings.connect,
+            label_counts=counts,
+            total_bond_order=total,
+        )
+    except ValueError as exc:
+        where = f"formula {formula.text}: " if formula is not None else ""
+        raise ValueError(f"{where}{exc}") from None
+    return labels.build_graph(out.node_classes, out.edges, out.edge_classes)
+
+
+def formula_counts(formula: Formula | None, labels: LabelSpace) -> NDArray[np.int64] | None:
+    """Heavy atoms per node label of a formula, or None."""
+    if formula is None:
+        return None
+    return np.array(label_counts(formula, labels.node_labels_), dtype=np.int64)
+
+
+def predict_query(hood: Neighbourhood, settings: Settings, formula: Formula | None = None) -> nx.Graph:
+    """One prediction: barycenter of the neighbourhood, then decoding."""
+    soft = solve_barycenter(hood, settings, formula_counts(formula, settings.labels))
+    return decode_query(soft, hood, settings, formula)
+
+
+def barycenter_query(hood: Neighbourhood, settings: Settings, formula: Formula | None = None) -> SoftGraph:
+    """One soft barycenter, not decoded."""
+    return solve_barycenter(hood, settings, formula_counts(formula, settings.labels))
