@@ -204,3 +204,13 @@ def test_the_estimator_is_glue():
 @pytest.mark.parametrize("source", ["gwpred._utils", "gwpred._version"])
 def test_layer_zero_imports_nothing_of_gwpred(source):
     assert not [e for e in INTERNAL if e.source == source]
+
+
+def test_every_subpackage_is_installed():
+    # pyproject.toml lists the packages explicitly (the demo data is mapped in as a package);
+    # a subpackage missing there would work in an editable install and vanish from a wheel
+    tomllib = pytest.importorskip("tomllib")  # Python >= 3.11 (standard library)
+    config = tomllib.loads((PACKAGE.parent / "pyproject.toml").read_text(encoding="utf-8"))
+    listed = set(config["tool"]["setuptools"]["packages"])
+    found = {module_name(p) for p in PACKAGE.rglob("__init__.py")}
+    assert found <= listed, f"add to [tool.setuptools] packages in pyproject.toml: {sorted(found - listed)}"
