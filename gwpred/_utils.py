@@ -1,4 +1,4 @@
-"""Layer 0: what every other module may use, and nothing that knows about graphs.
+"""What every other module may use, and nothing that knows about graphs.
 
 - input checks with fix hints (:func:`check_inputs`) and a declarative table of
   parameter constraints checked by one validator (:class:`Rule`,

@@ -1,3 +1,3 @@
-"""Layer 0: the package version (one place; the CLI and model files read it)."""
+"""The package version (one place; the CLI and model files read it)."""
 
 __version__ = "0.1.0"

@@ -1,4 +1,4 @@
-r"""Layer 3: scores for predicted labeled graphs: exact match, node and edge scores, summaries.
+r"""Scores for predicted labeled graphs: exact match, node and edge scores, summaries.
 
 A labeled graph here is an undirected, simple :class:`networkx.Graph` whose nodes carry a
 categorical label (any hashable value, e.g. an element symbol) and whose edges may carry a

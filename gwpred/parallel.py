@@ -1,4 +1,4 @@
-"""Layer 0: the one seam for parallel work.
+"""The one seam for parallel work.
 
 Every loop over independent items that may run in other processes (edit
 distances of many pairs, per-query predictions) goes through

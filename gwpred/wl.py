@@ -1,6 +1,6 @@
 """Weisfeiler-Lehman features, canonical node order and the label ids they run on.
 
-Layer 2: graph-combinatorial encodings shared by the ranking code.  A labeled
+Graph-combinatorial encodings shared by the ranking code.  A labeled
 graph is first written with integer label ids (:class:`LabelIds`,
 :func:`graph_ids` for networkx graphs, :func:`array_ids` for training graphs
 stored as arrays); then

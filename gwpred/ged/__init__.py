@@ -1,4 +1,4 @@
-r"""Layer 1: the exact graph edit distance (GED) between two labeled graphs.
+r"""The exact graph edit distance (GED) between two labeled graphs.
 
 A labeled graph here is an undirected, simple :class:`networkx.Graph` whose nodes carry a
 categorical label (any hashable value, e.g. an element symbol) and whose edges may carry a
