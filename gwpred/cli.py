@@ -13,6 +13,7 @@ import json
 import sys
 import time
 from collections.abc import Sequence
+from contextlib import ExitStack
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -146,6 +147,40 @@ def _formulas(args: argparse.Namespace, n_rows: int) -> list[str | None] | None:
     return formulas
 
 
+def _n_jobs(args: argparse.Namespace) -> int | None:
+    """--n-jobs checked: None when not given (and no --scheduler), -1 by default with --scheduler."""
+    n = args.n_jobs
+    if n is None:
+        return -1 if args.scheduler else None
+    if n == 0 or n < -1:
+        raise UsageError("--n-jobs must be a number of worker processes >= 1, or -1 for one per "
+                         f"processor; got {n}.")
+    if n == 1 and args.scheduler:
+        raise UsageError(f"--n-jobs 1 runs everything in this process and leaves the cluster at "
+                         f"{args.scheduler} idle; drop --n-jobs (with --scheduler the cluster's workers "
+                         "decide how much runs at once) or drop --scheduler")
+    return n
+
+
+def _on_scheduler(args: argparse.Namespace, stack: ExitStack) -> None:
+    """With --scheduler: connect to it; the command's parallel work runs there until ``stack`` closes."""
+    if not getattr(args, "scheduler", None):
+        return
+    from .parallel import cluster
+
+    _n_jobs(args)  # a contradicting --n-jobs fails before any connection is tried
+    if not args.scheduler_timeout > 0:
+        raise UsageError(f"--scheduler-timeout must be a positive number of seconds; got {args.scheduler_timeout:g}")
+    try:
+        client = stack.enter_context(cluster(args.scheduler, timeout=args.scheduler_timeout))
+    except ConnectionError as err:
+        raise UsageError(str(err)) from None
+    threads = client.nthreads()
+    n, t = len(threads), sum(threads.values())
+    print(f"parallel work on the Dask scheduler at {args.scheduler}: {n} worker{'s' * (n != 1)}, "
+          f"{t} thread{'s' * (t != 1)}")
+
+
 # ----------------------------------------------------------------- commands
 def cmd_fit(args: argparse.Namespace) -> int:
     from .io import read_features, read_graphs
@@ -166,8 +201,11 @@ def cmd_predict(args: argparse.Namespace) -> int:
     from .io import MOLECULE_EXTENSIONS, read_features, write_graphs
     from .model import load_model
 
+    n_jobs = _n_jobs(args)
     model = load_model(args.model)
     model.set_params(progress=not args.quiet)
+    if n_jobs is not None:
+        model.set_params(n_jobs=n_jobs)
     X = read_features(args.features)
     formulas = _formulas(args, X.shape[0])
     if Path(args.out).suffix.lower() in MOLECULE_EXTENSIONS and not model.valence:
@@ -185,9 +223,7 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
     from .io import read_graphs
     from .metrics import summarize
 
-    if args.n_jobs == 0 or args.n_jobs < -1:
-        raise UsageError("--n-jobs must be a number of worker processes >= 1, or -1 for one per "
-                         f"processor; got {args.n_jobs}.")
+    n_jobs = _n_jobs(args) or 1
     pred = read_graphs(args.predicted)
     true = read_graphs(args.truth)
     if len(pred) != len(true):
@@ -196,7 +232,7 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
             "they must be in the same order, one prediction per true graph."
         )
     summary = summarize(pred, true, node_label=args.node_label, edge_label=_edge_label(args),
-                        time_limit=args.time_limit, progress=not args.quiet, n_jobs=args.n_jobs)
+                        time_limit=args.time_limit, progress=not args.quiet, n_jobs=n_jobs)
     print(_table([(Path(args.predicted).name, summary)]))
     print(f"node label accuracy {100 * summary['node_label_accuracy']:.1f}%; edges under the GED node map: "
           f"precision {100 * summary['edge_precision']:.1f}%, recall {100 * summary['edge_recall']:.1f}%, "
@@ -223,6 +259,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     from .weights import kernel_matrix
 
     t_start = time.perf_counter()
+    n_jobs = _n_jobs(args) or 1
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
     X, graphs, smiles = load_demo(return_smiles=True)
@@ -235,7 +272,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     test, train = perm[: args.test_size], perm[args.test_size:]
     print(f"demo: spectrum -> heavy-atom skeleton, {len(train)} training and {len(test)} held-out "
           f"QM9 molecules (seed {args.seed})")
-    model = BarycenterGraphPredictor(**_model_params(args))
+    model = BarycenterGraphPredictor(**_model_params(args), n_jobs=n_jobs)
     model.fit(X[train], [graphs[i] for i in train])
     t0 = time.perf_counter()
     pred = model.predict(X[test])
@@ -245,8 +282,8 @@ def cmd_demo(args: argparse.Namespace) -> int:
     retrieved = [graphs[train[j]] for j in nearest]
     truth = [graphs[i] for i in test]
     print(f"predicted {len(test)} graphs in {t_pred:.1f} s; scoring with exact graph edit distance ...")
-    ours = summarize(pred, truth, time_limit=args.time_limit, progress=not args.quiet)
-    base = summarize(retrieved, truth, time_limit=args.time_limit, progress=not args.quiet)
+    ours = summarize(pred, truth, time_limit=args.time_limit, progress=not args.quiet, n_jobs=n_jobs)
+    base = summarize(retrieved, truth, time_limit=args.time_limit, progress=not args.quiet, n_jobs=n_jobs)
     print()
     print(_table([("gwpred (FGW barycenter)", ours), ("1-NN retrieval", base)]))
     print(f"GED solved exactly for {100 * min(ours['exact_share'], base['exact_share']):.1f}% of pairs "
@@ -397,6 +434,18 @@ def build_parser() -> argparse.ArgumentParser:
     def common(p: argparse.ArgumentParser) -> None:
         p.add_argument("-q", "--quiet", action="store_true", help="no progress bars")
 
+    def parallel(p: argparse.ArgumentParser, work: str, n_jobs_default: str) -> None:
+        g = p.add_argument_group("parallel work")
+        g.add_argument("--n-jobs", type=int, default=None,
+                       help=f"worker processes for {work} on this machine; -1 uses every processor "
+                            f"(default: {n_jobs_default}; -1 with --scheduler)")
+        g.add_argument("--scheduler", metavar="ADDRESS",
+                       help=f"address of a running Dask scheduler (e.g. tcp://10.0.0.5:8786, as printed by "
+                            f"'dask scheduler'): {work} run as tasks on its workers, which need gwpred "
+                            f"installed (pip install 'gwpred[distributed]' here and there)")
+        g.add_argument("--scheduler-timeout", type=float, default=10.0, metavar="SECONDS",
+                       help="seconds to wait for the scheduler and a worker to answer (default: 10)")
+
     p = sub.add_parser("fit", help="learn from a features file and a graphs file; save a model",
                        description="Learn from (vector, graph) pairs and save the model (.npz, no pickle).")
     p.add_argument("--features", required=True, help="inputs: .csv/.tsv (optional header, optional id column) or .npy")
@@ -417,6 +466,7 @@ def build_parser() -> argparse.ArgumentParser:
                         ".csv/.tsv with a formula column, or .txt with one per line; an empty cell leaves a row free")
     p.add_argument("--formula-column", default="formula",
                    help="header of the formula column in --formulas (default: formula)")
+    parallel(p, "the per-input predictions", "the model's own, 1 unless set")
     common(p)
     p.set_defaults(func=cmd_predict)
 
@@ -429,8 +479,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="seconds per GED before settling for bounds (default: 10)")
     p.add_argument("--summary", help="write the summary as JSON here")
     p.add_argument("--items", help="write per-pair scores as CSV here")
-    p.add_argument("--n-jobs", type=int, default=1,
-                   help="worker processes scoring pairs in parallel; -1 uses every processor (default: 1)")
+    parallel(p, "the edit distances of the pairs", "1")
     _add_label_options(p)
     common(p)
     p.set_defaults(func=cmd_evaluate)
@@ -444,6 +493,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--time-limit", type=float, default=2.0,
                    help="seconds per GED before settling for bounds (default: 2)")
     _add_model_options(p)
+    parallel(p, "the predictions and edit distances", "1")
     common(p)
     p.set_defaults(func=cmd_demo)
 
@@ -531,7 +581,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return 2
     try:
-        return int(args.func(args))
+        with ExitStack() as stack:
+            _on_scheduler(args, stack)  # commands with --scheduler: their parallel work runs there
+            return int(args.func(args))
     except (UsageError, ValueError, TypeError, ImportError, FileNotFoundError, IsADirectoryError,
             PermissionError) as err:
         print(f"gwpred {args.command}: error: {err}", file=sys.stderr)

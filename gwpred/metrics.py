@@ -271,7 +271,8 @@ def summarize(
         Show a progress bar on standard error, ticking as pairs are scored.
     n_jobs : int, default=1
         Worker processes (joblib) scoring pairs in parallel; 1 scores them in this process,
-        -1 uses one worker per processor (joblib's convention for negative values).
+        -1 uses one worker per processor (joblib's convention for negative values). Inside
+        ``with gwpred.parallel.cluster(...)``, any value but 1 scores them on the Dask cluster.
     ranked : sequence of sequences of networkx.Graph, optional
         One list of candidate graphs per pair, best first (e.g. the k best guesses of a
         predictor). When given, the summary reports the top-k accuracy.
@@ -335,8 +336,8 @@ def summarize(
     (:func:`exact_match`) to one of the first k graphs of ``ranked[i]``; a list shorter
     than k counts with all its graphs. Only the first 10 candidates of each list are read.
 
-    With ``n_jobs != 1`` the pairs go to joblib workers (loky processes), so the graphs
-    must be picklable, and the results are the same as with ``n_jobs=1`` because
+    With ``n_jobs != 1`` the pairs go to joblib workers (loky processes, or a Dask cluster),
+    so the graphs must be picklable, and the results are the same as with ``n_jobs=1`` because
     :func:`edit_distance` is deterministic. The exception is ``time_limit``: a search cut
     short by the clock can end elsewhere when workers share the processors.
 

@@ -552,3 +552,103 @@ def test_predict_to_smiles_file_decodes_valid_molecules(capsys, tmp_path, files)
     lines = [ln.split()[0] for ln in out.read_text(encoding="utf-8").splitlines() if ln.strip()]
     assert len(lines) == len(TEST)
     assert all(Chem.MolFromSmiles(s) is not None for s in lines)
+
+
+# --------------------------------------------------------------------------
+# parallel work: --n-jobs and --scheduler (a Dask cluster on 127.0.0.1)
+# --------------------------------------------------------------------------
+NO_DISTRIBUTED = "Dask distributed is not installed (pip install 'gwpred[distributed]')"
+#: seconds allowed for the test cluster to start, stop, or answer
+CLUSTER_TIMEOUT = 30
+
+
+@pytest.fixture(scope="module")
+def scheduler_address():
+    """A Dask cluster with one worker thread in this process, listening on 127.0.0.1 only."""
+    distributed = pytest.importorskip("distributed", reason=NO_DISTRIBUTED)
+    with distributed.LocalCluster(
+        n_workers=1, threads_per_worker=1, processes=False, protocol="tcp", host="127.0.0.1",
+        dashboard_address=None, scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
+    ) as local:
+        yield local.scheduler_address
+
+
+def free_loopback_port() -> int:
+    """A port on 127.0.0.1 that nothing listens on (bound by the OS, then released)."""
+    import socket
+
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@pytest.mark.parametrize("command", ["predict", "evaluate", "demo"])
+def test_parallel_options_in_help(capsys, command):
+    with pytest.raises(SystemExit) as exc:
+        main([command, "--help"])
+    assert exc.value.code == 0
+    out = capsys.readouterr().out
+    for opt in ("--n-jobs", "--scheduler ADDRESS", "--scheduler-timeout SECONDS", "dask scheduler"):
+        assert opt in out, opt
+
+
+def test_predict_and_evaluate_on_a_scheduler(capsys, tmp_path, files, scheduler_address):
+    here, there = tmp_path / "here.jsonl", tmp_path / "there.jsonl"
+    code, _, err = run(capsys, "predict", "--model", files["model"], "--features", files["test_x"], "--out", here, "-q")
+    assert code == 0, err
+    code, out, err = run(capsys, "predict", "--model", files["model"], "--features", files["test_x"], "--out", there,
+                         "--scheduler", scheduler_address, "--scheduler-timeout", str(CLUSTER_TIMEOUT), "-q")
+    assert code == 0, err
+    assert f"parallel work on the Dask scheduler at {scheduler_address}: 1 worker, 1 thread" in out
+    assert there.read_text() == here.read_text()
+
+    out1, summary1, rows1 = evaluate_files(capsys, tmp_path, here, files["truth"], "--time-limit", "60")
+    out2, summary2, rows2 = evaluate_files(capsys, tmp_path, here, files["truth"], "--time-limit", "60",
+                                           "--scheduler", scheduler_address)
+    assert summary1["exact_share"] == 1.0  # no pair stopped by the clock, so results are comparable
+    assert (summary2, rows2) == (summary1, rows1)
+
+
+@pytest.mark.parametrize("command", ["predict", "evaluate", "demo"])
+def test_unreachable_scheduler_exits_2(capsys, tmp_path, files, command):
+    pytest.importorskip("distributed", reason=NO_DISTRIBUTED)
+    address = f"tcp://127.0.0.1:{free_loopback_port()}"
+    argv = {
+        "predict": ["predict", "--model", files["model"], "--features", files["test_x"], "--out", tmp_path / "p.jsonl"],
+        "evaluate": ["evaluate", files["truth"], files["truth"]],
+        "demo": ["demo", "--out", tmp_path / "demo"],
+    }[command]
+    expect_usage_error(capsys, [*argv, "--scheduler", address, "--scheduler-timeout", "1", "-q"],
+                       f"no Dask scheduler answered at '{address}' within 1 s",
+                       "check that a scheduler runs there ('dask scheduler' prints its address)")
+    assert not (tmp_path / "p.jsonl").exists() and not (tmp_path / "demo").exists()
+
+
+@pytest.mark.parametrize(
+    "options, fragment",
+    [
+        (["--scheduler", "{address}", "--n-jobs", "1"],
+         "--n-jobs 1 runs everything in this process and leaves the cluster at {address} idle"),
+        (["--scheduler", "{address}", "--scheduler-timeout", "0"],
+         "--scheduler-timeout must be a positive number of seconds; got 0"),
+        (["--scheduler", "127.0.0.1"], "address '127.0.0.1' is not a Dask scheduler address (missing port"),
+        (["--n-jobs", "0"], "--n-jobs must be a number of worker processes >= 1, or -1 for one per processor; got 0."),
+    ],
+)
+def test_predict_rejects_bad_parallel_options(capsys, tmp_path, files, options, fragment):
+    # these fail before any connection; the address is still one where nothing listens
+    if "--scheduler" in options:
+        pytest.importorskip("distributed", reason=NO_DISTRIBUTED)
+    address = f"tcp://127.0.0.1:{free_loopback_port()}"
+    options = [o.format(address=address) for o in options]
+    expect_usage_error(capsys, ["predict", "--model", files["model"], "--features", files["test_x"],
+                                "--out", tmp_path / "p.jsonl", *options, "-q"], fragment.format(address=address))
+
+
+def test_predict_n_jobs_gives_the_same_graphs(capsys, tmp_path, files):
+    one, two = tmp_path / "one.jsonl", tmp_path / "two.jsonl"
+    for path, n_jobs in ((one, "1"), (two, "2")):
+        code, _, err = run(capsys, "predict", "--model", files["model"], "--features", files["test_x"],
+                           "--out", path, "--n-jobs", n_jobs, "-q")
+        assert code == 0, err
+    assert two.read_text() == one.read_text()
