@@ -17,17 +17,22 @@ about graphs.
 
 from __future__ import annotations
 
+import os
 from typing import Callable
 
 import numpy as np
+import scipy.sparse as sp
 from numpy.typing import ArrayLike, NDArray
 from scipy.linalg import cho_factor, cho_solve
+from threadpoolctl import threadpool_limits
 
 __all__ = [
     "KERNELS",
     "kernel_matrix",
     "median_gamma",
+    "default_memory_limit",
     "KernelRidgeWeights",
+    "LocalRidgeWeights",
     "sparsify",
 ]
 
@@ -50,17 +55,33 @@ def _laplacian(X: Array, Y: Array, gamma: float) -> Array:
     return np.exp(-gamma * d)
 
 
+def _is_binary(X: Array) -> bool:
+    return bool(np.array_equal(X, X.astype(bool)))
+
+
+def _ratio(inter: Array, union: Array) -> Array:
+    # intersection / union, with 1 where both vectors are zero
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(union > 0, inter / np.where(union > 0, union, 1.0), 1.0)
+
+
 def _tanimoto(X: Array, Y: Array, gamma: float) -> Array:
     # MinMax similarity sum(min) / sum(max): Tanimoto on binary vectors, MinMax on counts
-    if np.array_equal(X, X.astype(bool)) and np.array_equal(Y, Y.astype(bool)):
+    if _is_binary(X) and _is_binary(Y):
         inter = X @ Y.T
         union = X.sum(1)[:, None] + Y.sum(1)[None, :] - inter
     else:
         inter = np.vstack([np.minimum(X[i : i + 64, None, :], Y[None]).sum(-1) for i in range(0, len(X), 64)])
         union = np.vstack([np.maximum(X[i : i + 64, None, :], Y[None]).sum(-1) for i in range(0, len(X), 64)])
-    with np.errstate(invalid="ignore", divide="ignore"):
-        K = np.where(union > 0, inter / np.where(union > 0, union, 1.0), 1.0)
-    return K
+    return _ratio(inter, union)
+
+
+def _tanimoto_sparse(X: sp.csr_matrix, x_sums: Array, Y: Array, y_sums: Array) -> Array:
+    # the same Tanimoto on 0/1 rows; intersections from a sparse-by-dense product (exact integer
+    # counts) that costs nnz(X) * len(Y) instead of the dense len(X) * d * len(Y)
+    inter = np.ascontiguousarray(X @ np.ascontiguousarray(Y.T), dtype=np.float64)
+    union = x_sums[:, None] + y_sums[None, :] - inter
+    return _ratio(inter, union)
 
 
 def _cosine(X: Array, Y: Array, gamma: float) -> Array:
@@ -148,18 +169,73 @@ def kernel_matrix(X: ArrayLike, Y: ArrayLike, kernel: str = "rbf", gamma: float 
     >>> kernel_matrix([[1, 1, 0]], [[1, 0, 0], [1, 1, 0]], "tanimoto")
     array([[0.5, 1. ]])
     """
-    if kernel not in KERNELS:
+    _check_kernel_name(kernel)
+    X = np.asarray(X, dtype=np.float64)
+    Y = np.asarray(Y, dtype=np.float64)
+    _check_kernel_inputs(kernel, X)
+    _check_kernel_inputs(kernel, Y)
+    return KERNELS[kernel](X, Y, gamma)
+
+
+def _check_kernel_name(kernel: str, precomputed: bool = False) -> None:
+    if kernel not in KERNELS and not (precomputed and kernel == "precomputed"):
         raise ValueError(
             f"kernel must be one of {sorted(KERNELS) + ['precomputed']}; got {kernel!r}."
         )
-    X = np.asarray(X, dtype=np.float64)
-    Y = np.asarray(Y, dtype=np.float64)
-    if kernel == "tanimoto" and (np.any(X < 0) or np.any(Y < 0)):
+
+
+def _check_kernel_inputs(kernel: str, X: Array) -> None:
+    if kernel == "tanimoto" and np.any(X < 0):
         raise ValueError(
             "the tanimoto kernel needs non-negative inputs (bits or counts); "
             "use kernel='rbf' or 'cosine' for signed features."
         )
-    return KERNELS[kernel](X, Y, gamma)
+
+
+def default_memory_limit() -> int:
+    """Half of the machine's physical memory in bytes (8 GB where it cannot be read).
+
+    The default ``memory_limit`` of :class:`KernelRidgeWeights`.
+
+    Returns
+    -------
+    int
+
+    Examples
+    --------
+    >>> default_memory_limit() > 0
+    True
+    """
+    try:
+        total = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (AttributeError, ValueError, OSError):
+        total = -1
+    return int(total // 2) if total > 0 else 8 * 2**30
+
+
+def _check_method_and_ridge(method: str, ridge: float) -> None:
+    if method not in ("ridge", "knn"):
+        raise ValueError(f"method must be 'ridge' or 'knn'; got {method!r}.")
+    if not (isinstance(ridge, (int, float)) and ridge >= 0):
+        raise ValueError(f"ridge must be a non-negative number; got {ridge!r}.")
+
+
+def _fit_gamma(X: Array, kernel: str, gamma: float | None, random_state: int) -> float:
+    if gamma is not None:
+        return float(gamma)
+    if kernel in ("rbf", "laplacian"):
+        return median_gamma(X, kernel, random_state=random_state)
+    return 1.0  # the other kernels have no bandwidth
+
+
+def _factor(A: Array, ridge: float) -> tuple[Array, bool]:
+    try:
+        return cho_factor(A, lower=True, check_finite=False)
+    except np.linalg.LinAlgError:
+        raise ValueError(
+            "the regularised kernel matrix is not positive definite; increase ridge "
+            f"(now {ridge}) or use a positive definite kernel."
+        ) from None
 
 
 def sparsify(
@@ -229,8 +305,21 @@ def sparsify(
     return idx, vals / sums
 
 
+def _check_queries(X: ArrayLike, n_features: int) -> Array:
+    X = np.asarray(X, dtype=np.float64)
+    if X.ndim != 2 or X.shape[1] != n_features:
+        raise ValueError(
+            f"queries must have {n_features} features like the training inputs; got shape {X.shape}."
+        )
+    return X
+
+
 class KernelRidgeWeights:
     r"""Kernel ridge weights :math:`(K + n\lambda I)^{-1} k(x)` or k-NN weights.
+
+    A dense solve over all training inputs: ``fit`` holds the (n, n) kernel and
+    its Cholesky factor, about ``16 n^2`` bytes (1.6 GB at n = 10,000); it
+    refuses beyond ``memory_limit``, where :class:`LocalRidgeWeights` scales.
 
     Parameters
     ----------
@@ -248,6 +337,11 @@ class KernelRidgeWeights:
         weighted by similarity).
     random_state : int, default=0
         Seed of the subsample used by the bandwidth heuristic.
+    memory_limit : int or None, default=None
+        Largest number of bytes the (n, n) kernel and its factor may take
+        (estimated as ``2 * 8 * n**2`` before anything is allocated);
+        ``None`` is :func:`default_memory_limit` (half the physical memory).
+        Applies to ``method="ridge"`` with a kernel function.
 
     Attributes
     ----------
@@ -275,15 +369,29 @@ class KernelRidgeWeights:
         ridge: float = 1e-3,
         method: str = "ridge",
         random_state: int = 0,
+        memory_limit: int | None = None,
     ) -> None:
         self.kernel = kernel
         self.gamma = gamma
         self.ridge = ridge
         self.method = method
         self.random_state = random_state
+        self.memory_limit = memory_limit
 
     def _k(self, X: Array, Y: Array) -> Array:
         return kernel_matrix(X, Y, self.kernel, self.gamma_)
+
+    def _check_memory(self, n: int) -> None:
+        limit = default_memory_limit() if self.memory_limit is None else self.memory_limit
+        need = 2 * 8 * n * n
+        if need > limit:
+            raise ValueError(
+                f"a dense kernel ridge solve on {n} training inputs needs about {need / 2**30:.2f} GiB "
+                f"(the {n} x {n} kernel and its factor), more than memory_limit={limit} bytes "
+                f"({limit / 2**30:.2f} GiB); use weight_model='local' (LocalRidgeWeights: a ridge "
+                "solve on each query's most similar training inputs), fewer training inputs, "
+                "or a larger memory_limit."
+            )
 
     def fit(self, X: ArrayLike) -> KernelRidgeWeights:
         """Store the training inputs and factor :math:`K + n\\lambda I`.
@@ -301,16 +409,11 @@ class KernelRidgeWeights:
         ------
         ValueError
             For an unknown kernel or method, a negative ridge, a non-square
-            precomputed kernel or a kernel matrix that cannot be factored.
+            precomputed kernel, a kernel matrix that cannot be factored, or a
+            dense solve that would exceed ``memory_limit``.
         """
-        if self.kernel != "precomputed" and self.kernel not in KERNELS:
-            raise ValueError(
-                f"kernel must be one of {sorted(KERNELS) + ['precomputed']}; got {self.kernel!r}."
-            )
-        if self.method not in ("ridge", "knn"):
-            raise ValueError(f"method must be 'ridge' or 'knn'; got {self.method!r}.")
-        if not (isinstance(self.ridge, (int, float)) and self.ridge >= 0):
-            raise ValueError(f"ridge must be a non-negative number; got {self.ridge!r}.")
+        _check_kernel_name(self.kernel, precomputed=True)
+        _check_method_and_ridge(self.method, self.ridge)
         X = np.asarray(X, dtype=np.float64)
         n = X.shape[0]
         if self.kernel == "precomputed":
@@ -324,24 +427,15 @@ class KernelRidgeWeights:
         else:
             if X.ndim != 2:
                 raise ValueError(f"X must be 2-D (n_samples, n_features); got shape {X.shape}.")
-            if self.gamma is not None:
-                self.gamma_ = float(self.gamma)
-            elif self.kernel in ("rbf", "laplacian"):
-                self.gamma_ = median_gamma(X, self.kernel, random_state=self.random_state)
-            else:  # the other kernels have no bandwidth
-                self.gamma_ = 1.0
+            _check_kernel_inputs(self.kernel, X)
+            if self.method == "ridge":
+                self._check_memory(n)
+            self.gamma_ = _fit_gamma(X, self.kernel, self.gamma, self.random_state)
             self.X_fit_ = X
-            K = self._k(X, X)
+            K = self._k(X, X) if self.method == "ridge" else None  # knn needs no training kernel
         self.n_train_ = n
         if self.method == "ridge":
-            A = K + n * self.ridge * np.eye(n)
-            try:
-                self._factor = cho_factor(A, lower=True, check_finite=False)
-            except np.linalg.LinAlgError:
-                raise ValueError(
-                    "the regularised kernel matrix is not positive definite; increase ridge "
-                    f"(now {self.ridge}) or use a positive definite kernel."
-                ) from None
+            self._factor = _factor(K + n * self.ridge * np.eye(n), self.ridge)
         return self
 
     def raw_weights(self, X: ArrayLike) -> Array:
@@ -359,8 +453,8 @@ class KernelRidgeWeights:
         """
         if not hasattr(self, "n_train_"):
             raise ValueError("this KernelRidgeWeights is not fitted yet; call fit(X) first.")
-        X = np.asarray(X, dtype=np.float64)
         if self.kernel == "precomputed":
+            X = np.asarray(X, dtype=np.float64)
             if X.ndim != 2 or X.shape[1] != self.n_train_:
                 raise ValueError(
                     f"with kernel='precomputed', pass the (n_queries, {self.n_train_}) kernel "
@@ -368,12 +462,253 @@ class KernelRidgeWeights:
                 )
             Kx = X
         else:
-            if X.ndim != 2 or X.shape[1] != self.X_fit_.shape[1]:
-                raise ValueError(
-                    f"queries must have {self.X_fit_.shape[1]} features like the training inputs; "
-                    f"got shape {X.shape}."
-                )
-            Kx = self._k(X, self.X_fit_)
+            Kx = self._k(_check_queries(X, self.X_fit_.shape[1]), self.X_fit_)
         if self.method == "knn":
             return Kx
         return cho_solve(self._factor, Kx.T, check_finite=False).T
+
+    def top_weights(
+        self, X: ArrayLike, top_k: int | None = 10, *, negative: str = "clip"
+    ) -> tuple[NDArray[np.int64], Array]:
+        """The ``top_k`` largest weights of each query, on the simplex: ``sparsify(raw_weights(X))``.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_queries, d), or (n_queries, n_train) with ``precomputed``
+        top_k : int or None, default=10
+        negative : {"clip", "shift"}, default="clip"
+            See :func:`sparsify`.
+
+        Returns
+        -------
+        indices : ndarray of shape (n_queries, k)
+        weights : ndarray of shape (n_queries, k)
+        """
+        return sparsify(self.raw_weights(X), top_k, negative=negative)
+
+
+class LocalRidgeWeights:
+    r"""Local kernel ridge weights: per query, a ridge solve on its ``local_size`` most similar training inputs.
+
+    For a query :math:`x`, let :math:`S(x)` be the :math:`M` training inputs
+    with the largest kernel values :math:`k(x_i, x)` (ties broken by the
+    smaller training index).  The weights are
+
+    .. math::
+
+        \alpha_{S(x)}(x) = (K_{SS} + M \lambda I)^{-1} k_S(x), \qquad
+        \alpha_i(x) = 0 \text{ for } i \notin S(x),
+
+    so with :math:`M \ge n` they are the dense weights of
+    :class:`KernelRidgeWeights`.  Memory is bounded by ``block_size`` rows of
+    the query-by-train kernel and one (M, M) system at a time, never an
+    (n, n) matrix; the kernel to all training inputs is computed once per
+    query.  Binary inputs with the ``tanimoto`` kernel take their
+    intersections from a sparse product (the same values as the dense formula).
+    The many small solves run on one BLAS thread each (``threadpoolctl``,
+    which comes with scikit-learn): threads cost more than they give on
+    systems of this size.
+
+    Parameters
+    ----------
+    kernel : {"rbf", "laplacian", "tanimoto", "cosine", "linear"}, default="rbf"
+        Input kernel (a kernel function is needed to find the nearest
+        training inputs; ``precomputed`` is not supported).
+    gamma : float or None, default=None
+        Bandwidth of ``rbf``/``laplacian``; ``None`` uses the median heuristic
+        on the training inputs (as :class:`KernelRidgeWeights`).
+    ridge : float, default=1e-3
+        Regularisation :math:`\lambda` (scaled by the local size :math:`M`).
+    method : {"ridge", "knn"}, default="ridge"
+        ``ridge``: local kernel ridge coefficients.  ``knn``: the kernel
+        values of the :math:`M` nearest training inputs (zero elsewhere).
+    local_size : int, default=500
+        :math:`M`, training inputs per local solve (all of them when larger
+        than the training set).
+    block_size : int, default=256
+        Queries whose kernel row to all training inputs is held at once:
+        about ``8 * block_size * n_train`` bytes.  Results do not depend on it.
+    random_state : int, default=0
+        Seed of the subsample used by the bandwidth heuristic.
+
+    Attributes
+    ----------
+    gamma_ : float
+        Bandwidth used.
+    X_fit_ : ndarray of shape (n, d)
+        Training inputs.
+    n_train_ : int
+    local_size_ : int
+        :math:`M` used: ``min(local_size, n_train_)``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> X = np.array([[0.0], [1.0], [2.0], [3.0]])
+    >>> model = LocalRidgeWeights(gamma=1.0, ridge=1e-6, local_size=2).fit(X)
+    >>> idx, w = model.top_weights([[1.1]], top_k=2)
+    >>> idx.tolist(), bool(w[0, 0] > 0.5)
+    ([[1, 2]], True)
+    """
+
+    def __init__(
+        self,
+        kernel: str = "rbf",
+        gamma: float | None = None,
+        ridge: float = 1e-3,
+        method: str = "ridge",
+        local_size: int = 500,
+        block_size: int = 256,
+        random_state: int = 0,
+    ) -> None:
+        self.kernel = kernel
+        self.gamma = gamma
+        self.ridge = ridge
+        self.method = method
+        self.local_size = local_size
+        self.block_size = block_size
+        self.random_state = random_state
+
+    def fit(self, X: ArrayLike) -> LocalRidgeWeights:
+        """Store the training inputs (nothing is factored: solves are per query).
+
+        Parameters
+        ----------
+        X : array-like of shape (n, d)
+
+        Returns
+        -------
+        LocalRidgeWeights
+            ``self``.
+
+        Raises
+        ------
+        ValueError
+            For an unknown or ``precomputed`` kernel, an unknown method, a
+            negative ridge, a non-positive ``local_size`` or ``block_size``, or
+            negative inputs with ``tanimoto``.
+        """
+        if self.kernel == "precomputed":
+            raise ValueError(
+                "LocalRidgeWeights needs a kernel function to find each query's most similar training "
+                "inputs; got kernel='precomputed': use KernelRidgeWeights (weight_model='dense') "
+                "with a precomputed kernel."
+            )
+        _check_kernel_name(self.kernel)
+        _check_method_and_ridge(self.method, self.ridge)
+        for name in ("local_size", "block_size"):
+            value = getattr(self, name)
+            if isinstance(value, (bool, np.bool_)) or not isinstance(value, (int, np.integer)) or value < 1:
+                raise ValueError(f"{name} must be a positive integer; got {value!r}.")
+        X = np.asarray(X, dtype=np.float64)
+        if X.ndim != 2 or X.shape[0] == 0:
+            raise ValueError(f"X must be 2-D (n_samples, n_features) with a row; got shape {X.shape}.")
+        _check_kernel_inputs(self.kernel, X)
+        self.gamma_ = _fit_gamma(X, self.kernel, self.gamma, self.random_state)
+        self.X_fit_ = X
+        self.n_train_ = X.shape[0]
+        self.local_size_ = int(min(self.local_size, self.n_train_))
+        # 0/1 fingerprints: sparse rows and bit counts for fast exact intersections
+        self._bits = self.kernel == "tanimoto" and _is_binary(X)
+        if self._bits:
+            self._X_sparse = sp.csr_matrix(X)
+            self._X_sums = X.sum(1)
+        return self
+
+    def _kernel_rows(self, Xq: Array) -> Array:
+        """Kernel between query rows and all training inputs, shape (len(Xq), n_train)."""
+        if self._bits and _is_binary(Xq):  # the sparse side is the (larger) training set
+            return _tanimoto_sparse(self._X_sparse, self._X_sums, Xq, Xq.sum(1)).T
+        return kernel_matrix(Xq, self.X_fit_, self.kernel, self.gamma_)
+
+    def _train_kernel(self, sel: NDArray[np.int64]) -> Array:
+        """Kernel among the training inputs ``sel``, shape (len(sel), len(sel))."""
+        if self._bits:
+            return _tanimoto_sparse(self._X_sparse[sel], self._X_sums[sel], self.X_fit_[sel], self._X_sums[sel])
+        Xs = self.X_fit_[sel]
+        return kernel_matrix(Xs, Xs, self.kernel, self.gamma_)
+
+    def _local_rows(self, Xq: Array) -> Array:
+        """Local coefficients of a block of queries, zero outside each query's neighbourhood."""
+        K = self._kernel_rows(Xq)
+        n, M = self.n_train_, self.local_size_
+        if M == n:  # every query's neighbourhood is the whole training set: the dense solve
+            if self.method == "knn":
+                return K
+            A = self._train_kernel(np.arange(n))
+            A[np.diag_indices_from(A)] += M * self.ridge
+            return cho_solve(_factor(A, self.ridge), K.T, check_finite=False).T
+        # the M-th largest value of each row; ties at it are taken by training index
+        kth = -np.partition(-K, M - 1, axis=1)[:, M - 1]
+        # many small (M, M) systems: one BLAS thread each is much faster than several
+        with threadpool_limits(limits=1, user_api="blas"):
+            for r in range(len(K)):
+                row = K[r]  # overwritten in place by the row's coefficients
+                above = np.flatnonzero(row > kth[r])
+                tied = np.flatnonzero(row == kth[r])[: M - len(above)]
+                sel = np.sort(np.concatenate([above, tied]))
+                k_sel = row[sel]  # a copy (fancy indexing)
+                row[:] = 0.0
+                if self.method == "knn":
+                    row[sel] = k_sel
+                else:
+                    A = self._train_kernel(sel)
+                    A[np.diag_indices_from(A)] += M * self.ridge
+                    row[sel] = cho_solve(_factor(A, self.ridge), k_sel, check_finite=False)
+        return K
+
+    def _blocks(self, X: ArrayLike) -> tuple[Array, list[slice]]:
+        if not hasattr(self, "n_train_"):
+            raise ValueError("this LocalRidgeWeights is not fitted yet; call fit(X) first.")
+        X = _check_queries(X, self.X_fit_.shape[1])
+        _check_kernel_inputs(self.kernel, X)
+        b = int(self.block_size)
+        return X, [slice(i, i + b) for i in range(0, len(X), b)]
+
+    def raw_weights(self, X: ArrayLike) -> Array:
+        """Dense local weights of each query over all training items (for small training sets).
+
+        Parameters
+        ----------
+        X : array-like of shape (n_queries, d)
+
+        Returns
+        -------
+        ndarray of shape (n_queries, n_train)
+            Local kernel ridge coefficients (kernel values with
+            ``method="knn"``) at each query's ``local_size_`` nearest training
+            inputs, zero elsewhere.  Use :meth:`top_weights` for large
+            training sets: it never holds all rows at once.
+        """
+        X, blocks = self._blocks(X)
+        if not blocks:
+            return np.zeros((0, self.n_train_))
+        return np.vstack([self._local_rows(X[b]) for b in blocks])
+
+    def top_weights(
+        self, X: ArrayLike, top_k: int | None = 10, *, negative: str = "clip"
+    ) -> tuple[NDArray[np.int64], Array]:
+        """The ``top_k`` largest local weights per query, on the simplex, block by block.
+
+        Equal to ``sparsify(self.raw_weights(X), top_k, negative=negative)``
+        while holding only ``block_size`` rows of length ``n_train`` at a time.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_queries, d)
+        top_k : int or None, default=10
+        negative : {"clip", "shift"}, default="clip"
+            See :func:`sparsify`.
+
+        Returns
+        -------
+        indices : ndarray of shape (n_queries, k)
+            Training indices, by decreasing weight (ties by index).
+        weights : ndarray of shape (n_queries, k)
+            Non-negative weights that sum to one per row.
+        """
+        X, blocks = self._blocks(X)
+        if not blocks:
+            return sparsify(np.zeros((0, self.n_train_)), top_k, negative=negative)
+        parts = [sparsify(self._local_rows(X[b]), top_k, negative=negative) for b in blocks]
+        return np.vstack([p[0] for p in parts]), np.vstack([p[1] for p in parts])

@@ -15,6 +15,9 @@ Outside references used here:
   ``graph_edit_distance`` for the score on small graphs.
 - QM9 heavy-atom graphs and broadened spectra from ``gwpred.datasets.load_demo``
   (built from the QM9 data of the PyPI package qm9pack).
+- scikit-learn ``KernelRidge`` fitted on each query's ``local_size`` nearest
+  training inputs (a stable numpy sort of scikit-learn's ``rbf_kernel``) for
+  ``weight_model="local"``.
 
 No expected value below is made up: the toy chain graphs only feed error
 paths and the networkx GED cross-check.
@@ -33,12 +36,14 @@ from networkx.algorithms.isomorphism import categorical_edge_match, categorical_
 from sklearn.base import clone
 from sklearn.exceptions import NotFittedError
 from sklearn.kernel_ridge import KernelRidge
+from sklearn.metrics.pairwise import rbf_kernel
 from sklearn.model_selection import GridSearchCV
 from sklearn.pipeline import Pipeline
 from sklearn.preprocessing import StandardScaler
 from sklearn.utils import estimator_checks
 
 from gwpred import BarycenterGraphPredictor, SoftGraph
+from gwpred.model import estimator as estimator_module
 from gwpred.datasets import load_demo
 from gwpred.metrics import edit_distance
 from gwpred.weights import kernel_matrix
@@ -538,3 +543,81 @@ def test_new_parameter_checks(params, exc, match):
     X, graphs = toy()
     with pytest.raises(exc, match=match):
         BarycenterGraphPredictor(**params).fit(X, graphs)
+
+
+# --------------------------------------------------------------------------
+# weight models: dense and local
+# --------------------------------------------------------------------------
+def test_weight_model_defaults_and_auto_choice(demo, fitted, monkeypatch):
+    assert fitted.get_params()["weight_model"] == "auto" and fitted.get_params()["local_size"] == 500
+    assert fitted.weight_model_ == "dense" and type(fitted.weights_).__name__ == "KernelRidgeWeights"
+    Xtr, Gtr, _, _ = demo
+    monkeypatch.setattr(estimator_module, "AUTO_DENSE_MAX", len(Xtr) - 1)
+    above = BarycenterGraphPredictor(top_k=TOP_K).fit(Xtr, Gtr)
+    assert above.weight_model_ == "local" and type(above.weights_).__name__ == "LocalRidgeWeights"
+    # a precomputed kernel stays dense whatever the size
+    K = kernel_matrix(Xtr, Xtr, "rbf", fitted.weights_.gamma_)
+    assert BarycenterGraphPredictor(kernel="precomputed", top_k=TOP_K).fit(K, Gtr).weight_model_ == "dense"
+
+
+def test_local_weights_match_sklearn_kernel_ridge_on_the_nearest(demo):
+    # reference: scikit-learn KernelRidge on each query's M nearest training inputs (stable
+    # numpy sort of sklearn's rbf_kernel), identity targets, alpha = M * ridge; then the top_k
+    # clipped and normalised as documented
+    Xtr, Gtr, Xte, _ = demo
+    M = 40
+    model = BarycenterGraphPredictor(top_k=TOP_K, weight_model="local", local_size=M, random_state=0).fit(Xtr, Gtr)
+    gamma = model.weights_.gamma_
+    idx, w = model.neighbors(Xte)
+    for row, x, i, ww in zip(rbf_kernel(Xte, Xtr, gamma=gamma), Xte, idx, w):
+        near = np.sort(np.argsort(-row, kind="stable")[:M])
+        coef = np.zeros(len(Xtr))
+        kr = KernelRidge(alpha=M * model.ridge, kernel="rbf", gamma=gamma).fit(Xtr[near], np.eye(M))
+        coef[near] = kr.predict(x[None])[0]
+        order = np.argsort(-coef, kind="stable")[:TOP_K]
+        keep = np.clip(coef[order], 0, None)
+        assert i.tolist() == order.tolist()
+        np.testing.assert_allclose(ww, keep / keep.sum(), rtol=1e-6)
+
+
+def test_local_with_every_training_input_predicts_as_dense(demo, fitted, predicted):
+    # with local_size >= n the local solve is the dense solve (checked against scikit-learn above)
+    Xtr, Gtr, Xte, _ = demo
+    local = BarycenterGraphPredictor(top_k=TOP_K, weight_model="local", local_size=len(Xtr), random_state=0)
+    local.fit(Xtr, Gtr)
+    assert local.weight_model_ == "local"
+    a, b = local.neighbors(Xte), fitted.neighbors(Xte)
+    np.testing.assert_array_equal(a[0], b[0])
+    np.testing.assert_allclose(a[1], b[1], rtol=1e-9)
+    assert all(same_labeled_graph(p, q) for p, q in zip(local.predict(Xte), predicted))
+
+
+@pytest.mark.parametrize(
+    "params, match",
+    [
+        ({"weight_model": "sparse"}, r"weight_model must be one of \['auto', 'dense', 'local'\]; got 'sparse'\."),
+        ({"weight_model": None}, r"weight_model must be one of \['auto', 'dense', 'local'\]; got None\."),
+        ({"local_size": 0}, r"local_size must be a positive integer; got 0\."),
+        ({"local_size": 2.5}, r"local_size must be a positive integer; got 2\.5\."),
+        ({"local_size": True}, r"local_size must be a positive integer; got True\."),
+    ],
+)
+def test_weight_model_parameter_checks(params, match):
+    X, graphs = toy()
+    with pytest.raises(ValueError, match=match):
+        BarycenterGraphPredictor(**params).fit(X, graphs)
+
+
+def test_local_weight_model_refuses_a_precomputed_kernel():
+    X, graphs = toy()
+    K = kernel_matrix(X, X, "rbf", 0.5)
+    est = BarycenterGraphPredictor(kernel="precomputed", weight_model="local")
+    with pytest.raises(
+        ValueError,
+        match=r"weight_model='local' needs a kernel function to find each query's most similar training inputs; "
+        r"with kernel='precomputed' use weight_model='dense' or 'auto'",
+    ):
+        est.fit(K, graphs)
+    assert not hasattr(est, "training_")  # refused before anything was stored
+    model = BarycenterGraphPredictor(kernel="precomputed", top_k=1)
+    assert model.fit(K, graphs).weight_model_ == "dense"

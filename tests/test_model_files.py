@@ -27,6 +27,7 @@ from sklearn.base import clone
 from gwpred import BarycenterGraphPredictor, load_model, save_model
 from gwpred.datasets import load_demo
 from gwpred.io import ARCHIVE_FORMAT, ARCHIVE_VERSION, load_archive, save_archive
+from gwpred.model import estimator as estimator_module
 from gwpred.weights import kernel_matrix
 
 N_TRAIN = 150
@@ -63,6 +64,9 @@ def fit_variant(variant: str, demo) -> tuple[BarycenterGraphPredictor, np.ndarra
         K = kernel_matrix(Xtr, Xtr, "rbf", 2.0)
         model = BarycenterGraphPredictor(kernel="precomputed", top_k=3).fit(K, Gtr)
         return model, kernel_matrix(Xte, Xtr, "rbf", 2.0)
+    if variant == "local":
+        model = BarycenterGraphPredictor(top_k=3, weight_model="local", local_size=20, random_state=0)
+        return model.fit(Xtr, Gtr), Xte
     if variant == "edge_label=None":
         return BarycenterGraphPredictor(top_k=3, edge_label=None).fit(Xtr, Gtr), Xte
     if variant == "int-node-labels":
@@ -89,6 +93,7 @@ VARIANTS = [
     "laplacian-knn",
     "fixed-gamma-decoded",
     "precomputed",
+    "local",
     "edge_label=None",
     "int-node-labels",
     "str-node-ids-reversed",
@@ -455,3 +460,30 @@ def test_model_file_with_an_unknown_parameter_is_refused(tmp_path, small_model_f
     save_archive(tmp_path / "new.npz", arrays, manifest)
     with pytest.raises(ValueError, match=r"parameters \['from_the_future'\] are unknown to this gwpred; .*upgrade"):
         load_model(tmp_path / "new.npz")
+
+
+# --------------------------------------------------------------------------
+# weight models
+# --------------------------------------------------------------------------
+def test_local_weight_model_round_trips(tmp_path, demo):
+    model, Xq = fit_variant("local", demo)
+    save_model(model, tmp_path / "m.npz")
+    params = read_manifest(tmp_path / "m.npz")["params"]  # reference: numpy + json
+    assert params["weight_model"] == "local" and params["local_size"] == 20
+    loaded = load_model(tmp_path / "m.npz")
+    assert loaded.weight_model_ == "local" and type(loaded.weights_) is type(model.weights_)
+    np.testing.assert_array_equal(loaded.neighbors(Xq)[0], model.neighbors(Xq)[0])
+    np.testing.assert_array_equal(loaded.neighbors(Xq)[1], model.neighbors(Xq)[1])
+
+
+def test_file_written_before_weight_models_keeps_the_dense_solve(tmp_path, small_model_file, monkeypatch):
+    # a manifest without weight_model / local_size, as written before they existed (rebuilt with
+    # gwpred.io's archive functions); even where "auto" would pick the local model, it loads dense
+    path, expected, Xq = small_model_file
+    arrays, manifest = load_archive(path)
+    del manifest["params"]["weight_model"], manifest["params"]["local_size"]
+    save_archive(tmp_path / "old.npz", arrays, manifest)
+    monkeypatch.setattr(estimator_module, "AUTO_DENSE_MAX", 1)
+    loaded = load_model(tmp_path / "old.npz")
+    assert loaded.weight_model == "dense" and loaded.weight_model_ == "dense" and loaded.local_size == 500
+    assert node_link(loaded.predict(Xq)) == expected

@@ -12,10 +12,14 @@ Outside references used here:
   SMILES from ``gwpred.datasets.load_demo``.
 - scipy ``pdist`` for the median heuristic (median pairwise distance,
   common practice).
+- numpy ``linalg.solve`` and scikit-learn ``KernelRidge`` on each query's
+  ``M`` nearest training inputs (chosen here with a stable numpy sort) for the
+  local kernel ridge weights; ``os.sysconf`` for the default memory limit.
 """
 
 from __future__ import annotations
 
+import os
 import re
 
 import numpy as np
@@ -25,7 +29,15 @@ from sklearn.kernel_ridge import KernelRidge
 from sklearn.metrics.pairwise import cosine_similarity, laplacian_kernel, linear_kernel, rbf_kernel
 
 from gwpred.datasets import load_demo
-from gwpred.weights import KERNELS, KernelRidgeWeights, kernel_matrix, median_gamma, sparsify
+from gwpred.weights import (
+    KERNELS,
+    KernelRidgeWeights,
+    LocalRidgeWeights,
+    default_memory_limit,
+    kernel_matrix,
+    median_gamma,
+    sparsify,
+)
 
 
 @pytest.fixture(scope="module")
@@ -409,3 +421,214 @@ def test_median_gamma_unknown_kernel() -> None:
 def test_sparsify_no_training_items() -> None:
     with pytest.raises(ValueError, match=r"W"):
         sparsify(np.zeros((1, 0)))
+
+
+# --------------------------------------------------------------------------
+# local kernel ridge weights and the dense memory guard
+# --------------------------------------------------------------------------
+def random_bits(rng: np.random.Generator, n: int, d: int, p: float) -> np.ndarray:
+    return (rng.random((n, d)) < p).astype(float)
+
+
+def test_local_ridge_with_all_training_inputs_is_the_dense_solve(data) -> None:
+    # reference: numpy solve of (K + n ridge I) a = k(x) with scikit-learn's rbf_kernel, and
+    # scikit-learn KernelRidge on Y = I (dual_coef_ = (K + alpha I)^{-1}, alpha = n * ridge)
+    X, Xt = data
+    n, ridge, gamma = len(X), 1e-2, 0.3
+    K, Kx = rbf_kernel(X, X, gamma=gamma), rbf_kernel(Xt, X, gamma=gamma)
+    expected = np.linalg.solve(K + n * ridge * np.eye(n), Kx.T).T
+    kr = KernelRidge(alpha=n * ridge, kernel="rbf", gamma=gamma).fit(X, np.eye(n))
+    np.testing.assert_allclose(kr.dual_coef_ @ Kx.T, expected.T, rtol=1e-8, atol=1e-10)
+    for M in (n, n + 7):
+        local = LocalRidgeWeights("rbf", gamma=gamma, ridge=ridge, local_size=M).fit(X)
+        assert local.local_size_ == n
+        np.testing.assert_allclose(local.raw_weights(Xt), expected, rtol=1e-8, atol=1e-10)
+        np.testing.assert_allclose(local.raw_weights(Xt), kr.predict(Xt), rtol=1e-8, atol=1e-10)
+
+
+def test_local_ridge_tanimoto_with_all_training_inputs_is_the_dense_solve() -> None:
+    # reference: the set formula |A & B| / |A | B| and a numpy solve
+    rng = np.random.default_rng(11)
+    X, Xt = random_bits(rng, 40, 60, 0.2), random_bits(rng, 6, 60, 0.2)
+    K = np.array([[set_tanimoto(a, b) for b in X] for a in X])
+    Kx = np.array([[set_tanimoto(a, b) for b in X] for a in Xt])
+    expected = np.linalg.solve(K + 40 * 1e-3 * np.eye(40), Kx.T).T
+    local = LocalRidgeWeights("tanimoto", local_size=40).fit(X)
+    np.testing.assert_allclose(local.raw_weights(Xt), expected, rtol=1e-8, atol=1e-10)
+
+
+@pytest.mark.parametrize("kernel", ["rbf", "tanimoto"])
+def test_local_ridge_solves_on_each_querys_nearest_inputs(kernel: str) -> None:
+    # reference: per query, the M largest kernel values (numpy stable sort: ties by index) and
+    # scikit-learn KernelRidge fitted on those M inputs with Y = I and alpha = M * ridge
+    rng = np.random.default_rng(5)
+    if kernel == "rbf":
+        X, Xt = rng.normal(size=(80, 4)), rng.normal(size=(9, 4))
+        Kx = rbf_kernel(Xt, X, gamma=0.2)
+    else:
+        X, Xt = random_bits(rng, 80, 50, 0.25), random_bits(rng, 9, 50, 0.25)
+        Kx = np.array([[set_tanimoto(a, b) for b in X] for a in Xt])
+    M, ridge = 15, 1e-2
+    local = LocalRidgeWeights(kernel, gamma=0.2, ridge=ridge, local_size=M).fit(X)
+    W = local.raw_weights(Xt)
+    for row, x, w in zip(Kx, Xt, W):
+        near = np.sort(np.argsort(-row, kind="stable")[:M])
+        ref_kernel = "rbf" if kernel == "rbf" else "precomputed"
+        kr = KernelRidge(alpha=M * ridge, kernel=ref_kernel, gamma=0.2)
+        if kernel == "rbf":
+            coef = kr.fit(X[near], np.eye(M)).predict(x[None])[0]
+        else:
+            Kmm = np.array([[set_tanimoto(a, b) for b in X[near]] for a in X[near]])
+            coef = kr.fit(Kmm, np.eye(M)).predict(row[near][None])[0]
+        expected = np.zeros(len(X))
+        expected[near] = coef
+        np.testing.assert_allclose(w, expected, rtol=1e-8, atol=1e-10)
+
+
+def test_local_neighbourhood_ties_are_broken_by_index() -> None:
+    # reference: identical training rows have equal kernel values; the lower indices are kept
+    X = np.array([[0.0], [1.0], [1.0], [1.0], [5.0], [1.0]])
+    W = LocalRidgeWeights("rbf", gamma=1.0, method="knn", local_size=3).fit(X).raw_weights([[1.0]])
+    assert np.flatnonzero(W[0]).tolist() == [1, 2, 3]
+
+
+def test_local_knn_gives_the_kernel_values_of_the_nearest(data) -> None:
+    # reference: scikit-learn rbf_kernel; the M largest values kept, zero elsewhere
+    X, Xt = data
+    Kx = rbf_kernel(Xt, X, gamma=0.4)
+    W = LocalRidgeWeights("rbf", gamma=0.4, method="knn", local_size=5).fit(X).raw_weights(Xt)
+    for row, w in zip(Kx, W):
+        near = np.argsort(-row, kind="stable")[:5]
+        expected = np.zeros_like(row)
+        expected[near] = row[near]
+        np.testing.assert_allclose(w, expected, rtol=1e-12)
+    # the dense model's knn top-k is the same when top_k <= M
+    dense = KernelRidgeWeights("rbf", gamma=0.4, method="knn").fit(X)
+    local = LocalRidgeWeights("rbf", gamma=0.4, method="knn", local_size=5).fit(X)
+    for a, b in zip(dense.top_weights(Xt, 5), local.top_weights(Xt, 5)):
+        np.testing.assert_allclose(a, b, rtol=1e-12)
+
+
+def test_sparse_tanimoto_equals_the_dense_formula() -> None:
+    # reference: the dense formula X Y^T / (|x| + |y| - X Y^T) with numpy, and 1 for two empty rows
+    rng = np.random.default_rng(9)
+    X, Y = random_bits(rng, 300, 256, 0.05), random_bits(rng, 23, 256, 0.08)
+    X[3] = 0.0
+    Y[0] = 0.0
+    Y[1] = X[7]
+    inter = Y @ X.T
+    union = Y.sum(1)[:, None] + X.sum(1)[None, :] - inter
+    expected = np.where(union > 0, inter / np.where(union > 0, union, 1.0), 1.0)
+    local = LocalRidgeWeights("tanimoto", method="knn", local_size=300).fit(X)
+    W = local.raw_weights(Y)
+    np.testing.assert_array_equal(W, expected)
+    np.testing.assert_array_equal(W, kernel_matrix(Y, X, "tanimoto"))
+    assert W[0, 3] == 1.0 and W[1, 7] == 1.0
+
+
+def test_local_counts_use_the_minmax_kernel() -> None:
+    # reference: MinMax sum(min) / sum(max) on count vectors, computed directly
+    rng = np.random.default_rng(4)
+    X = rng.integers(0, 4, size=(30, 12)).astype(float)
+    Y = rng.integers(0, 3, size=(5, 12)).astype(float)
+    expected = np.array([[np.minimum(y, x).sum() / np.maximum(y, x).sum() for x in X] for y in Y])
+    W = LocalRidgeWeights("tanimoto", method="knn", local_size=30).fit(X).raw_weights(Y)
+    np.testing.assert_allclose(W, expected, rtol=1e-12)
+
+
+@pytest.mark.parametrize("kernel", ["rbf", "tanimoto", "cosine"])
+def test_block_size_does_not_change_local_weights(kernel: str) -> None:
+    rng = np.random.default_rng(2)
+    X, Xt = random_bits(rng, 120, 40, 0.3), random_bits(rng, 17, 40, 0.3)
+    if kernel != "tanimoto":
+        X, Xt = X + rng.normal(size=X.shape), Xt + rng.normal(size=Xt.shape)
+    results = []
+    for block in (1, 4, 17, 1000):
+        model = LocalRidgeWeights(kernel, gamma=0.1, local_size=25, block_size=block).fit(X)
+        results.append((model.raw_weights(Xt), *model.top_weights(Xt, 6)))
+    for W, idx, w in results[1:]:
+        # reference: numpy comparison with the one-row-at-a-time results
+        np.testing.assert_allclose(W, results[0][0], rtol=1e-12, atol=1e-15)
+        np.testing.assert_array_equal(idx, results[0][1])
+        np.testing.assert_allclose(w, results[0][2], rtol=1e-12, atol=1e-15)
+
+
+@pytest.mark.parametrize("negative", ["clip", "shift"])
+@pytest.mark.parametrize("top_k", [1, 4, None])
+def test_top_weights_equal_sparsify_of_raw_weights(data, negative: str, top_k) -> None:
+    X, Xt = data
+    for model in (
+        KernelRidgeWeights("rbf", gamma=0.3).fit(X),
+        LocalRidgeWeights("rbf", gamma=0.3, local_size=8, block_size=3).fit(X),
+    ):
+        idx, w = model.top_weights(Xt, top_k, negative=negative)
+        ref_idx, ref_w = sparsify(model.raw_weights(Xt), top_k, negative=negative)
+        np.testing.assert_array_equal(idx, ref_idx)
+        np.testing.assert_array_equal(w, ref_w)
+    K = rbf_kernel(X, X, gamma=0.3)
+    pre = KernelRidgeWeights("precomputed").fit(K)
+    idx, w = pre.top_weights(rbf_kernel(Xt, X, gamma=0.3), top_k, negative=negative)
+    np.testing.assert_array_equal(idx, sparsify(pre.raw_weights(rbf_kernel(Xt, X, gamma=0.3)), top_k, negative=negative)[0])
+
+
+def test_local_gamma_is_the_dense_models(data) -> None:
+    X, _ = data
+    assert LocalRidgeWeights("rbf").fit(X).gamma_ == KernelRidgeWeights("rbf").fit(X).gamma_ == median_gamma(X)
+    assert LocalRidgeWeights("rbf", gamma=0.7).fit(X).gamma_ == 0.7
+
+
+def test_default_memory_limit_is_half_the_physical_memory() -> None:
+    # reference: os.sysconf page size times number of physical pages
+    total = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    assert default_memory_limit() == total // 2
+
+
+def test_dense_memory_guard_names_the_scalable_option() -> None:
+    X = np.arange(40.0).reshape(20, 2)
+    # 2 * 8 * 20**2 = 6400 bytes for the kernel and its factor
+    with pytest.raises(
+        ValueError,
+        match=r"a dense kernel ridge solve on 20 training inputs needs about .* GiB \(the 20 x 20 kernel and its "
+        r"factor\), more than memory_limit=6399 bytes .*; use weight_model='local' \(LocalRidgeWeights",
+    ):
+        KernelRidgeWeights(gamma=1.0, memory_limit=6399).fit(X)
+    KernelRidgeWeights(gamma=1.0, memory_limit=6400).fit(X)  # at the limit: fine
+    KernelRidgeWeights(gamma=1.0, method="knn", memory_limit=1).fit(X)  # knn holds no (n, n) matrix
+    LocalRidgeWeights(gamma=1.0, local_size=5).fit(X)
+
+
+def test_local_refuses_a_precomputed_kernel() -> None:
+    with pytest.raises(ValueError, match=r"LocalRidgeWeights needs a kernel function .*got kernel='precomputed': "
+                       r"use KernelRidgeWeights \(weight_model='dense'\)"):
+        LocalRidgeWeights("precomputed").fit(np.eye(3))
+
+
+@pytest.mark.parametrize("name, value", [("local_size", 0), ("local_size", 2.5), ("block_size", -1), ("block_size", True)])
+def test_local_bad_sizes(name: str, value) -> None:
+    with pytest.raises(ValueError, match=rf"{name} must be a positive integer; got {re.escape(repr(value))}\."):
+        LocalRidgeWeights(**{name: value}).fit([[0.0], [1.0]])
+
+
+def test_local_errors_shared_with_the_dense_model() -> None:
+    with pytest.raises(ValueError, match=rf"kernel must be one of {KNOWN}; got 'gauss'"):
+        LocalRidgeWeights("gauss").fit([[1.0]])
+    with pytest.raises(ValueError, match=r"method must be 'ridge' or 'knn'; got 'lasso'"):
+        LocalRidgeWeights(method="lasso").fit([[0.0], [1.0]])
+    with pytest.raises(ValueError, match=r"ridge must be a non-negative number; got -1"):
+        LocalRidgeWeights(ridge=-1).fit([[0.0], [1.0]])
+    with pytest.raises(ValueError, match=r"tanimoto kernel needs non-negative inputs"):
+        LocalRidgeWeights("tanimoto").fit([[1.0, -0.5], [0.0, 1.0]])
+    with pytest.raises(ValueError, match=r"this LocalRidgeWeights is not fitted yet; call fit\(X\) first"):
+        LocalRidgeWeights().top_weights([[1.0]])
+    model = LocalRidgeWeights(gamma=1.0).fit(np.ones((3, 2)))
+    with pytest.raises(ValueError, match=r"queries must have 2 features like the training inputs; got shape \(1, 3\)"):
+        model.raw_weights(np.ones((1, 3)))
+    with pytest.raises(ValueError, match=r"X must be 2-D \(n_samples, n_features\) with a row; got shape \(3,\)"):
+        LocalRidgeWeights().fit(np.ones(3))
+
+
+def test_local_ridge_not_positive_definite() -> None:
+    # a linear kernel on 3 collinear points is singular; ridge 0 cannot factor it
+    X = np.array([[1.0], [2.0], [3.0]])
+    with pytest.raises(ValueError, match=r"not positive definite; increase ridge \(now 0\)"):
+        LocalRidgeWeights("linear", ridge=0, local_size=3).fit(X).raw_weights([[1.0]])

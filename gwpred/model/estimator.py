@@ -24,7 +24,7 @@ from ..codec import LabelSpace, TrainingSet
 from ..ged import edit_distance
 from ..parallel import N_JOBS_RULE, parallel_map
 from ..ranking import rank_candidates
-from ..weights import KERNELS, KernelRidgeWeights, sparsify
+from ..weights import KERNELS, KernelRidgeWeights, LocalRidgeWeights
 from .steps import (
     DECODERS,
     Settings,
@@ -40,6 +40,12 @@ __all__ = ["BarycenterGraphPredictor"]
 
 _POSITIVE_INT = Rule(Interval(1, np.inf, integer=True))
 _NON_NEGATIVE = Rule(Interval(0.0))
+
+#: Largest training set for which ``weight_model="auto"`` solves densely;
+#: above it, local solves (see ``benchmarks/bench_weight_models.py``).
+AUTO_DENSE_MAX = 5000
+#: Choices of ``weight_model``.
+WEIGHT_MODELS = ("auto", "dense", "local")
 
 
 class BarycenterGraphPredictor(BaseEstimator):
@@ -116,6 +122,18 @@ class BarycenterGraphPredictor(BaseEstimator):
     n_jobs : int, default=1
         Worker processes for the queries of ``predict`` (-1: one per
         processor); results do not depend on it.
+    weight_model : {"auto", "dense", "local"}, default="auto"
+        How the kernel ridge weights are solved.  ``dense``: one solve over
+        all training inputs (:class:`~gwpred.weights.KernelRidgeWeights`;
+        about ``16 n^2`` bytes, refused beyond half the physical memory).
+        ``local``: per query, a ridge solve on its ``local_size`` most similar
+        training inputs (:class:`~gwpred.weights.LocalRidgeWeights`; memory
+        linear in n, for large training sets such as all of QM9).  ``auto``:
+        ``dense`` up to 5,000 training inputs (and always with
+        ``kernel="precomputed"``), ``local`` above.  The choice is in
+        ``weight_model_``.
+    local_size : int, default=500
+        Training inputs per local solve (``weight_model="local"``).
 
     Attributes
     ----------
@@ -123,8 +141,10 @@ class BarycenterGraphPredictor(BaseEstimator):
         The encoded training graphs.
     labels_ : LabelSpace
         Fitted node and edge label categories (``training_.labels``).
-    weights_ : KernelRidgeWeights
+    weights_ : KernelRidgeWeights or LocalRidgeWeights
         Fitted weight model.
+    weight_model_ : {"dense", "local"}
+        The weight model used (``weight_model`` with ``auto`` resolved).
     n_train_ : int
     sizes_, n_edges_ : ndarray of shape (n_train,)
         Node and edge counts of the training graphs.
@@ -151,6 +171,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         "ridge": _NON_NEGATIVE,
         "weighting": Rule(Options(("ridge", "knn"))),
         "top_k": _POSITIVE_INT,
+        "weight_model": Rule(Options(WEIGHT_MODELS)),
+        "local_size": _POSITIVE_INT,
         "alpha": Rule(Interval(0.0, 1.0)),
         "n_nodes": Rule(Options(("vote",)), Interval(1, np.inf, integer=True)),
         "max_outer": _POSITIVE_INT,
@@ -189,6 +211,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         random_state: Any = None,
         progress: bool = False,
         n_jobs: int = 1,
+        weight_model: str = "auto",
+        local_size: int = 500,
     ) -> None:
         self.kernel = kernel
         self.gamma = gamma
@@ -211,6 +235,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         self.random_state = random_state
         self.progress = progress
         self.n_jobs = n_jobs
+        self.weight_model = weight_model
+        self.local_size = local_size
 
     # ----------------------------------------------------------------- fit
     def fit(self, X: ArrayLike, graphs: list[nx.Graph]) -> BarycenterGraphPredictor:
@@ -232,7 +258,10 @@ class BarycenterGraphPredictor(BaseEstimator):
         ------
         ValueError
             For invalid parameters, non-finite inputs, mismatched lengths,
-            empty graphs, self-loops or unlabeled nodes.
+            empty graphs, self-loops or unlabeled nodes; for
+            ``weight_model="local"`` with ``kernel="precomputed"``; for a dense
+            solve whose (n, n) kernel and factor would exceed half the
+            physical memory (use ``weight_model="local"``).
         TypeError
             For graphs that are not simple undirected networkx graphs.
         """
@@ -275,6 +304,7 @@ class BarycenterGraphPredictor(BaseEstimator):
                 f"X has {X.shape[0]} rows but the training set holds {len(training)} graphs; "
                 "pass one graph per input row."
             )
+        weight_model = self._resolve_weight_model(X.shape[0])
         self.training_ = training
         self.labels_ = training.labels
         self.sizes_ = training.sizes
@@ -282,13 +312,32 @@ class BarycenterGraphPredictor(BaseEstimator):
         self.max_degree_ = training.max_degree
         self.connected_ = training.connected
         seed = 0 if self.random_state is None else check_random_state(self.random_state).randint(2**31 - 1)
-        self.weights_ = KernelRidgeWeights(
-            self.kernel, self.gamma if gamma is None else gamma, self.ridge, self.weighting, random_state=seed
-        )
+        gamma = self.gamma if gamma is None else gamma
+        self.weight_model_ = weight_model
+        if self.weight_model_ == "local":
+            self.weights_ = LocalRidgeWeights(
+                self.kernel, gamma, self.ridge, self.weighting, local_size=self.local_size, random_state=seed
+            )
+        else:
+            self.weights_ = KernelRidgeWeights(self.kernel, gamma, self.ridge, self.weighting, random_state=seed)
         self.weights_.fit(X)
         self.n_train_ = X.shape[0]
         self.n_features_in_ = X.shape[1]
         return self
+
+    def _resolve_weight_model(self, n_train: int) -> str:
+        """``weight_model`` with ``auto`` resolved for ``n_train`` training inputs."""
+        if self.kernel == "precomputed":
+            if self.weight_model == "local":
+                raise ValueError(
+                    "weight_model='local' needs a kernel function to find each query's most similar "
+                    "training inputs; with kernel='precomputed' use weight_model='dense' or 'auto' "
+                    "(dense), or pass the features with a named kernel."
+                )
+            return "dense"
+        if self.weight_model == "auto":
+            return "dense" if n_train <= AUTO_DENSE_MAX else "local"
+        return self.weight_model
 
     # ------------------------------------------------------------- predict
     def neighbors(self, X: ArrayLike) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
@@ -313,7 +362,7 @@ class BarycenterGraphPredictor(BaseEstimator):
                 f"X has {X.shape[1]} columns but the model was fitted with {expected}; "
                 "use the same features (or the kernel to the training items) as in fit."
             )
-        return sparsify(self.weights_.raw_weights(X), self.top_k)
+        return self.weights_.top_weights(X, self.top_k)
 
     def _settings(self, need_valences: bool) -> Settings:
         valences = orders = None

@@ -4,7 +4,8 @@ What is stored is decided here; how an archive is written and checked
 (checksums, no pickle, atomic writes) is :func:`gwpred.io.save_archive` /
 :func:`gwpred.io.load_archive`.  Files written by every earlier gwpred layout
 load unchanged (the format never named a module); a file whose parameters
-use the older name ``verbose`` for ``progress`` is read as such.
+use the older name ``verbose`` for ``progress`` is read as such, and a file
+written before ``weight_model`` existed keeps the dense solve it was made with.
 """
 
 from __future__ import annotations
@@ -24,6 +25,8 @@ __all__ = ["load_model", "save_model"]
 _MODEL_KIND = "BarycenterGraphPredictor"
 # parameter names of earlier releases -> today's
 _RENAMED_PARAMS = {"verbose": "progress"}
+# parameters absent from earlier files -> the behaviour those files were written with
+_EARLIER_DEFAULTS = {"weight_model": "dense"}
 
 
 def _plain(value: Any) -> Any:
@@ -117,6 +120,7 @@ def load_model(path: StrPath) -> BarycenterGraphPredictor:
         )
     try:
         params = {_RENAMED_PARAMS.get(k, k): v for k, v in manifest["params"].items()}
+        params = {**_EARLIER_DEFAULTS, **params}
         known = BarycenterGraphPredictor().get_params()
         unknown = sorted(set(params) - set(known))
         if unknown:
