@@ -61,6 +61,7 @@ class _Names(Sequence):
 
 _KERNELS = _Names("weights", "KERNELS", extra=("precomputed",))
 _DECODERS = _Names("model.steps", "DECODERS")
+_WEIGHT_MODELS = _Names("model.estimator", "WEIGHT_MODELS")
 _SCORERS = _Names("ranking", "SCORERS")
 _OUTPUT_KERNELS = _Names("ranking", "OUTPUT_KERNELS")
 
@@ -75,6 +76,8 @@ def _model_params(args: argparse.Namespace) -> dict[str, Any]:
         "gamma": args.gamma,
         "ridge": args.ridge,
         "weighting": args.weighting,
+        "weight_model": args.weight_model,
+        "local_size": args.local_size,
         "top_k": args.top_k,
         "alpha": args.alpha,
         "decoding": args.decoding,
@@ -106,6 +109,12 @@ def _add_model_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--ridge", type=float, default=1e-3, help="kernel ridge regularisation (default: 1e-3)")
     g.add_argument("--weighting", default="ridge", choices=["ridge", "knn"],
                    help="weights over training graphs (default: ridge)")
+    g.add_argument("--weight-model", default="auto", choices=_WEIGHT_MODELS, metavar="MODEL",
+                   help="kernel ridge solve: %(choices)s; dense: one solve over all training inputs (memory "
+                        "grows as n^2), local: per input, a solve over its --local-size most similar training "
+                        "inputs (for large training sets), auto: dense up to 5,000 training inputs (default: auto)")
+    g.add_argument("--local-size", type=int, default=500,
+                   help="training inputs per local solve (default: 500)")
     g.add_argument("--top-k", type=int, default=10, help="training graphs per prediction (default: 10)")
     g.add_argument("--alpha", type=float, default=0.9,
                    help="FGW trade-off: 0 labels only, 1 structure only (default: 0.9)")
