@@ -163,21 +163,15 @@ def cluster(address: Any = None, *, n_workers: int | None = None, timeout: float
         try:
             with distributed.Client(local, set_as_default=False, timeout=timeout) as client:
                 _wait_for_workers(client, n, "the private cluster on 127.0.0.1", timeout)
-                token = _CLIENT.set(client)
-                try:
+                with _active(client):
                     yield client
-                finally:
-                    _CLIENT.reset(token)
         finally:
             local.close(timeout=timeout)
         return
     if isinstance(address, distributed.Client):
         _wait_for_workers(address, 1, f"the client's scheduler {address.scheduler.address!r}", timeout)
-        token = _CLIENT.set(address)
-        try:
+        with _active(address):
             yield address
-        finally:
-            _CLIENT.reset(token)
         return
     if not isinstance(address, str) or not address.strip():
         raise ValueError(
@@ -187,13 +181,20 @@ def cluster(address: Any = None, *, n_workers: int | None = None, timeout: float
     client = _connect(distributed, address, timeout)
     try:
         _wait_for_workers(client, 1, f"the scheduler at {address!r}", timeout)
-        token = _CLIENT.set(client)
-        try:
+        with _active(client):
             yield client
-        finally:
-            _CLIENT.reset(token)
     finally:
         client.close(timeout=timeout)
+
+
+@contextmanager
+def _active(client: Any) -> Iterator[None]:
+    """Send the parallel work inside the block to ``client``."""
+    token = _CLIENT.set(client)
+    try:
+        yield
+    finally:
+        _CLIENT.reset(token)
 
 
 def _check_address(distributed: Any, address: str) -> None:
