@@ -41,6 +41,8 @@ from numpy.typing import ArrayLike, NDArray
 __all__ = [
     "FGWResult",
     "BarycenterResult",
+    "BatchResult",
+    "fgw_barycenter_batch",
     "fgw_distance",
     "fgw_barycenter",
     "fgw_to_many",
@@ -266,10 +268,10 @@ def _cg_batch(
 ) -> tuple[Array, Array, NDArray[np.int64], NDArray[np.bool_]]:
     r"""Conditional gradient for S FGW problems sharing the first graph.
 
-    Shapes: ``M (S, n, m)``, ``C1 (n, n)``, ``C2 (S, m, m)``, ``p (n,)``,
-    ``q (S, m)``, ``G (S, n, m)``; graph ``s`` uses its first ``sizes[s]``
-    columns (the rest have zero mass).  Returns plans, objective values,
-    iteration counts and convergence flags.
+    Shapes: ``M (S, n, m)``, ``C1 (n, n)`` shared or ``(S, n, n)`` one per
+    problem, ``C2 (S, m, m)``, ``p (n,)``, ``q (S, m)``, ``G (S, n, m)``; graph
+    ``s`` uses its first ``sizes[s]`` columns (the rest have zero mass).
+    Returns plans, objective values, iteration counts and convergence flags.
 
     With :math:`L(G) = c - 2 C_1 G C_2` (``c`` the marginal term of the square
     loss, Peyre et al. 2016, Prop. 1) the objective is
@@ -282,7 +284,9 @@ def _cg_batch(
     G = G.copy()
     # marginal term of the square loss, computed as POT's init_matrix does so
     # that the linear programs see the same numbers and break ties alike
-    constC = ((C1 * C1) @ p)[None, :, None] + np.matmul(q[:, None, :], np.swapaxes(C2 * C2, 1, 2))
+    stacked = C1.ndim == 3  # one first graph per problem (barycenters of several queries)
+    row = ((C1 * C1) @ p)[..., :, None]
+    constC = (row if stacked else row[None]) + np.matmul(q[:, None, :], np.swapaxes(C2 * C2, 1, 2))
     linM = (1.0 - alpha) * M
     twoC2 = 2.0 * C2
     CGC = C1 @ G @ twoC2
@@ -292,23 +296,24 @@ def _cg_batch(
     active = np.arange(S)
     target = np.zeros((S, n, m))
     # second marginals balanced once, rounded as ot.emd does
-    qs_bal = [q[s, : sizes[s]] * p.sum() / q[s, : sizes[s]].sum() for s in range(S)]
+    ks = sizes.tolist()
+    qs_bal = [q[s, :k] * p.sum() / q[s, :k].sum() for s, k in enumerate(ks)]
     lp = _emd_c if _emd_c is not None else None
     every = True  # all problems still active: plain views instead of fancy-index copies
     while active.size:
         sel = slice(None) if every else active
         # gradient (1-a) M + 2a (constC - 2 C1 G C2); one exact LP per problem
         grad = linM[sel] + alpha * (2.0 * (constC[sel] - CGC[sel]))
-        for j, s in enumerate(active):
-            k = sizes[s]
-            Mj = np.ascontiguousarray(grad[j, :, :k])
+        for j, s in enumerate(active.tolist()):
+            k = ks[s]
+            Mj = grad[j] if k == m else np.ascontiguousarray(grad[j, :, :k])
             if lp is not None:
                 target[s, :, :k] = lp(p, qs_bal[s], Mj, 100_000, 1, None, None)[0]
             else:  # pragma: no cover - depends on the POT version
                 target[s, :, :k] = _emd(p, qs_bal[s], Mj)
         Ga = G[sel]
         dG = target[sel] - Ga
-        dC = C1 @ dG @ twoC2[sel]
+        dC = (C1[sel] if stacked else C1) @ dG @ twoC2[sel]
         # exact line search on a t^2 + b t for every problem at once (Vayer et al.
         # 2019, Alg. 2); <constC, dG> vanishes because dG has zero marginals
         qa = -alpha * (dC * dG).sum((1, 2))
@@ -327,12 +332,12 @@ def _cg_batch(
         done[sel] = (delta < tol_abs) | ((scale > 0) & (delta < tol_rel * scale))
         keep = (~done[active]) & (n_iter[active] < max_iter)
         if keep.all():
-            CGC[sel] = C1 @ G[sel] @ twoC2[sel]
+            CGC[sel] = (C1[sel] if stacked else C1) @ G[sel] @ twoC2[sel]
             continue
         every = False
         active = active[keep]
         if active.size:
-            CGC[active] = C1 @ G[active] @ twoC2[active]
+            CGC[active] = (C1[active] if stacked else C1) @ G[active] @ twoC2[active]
     return G, cost, n_iter, done
 
 
@@ -547,7 +552,7 @@ def fgw_barycenter(
         )
     if not 0.0 <= alpha <= 1.0:
         raise ValueError(f"alpha must lie in [0, 1]; got {alpha}.")
-    w = w / w.sum()
+    w = _per_barycenter(w, np.zeros(w.shape[0], dtype=np.int64))
     Cs, Fs, qs, sizes = pad_graphs(structures, features, masses)
     C = np.array(init_structure, dtype=np.float64)
     F = np.array(init_features, dtype=np.float64)
@@ -562,38 +567,275 @@ def fgw_barycenter(
         if not np.all(np.isfinite(arr)):
             raise ValueError(f"{name} contains NaN or infinite values; clean the input first.")
     S = Cs.shape[0]
-    M = feature_costs(F, Fs)
-    T = _initial_plans(init_plans, h, qs, M, sizes)
-    if init_from is not None:
-        if not (0 <= init_from < S and sizes[init_from] == n):
-            raise ValueError(
-                f"init_from={init_from} must index an input graph with {n} nodes (the size of init_structure)."
-            )
-        T[init_from] = 0.0
-        T[init_from, :, :n] = np.diag(h)
+    if init_from is not None and not (0 <= init_from < S and sizes[init_from] == n):
+        raise ValueError(
+            f"init_from={init_from} must index an input graph with {n} nodes (the size of init_structure)."
+        )
+    T = _initial_plans(init_plans, h, qs, feature_costs(F, Fs), sizes)
+    batch = _barycenters(
+        Cs, Fs, qs, sizes, np.zeros(S, dtype=np.int64), w, C[None], F[None], h, T,
+        np.array([-1 if init_from is None else init_from]), alpha, max_outer, tol_outer, max_inner,
+        tol_inner, fixed_features, fixed_structure, int(restarts),
+    )
+    history = [float(v) for v in batch.history[: batch.n_outer[0], 0]]
+    return BarycenterResult(
+        batch.structures[0], batch.features[0], batch.plans, float(batch.objectives[0]),
+        int(batch.n_outer[0]), bool(batch.converged[0]), history,
+    )
+
+
+@dataclass(frozen=True)
+class BatchResult:
+    """Outcome of :func:`fgw_barycenter_batch` for ``Q`` barycenters of one size ``n``.
+
+    Attributes
+    ----------
+    structures : ndarray of shape (Q, n, n)
+    features : ndarray of shape (Q, n, d)
+    plans : ndarray of shape (P, n, m)
+        Final plan of every problem (barycenter ``owner[p]`` to input graph ``p``).
+    objectives : ndarray of shape (Q,)
+    n_outer : ndarray of shape (Q,)
+    converged : ndarray of shape (Q,)
+    history : ndarray of shape (max_outer, Q)
+        Objective after each outer iteration (NaN after a barycenter stopped).
+    """
+
+    structures: Array
+    features: Array
+    plans: Array
+    objectives: Array
+    n_outer: NDArray[np.int64]
+    converged: NDArray[np.bool_]
+    history: Array
+
+
+def _segments(owner: NDArray[np.int64]) -> NDArray[np.int64]:
+    """Start of each run of equal values in a sorted owner array."""
+    return np.flatnonzero(np.r_[True, owner[1:] != owner[:-1]])
+
+
+def _per_barycenter(w: Array, owner: NDArray[np.int64]) -> Array:
+    """Weights normalised to sum one per barycenter (one summation order for every batch)."""
+    return w / np.add.reduceat(w, _segments(owner))[owner]
+
+
+def _barycenters(
+    Cs: Array,
+    Fs: Array,
+    qs: Array,
+    sizes: NDArray[np.int64],
+    owner: NDArray[np.int64],
+    w: Array,
+    C: Array,
+    F: Array,
+    h: Array,
+    T: Array,
+    init_from: NDArray[np.int64],
+    alpha: float,
+    max_outer: int,
+    tol_outer: float,
+    max_inner: int,
+    tol_inner: float,
+    fixed_features: bool,
+    fixed_structure: bool,
+    restarts: int,
+) -> BatchResult:
+    """Outer loop of :func:`fgw_barycenter` for many barycenters at once (inputs checked)."""
+    Q, n = C.shape[0], C.shape[1]
+    C, F, T = C.copy(), F.copy(), T.copy()
+    for q, p in enumerate(init_from):
+        if p >= 0:  # the start graph's own plan: the identity coupling
+            T[p] = 0.0
+            T[p, :, :n] = np.diag(h)
+    M = feature_costs(F[owner], Fs)
     hh = np.outer(h, h)
     product = h[None, :, None] * qs[:, None, :]
-    history: list[float] = []
-    converged = False
-    objective = np.inf
-    it = 0
+    history = np.full((max(max_outer, 1), Q), np.nan)
+    objective = np.full(Q, np.inf)
+    n_outer = np.zeros(Q, dtype=np.int64)
+    converged = np.zeros(Q, dtype=bool)
+    live = np.ones(Q, dtype=bool)
     for it in range(1, max_outer + 1):
-        T, values, _, _ = _cg_batch(M, C, Cs, h, qs, T, alpha, max_inner, tol_inner, 0.0, sizes)
-        if 1 < it <= 1 + int(restarts):  # also solve from the product plan; keep the better
-            T2, values2, _, _ = _cg_batch(M, C, Cs, h, qs, product, alpha, max_inner, tol_inner, 0.0, sizes)
+        # the problems of the barycenters still moving, as whole contiguous runs
+        sel = np.flatnonzero(live[owner])
+        own = owner[sel]
+        starts = _segments(own)
+        qsel = own[starts]
+        Ts, values, _, _ = _cg_batch(
+            M[sel], C[own], Cs[sel], h, qs[sel], T[sel], alpha, max_inner, tol_inner, 0.0, sizes[sel]
+        )
+        if 1 < it <= 1 + restarts:  # also solve from the product plan; keep the better
+            T2, values2, _, _ = _cg_batch(
+                M[sel], C[own], Cs[sel], h, qs[sel], product[sel], alpha, max_inner, tol_inner, 0.0, sizes[sel]
+            )
             better = values2 < values
-            T[better], values[better] = T2[better], values2[better]
-        objective_prev, objective = objective, float(w @ values)
-        history.append(objective)
+            Ts[better], values[better] = T2[better], values2[better]
+        T[sel] = Ts
+        ws = w[sel]
+        previous = objective[qsel]
+        objective[qsel] = np.add.reduceat(ws * values, starts)
+        history[it - 1, qsel] = objective[qsel]
+        n_outer[qsel] = it
         if not fixed_features:
-            F = np.tensordot(w, T @ Fs, axes=1) / h[:, None]
-            M = feature_costs(F, Fs)
+            F[qsel] = np.add.reduceat(ws[:, None, None] * (Ts @ Fs[sel]), starts) / h[:, None]
+            M[sel] = feature_costs(F[own], Fs[sel])
         if not fixed_structure:
-            C = np.tensordot(w, T @ Cs @ np.swapaxes(T, 1, 2), axes=1) / hh
-        if objective_prev - objective <= tol_outer * max(abs(objective), 1e-12):
-            converged = True
+            TCT = Ts @ Cs[sel] @ np.swapaxes(Ts, 1, 2)
+            C[qsel] = np.add.reduceat(ws[:, None, None] * TCT, starts) / hh
+        done = previous - objective[qsel] <= tol_outer * np.maximum(np.abs(objective[qsel]), 1e-12)
+        converged[qsel[done]] = True
+        live[qsel[done]] = False
+        if not live.any():
             break
-    return BarycenterResult(C, F, T, objective, it, converged, history)
+    return BatchResult(C, F, T, objective, n_outer, converged, history)
+
+
+def fgw_barycenter_batch(
+    structures: ArrayLike,
+    features: ArrayLike,
+    masses: ArrayLike,
+    owner: ArrayLike,
+    weights: ArrayLike,
+    init_structures: ArrayLike,
+    init_features: ArrayLike,
+    *,
+    sizes: ArrayLike | None = None,
+    alpha: float = 0.5,
+    init_plans: str | None = "product",
+    init_from: ArrayLike | None = None,
+    max_outer: int = 10,
+    tol_outer: float = 1e-7,
+    max_inner: int = 10,
+    tol_inner: float = 1e-5,
+    fixed_features: bool = False,
+    fixed_structure: bool = False,
+    restarts: int = 2,
+) -> BatchResult:
+    r"""Many FGW barycenters of one size at once, each of its own weighted input graphs.
+
+    The same computation as :func:`fgw_barycenter` run for ``Q`` barycenters
+    together: every plan of every barycenter is one problem of a single
+    batched conditional-gradient solve, and the closed-form updates are
+    segment sums over each barycenter's problems, so that the per-step Python
+    cost is paid once per batch instead of once per barycenter.  A barycenter
+    stops when its own objective stops decreasing, as it would alone, and its
+    result is bitwise that of :func:`fgw_barycenter` on its own graphs padded
+    to the same size ``m``.
+
+    Parameters
+    ----------
+    structures : array-like of shape (P, m, m)
+        Input graphs of all barycenters, zero-padded (see :func:`pad_graphs`).
+    features : array-like of shape (P, m, d)
+    masses : array-like of shape (P, m)
+        Node masses, zero on padding; each row sums to one.
+    owner : array-like of int, shape (P,)
+        Barycenter of each input graph, non-decreasing, every one of
+        ``0..Q-1`` present.
+    weights : array-like of shape (P,)
+        Non-negative weights; normalised to sum one per barycenter.
+    init_structures : array-like of shape (Q, n, n)
+    init_features : array-like of shape (Q, n, d)
+        Starting barycenters (all of size ``n``, uniform masses).
+    sizes : array-like of int, shape (P,), default=None
+        Real nodes of each input graph (its first ones); None counts the
+        non-zero masses.
+    alpha, max_outer, tol_outer, max_inner, tol_inner, fixed_features, fixed_structure, restarts
+        As in :func:`fgw_barycenter`.
+    init_plans : {"product", "features"}, default="product"
+        First plans, as in :func:`fgw_barycenter`.
+    init_from : array-like of int, shape (Q,), default=None
+        Per barycenter, the input graph (a row of ``structures``) that its
+        start copies, or -1; see ``init_from`` of :func:`fgw_barycenter`.
+
+    Returns
+    -------
+    BatchResult
+
+    Raises
+    ------
+    ValueError
+        On inconsistent shapes, an owner array that is not sorted or skips a
+        barycenter, bad weights or non-finite values.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> C = np.array([[0.0, 1.0], [1.0, 0.0]]); F = np.eye(2)
+    >>> res = fgw_barycenter_batch([C, C, C], [F, F, F], np.full((3, 2), 0.5), [0, 0, 1],
+    ...                            [1.0, 1.0, 1.0], [C, C], [F, F])
+    >>> np.allclose(res.structures, C), res.objectives.round(8).tolist()
+    (True, [0.0, 0.0])
+    """
+    Cs = np.asarray(structures, dtype=np.float64)
+    Fs = np.asarray(features, dtype=np.float64)
+    qs = np.asarray(masses, dtype=np.float64)
+    own = np.asarray(owner)
+    w = np.asarray(weights, dtype=np.float64).ravel()
+    C = np.array(init_structures, dtype=np.float64)
+    F = np.array(init_features, dtype=np.float64)
+    if Cs.ndim != 3 or Fs.ndim != 3 or qs.ndim != 2:
+        raise ValueError("structures, features and masses must be (P, m, m), (P, m, d) and (P, m) arrays.")
+    P, m = Cs.shape[0], Cs.shape[1]
+    if P == 0 or Cs.shape != (P, m, m) or Fs.shape[:2] != (P, m) or qs.shape != (P, m):
+        raise ValueError(
+            f"structures, features and masses must describe the same P >= 1 padded graphs; got shapes "
+            f"{Cs.shape}, {Fs.shape} and {qs.shape}."
+        )
+    if C.ndim != 3 or C.shape[1] != C.shape[2] or F.shape != (C.shape[0], C.shape[1], Fs.shape[2]):
+        raise ValueError(
+            f"init_structures must be (Q, n, n) and init_features (Q, n, {Fs.shape[2]}); got "
+            f"{C.shape} and {F.shape}."
+        )
+    Q, n = C.shape[0], C.shape[1]
+    if own.shape != (P,) or not np.issubdtype(own.dtype, np.integer):
+        raise ValueError(f"owner must hold one integer per input graph ({P}); got shape {own.shape}.")
+    own = own.astype(np.int64)
+    if Q == 0 or np.any(np.diff(own) < 0) or own[0] != 0 or own[-1] != Q - 1 or np.any(np.diff(own) > 1):
+        raise ValueError(
+            f"owner must be sorted and name every barycenter 0..{Q - 1} at least once; "
+            "group the input graphs by barycenter."
+        )
+    if w.shape != (P,) or not np.all(np.isfinite(w)) or np.any(w < 0):
+        raise ValueError(f"weights must hold {P} finite, non-negative values.")
+    totals = np.add.reduceat(w, _segments(own))
+    if np.any(totals <= 0):
+        raise ValueError(
+            f"barycenter {int(np.flatnonzero(totals <= 0)[0])} has only zero weights; drop it or give "
+            "its graphs positive weights."
+        )
+    w = _per_barycenter(w, own)
+    if not 0.0 <= alpha <= 1.0:
+        raise ValueError(f"alpha must lie in [0, 1]; got {alpha}.")
+    for name, arr in (("structures", Cs), ("features", Fs), ("masses", qs), ("init_structures", C),
+                      ("init_features", F)):
+        if not np.all(np.isfinite(arr)):
+            raise ValueError(f"{name} contains NaN or infinite values; clean the input first.")
+    if np.any(qs < 0) or not np.allclose(qs.sum(1), 1.0):
+        raise ValueError("masses must be non-negative and each row must sum to one.")
+    k = (qs > 0).sum(1) if sizes is None else np.asarray(sizes, dtype=np.int64)
+    if k.shape != (P,) or np.any(k < 1) or np.any(k > m) or np.any(qs[np.arange(m)[None, :] >= k[:, None]] != 0):
+        raise ValueError("sizes must give each graph's real nodes (its first ones; zero mass after them).")
+    h = np.full(n, 1.0 / n)
+    start = np.full(Q, -1, dtype=np.int64) if init_from is None else np.asarray(init_from, dtype=np.int64)
+    if start.shape != (Q,) or any(p >= 0 and not (own[p] == q and k[p] == n) for q, p in enumerate(start)):
+        raise ValueError(
+            f"init_from must give, per barycenter, -1 or one of its own input graphs with {n} nodes."
+        )
+    if init_plans not in (None, "product", "features"):
+        raise ValueError(f"init_plans must be 'product', 'features' or None; got {init_plans!r}.")
+    if init_plans == "features":
+        T = np.zeros((P, n, m))
+        Mf = feature_costs(F[own], Fs)
+        for p in range(P):
+            T[p, :, : k[p]] = _emd(h, qs[p, : k[p]], Mf[p, :, : k[p]])
+    else:
+        T = h[None, :, None] * qs[:, None, :]
+    return _barycenters(
+        Cs, Fs, qs, k, own, w, C, F, h, T, start, alpha, int(max_outer), tol_outer, int(max_inner),
+        tol_inner, fixed_features, fixed_structure, int(restarts),
+    )
 
 
 def _initial_plans(

@@ -29,7 +29,7 @@ from joblib import Parallel, delayed, effective_n_jobs, parallel_backend
 
 from ._utils import Interval, Rule, progress_bar, require_extra
 
-__all__ = ["N_JOBS_RULE", "check_n_jobs", "cluster", "parallel_map"]
+__all__ = ["N_JOBS_RULE", "batch_slices", "check_n_jobs", "cluster", "parallel_map"]
 
 T = TypeVar("T")
 
@@ -351,6 +351,43 @@ def parallel_map(
                         out[i] = res
                         bar.update(1)
     return out
+
+
+def batch_slices(n_items: int, batch_size: int, n_jobs: int = 1) -> list[slice]:
+    """Cut ``n_items`` into consecutive batches for :func:`parallel_map`.
+
+    At most ``batch_size`` items per batch and, with several workers, at
+    least two batches per worker (so that every worker gets work and a slow
+    batch does not hold up the rest); one worker takes full batches.
+
+    Parameters
+    ----------
+    n_items : int
+    batch_size : int
+        Largest batch.
+    n_jobs : int, default=1
+        As in :func:`parallel_map`; inside :func:`cluster`, the cluster's
+        worker threads count.
+
+    Returns
+    -------
+    list of slice
+
+    Examples
+    --------
+    >>> batch_slices(10, 4)
+    [slice(0, 4, None), slice(4, 8, None), slice(8, 10, None)]
+    >>> len(batch_slices(1000, 256, n_jobs=2))
+    4
+    """
+    workers = 1
+    if check_n_jobs(n_jobs) != 1:
+        client = _CLIENT.get()
+        workers = sum(client.nthreads().values()) if client is not None else effective_n_jobs(n_jobs)
+    size = int(batch_size)
+    if workers > 1:
+        size = max(1, min(size, -(-n_items // (2 * workers))))
+    return [slice(i, min(i + size, n_items)) for i in range(0, n_items, size)]
 
 
 @contextmanager

@@ -521,6 +521,29 @@ def test_precomputed_kernel_of_wrong_shape():
         model.predict(K[:2, :5])
 
 
+def _as_data(graphs):
+    return [nx.node_link_data(g, edges="edges") for g in graphs]
+
+
+def test_batched_barycenters_equal_one_query_at_a_time():
+    # batch_size only changes how many queries share one batched solve; every prediction
+    # and soft barycenter must be what the query gives alone (bitwise for the soft
+    # barycenters), with plain decoding, valence repair and formulas (QM9 demo molecules)
+    X, graphs = load_demo()
+    fit = dict(top_k=8, valence=True)
+    one = BarycenterGraphPredictor(batch_size=1, **fit).fit(X[:300], graphs[:300])
+    many = BarycenterGraphPredictor(batch_size=7, **fit).fit(X[:300], graphs[:300])
+    queries, truth = X[300:340], graphs[300:340]
+    formulas = [None if i % 3 else "".join(sorted(d["label"] for _, d in g.nodes(data=True)))
+                for i, g in enumerate(truth)]
+    assert _as_data(one.predict(queries)) == _as_data(many.predict(queries))
+    assert _as_data(one.predict(queries, formulas)) == _as_data(many.predict(queries, formulas))
+    for a, b in zip(one.predict_barycenters(queries), many.predict_barycenters(queries)):
+        np.testing.assert_array_equal(a.structure, b.structure)
+        np.testing.assert_array_equal(a.edge_scores, b.edge_scores)
+        assert a.objective == b.objective and a.anchor == b.anchor
+
+
 def test_predict_on_two_workers_equals_one():
     # the per-query steps run in joblib worker processes (outside reference: joblib/loky);
     # the predictions on QM9 spectra must not depend on where they ran
@@ -600,6 +623,8 @@ def test_local_with_every_training_input_predicts_as_dense(demo, fitted, predict
         ({"local_size": 0}, r"local_size must be a positive integer; got 0\."),
         ({"local_size": 2.5}, r"local_size must be a positive integer; got 2\.5\."),
         ({"local_size": True}, r"local_size must be a positive integer; got True\."),
+        ({"batch_size": 0}, r"batch_size must be a positive integer; got 0\."),
+        ({"batch_size": 8.0}, r"batch_size must be a positive integer; got 8\.0\."),
     ],
 )
 def test_weight_model_parameter_checks(params, match):

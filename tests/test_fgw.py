@@ -30,6 +30,7 @@ import pytest
 
 from gwpred.datasets import load_demo
 from gwpred.fgw import (
+    fgw_barycenter_batch,
     _cg_batch,
     feature_costs,
     fgw_barycenter,
@@ -749,3 +750,90 @@ def test_fgw_to_many_matches_pot_from_the_product_plan():
         )
         assert v == pytest.approx(float(ref), abs=1e-6)
         _assert_marginals(T[:, : len(Cs_)], ot.unif(5), ot.unif(len(Cs_)))
+
+
+# --------------------------------------------------------------------------- many barycenters at once
+
+
+def _batch_inputs(rng, qm9_graphs, n_queries: int):
+    """Per query: 10 QM9 graphs, Dirichlet weights, a start graph of the weighted-median size."""
+    queries = []
+    for _ in range(n_queries):
+        idx = rng.choice(len(qm9_graphs), 10, replace=False)
+        Cs, Fs = (list(t) for t in zip(*[_graph_arrays(qm9_graphs[k]) for k in idx]))
+        w = rng.dirichlet(np.full(10, 0.5))
+        sizes = np.array([len(c) for c in Cs])
+        n = _weighted_median(sizes, w)
+        j = max((i for i in range(10) if sizes[i] == n), key=lambda i: w[i])
+        queries.append((Cs, Fs, w, j))
+    return queries
+
+
+@pytest.mark.parametrize("restarts, init_plans", [(0, "features"), (2, "product")])
+def test_batch_equals_one_barycenter_at_a_time(qm9_graphs, restarts, init_plans):
+    # fgw_barycenter_batch must give, for each barycenter, exactly what fgw_barycenter gives for
+    # it alone (same arithmetic, array for array); the one-at-a-time solver is itself checked
+    # against POT's fgw_barycenters above.
+    rng = np.random.default_rng(11)
+    queries = _batch_inputs(rng, qm9_graphs, 30)
+    # one batch holds barycenters of one size n whose inputs pad to one size m: take n = m = 9
+    queries = [q for q in queries if len(q[0][q[3]]) == 9 and max(len(c) for c in q[0]) == 9][:12]
+    assert len(queries) >= 5
+    alone = [
+        fgw_barycenter(Cs, Fs, w, Cs[j], Fs[j], alpha=0.9, init_plans=init_plans, init_from=j,
+                       restarts=restarts, max_outer=5, max_inner=100, tol_outer=1e-6, tol_inner=1e-6)
+        for Cs, Fs, w, j in queries
+    ]
+    C, F, q, sizes = pad_graphs([c for Cs, *_ in queries for c in Cs], [f for _, Fs, *_ in queries for f in Fs])
+    owner = np.repeat(np.arange(len(queries)), 10)
+    res = fgw_barycenter_batch(
+        C, F, q, owner, np.concatenate([w for *_, w, _ in queries]),
+        np.stack([Cs[j] for Cs, _, _, j in queries]), np.stack([Fs[j] for _, Fs, _, j in queries]),
+        sizes=sizes, alpha=0.9, init_plans=init_plans, init_from=[10 * i + j for i, (*_, j) in enumerate(queries)],
+        restarts=restarts, max_outer=5, max_inner=100, tol_outer=1e-6, tol_inner=1e-6,
+    )
+    for i, one in enumerate(alone):
+        np.testing.assert_array_equal(res.structures[i], one.structure)
+        np.testing.assert_array_equal(res.features[i], one.features)
+        np.testing.assert_array_equal(res.plans[10 * i : 10 * i + 10, :, : one.plans.shape[2]], one.plans)
+        assert res.objectives[i] == one.objective and res.n_outer[i] == one.n_outer
+        assert bool(res.converged[i]) == one.converged
+
+
+def test_batch_barycenters_stop_on_their_own():
+    # a barycenter whose inputs all equal its start stops after two outer iterations (no
+    # decrease), whatever the others in its batch do
+    rng = np.random.default_rng(3)
+    C = _structure(rng, 5, "sym")
+    F = _features(rng, 5, "onehot")
+    others = [_structure(rng, 5, "sym") for _ in range(3)]
+    Cs = np.stack([C, C, *others])
+    Fs = np.stack([F, F, *[_features(rng, 5, "onehot") for _ in range(3)]])
+    res = fgw_barycenter_batch(Cs, Fs, np.full((5, 5), 0.2), [0, 0, 1, 1, 1], np.ones(5),
+                               np.stack([C, others[0]]), np.stack([F, Fs[2]]), alpha=0.5, max_outer=8)
+    assert res.n_outer[0] == 2 and res.converged[0]
+    np.testing.assert_allclose(res.structures[0], C, atol=1e-12)
+    assert np.isnan(res.history[2:, 0]).all() and np.isfinite(res.history[: res.n_outer[1], 1]).all()
+
+
+@pytest.mark.parametrize(
+    "change, match",
+    [
+        ({"owner": [0, 1, 0]}, r"owner must be sorted and name every barycenter 0\.\.1"),
+        ({"owner": [0, 0, 2]}, r"owner must be sorted and name every barycenter"),
+        ({"weights": [1.0, 1.0, 0.0]}, r"barycenter 1 has only zero weights"),
+        ({"weights": [1.0, np.nan, 1.0]}, r"weights must hold 3 finite, non-negative values"),
+        ({"masses": np.full((3, 2), 0.4)}, r"each row must sum to one"),
+        ({"init_from": [1, 0]}, r"init_from must give, per barycenter, -1 or one of its own input graphs"),
+        ({"init_plans": "identity"}, r"init_plans must be 'product', 'features' or None"),
+        ({"init_features": np.ones((2, 2, 3))}, r"init_features \(Q, n, 2\)"),
+    ],
+)
+def test_batch_errors(change, match):
+    C = np.array([[0.0, 1.0], [1.0, 0.0]])
+    F = np.eye(2)
+    kwargs = dict(structures=[C, C, C], features=[F, F, F], masses=np.full((3, 2), 0.5), owner=[0, 0, 1],
+                  weights=[1.0, 1.0, 1.0], init_structures=[C, C], init_features=[F, F])
+    kwargs.update(change)
+    with pytest.raises(ValueError, match=match):
+        fgw_barycenter_batch(**kwargs)

@@ -19,7 +19,7 @@ import pytest
 from gwpred import BarycenterGraphPredictor
 from gwpred.datasets import load_demo
 from gwpred.metrics import summarize
-from gwpred.parallel import check_n_jobs, cluster, parallel_map
+from gwpred.parallel import batch_slices, check_n_jobs, cluster, parallel_map
 
 NO_DISTRIBUTED = "Dask distributed is not installed (pip install 'gwpred[distributed]')"
 #: seconds allowed for the test cluster to start, stop, or answer
@@ -236,3 +236,13 @@ def test_cluster_rejects_bad_arguments(kwargs, match):
     with pytest.raises(ValueError, match=match):
         with cluster(**kwargs):
             pass
+
+
+def test_batch_slices_cover_the_items_in_order():
+    # a partition of range(n) into consecutive runs (checked against Python's own range)
+    for n, size, jobs in [(0, 4, 1), (10, 4, 1), (1000, 256, 2), (5, 256, 2), (7, 1, 2)]:
+        parts = batch_slices(n, size, jobs)
+        assert [i for s in parts for i in range(n)[s]] == list(range(n))
+        assert all(0 < s.stop - s.start <= size for s in parts)
+    assert len(batch_slices(1000, 256, 1)) == 4 and len(batch_slices(1000, 256, 2)) == 4
+    assert len(batch_slices(100, 256, 2)) == 4  # two per worker: every worker gets work

@@ -22,17 +22,17 @@ from sklearn.utils.validation import check_is_fitted
 from .._utils import Interval, Options, Rule, Types, check_inputs, validate_params
 from ..codec import LabelSpace, TrainingSet
 from ..ged import edit_distance
-from ..parallel import N_JOBS_RULE, parallel_map
+from ..parallel import N_JOBS_RULE, batch_slices, parallel_map
 from ..ranking import rank_candidates
 from ..weights import KERNELS, KernelRidgeWeights, LocalRidgeWeights
 from .steps import (
     DECODERS,
     Settings,
     SoftGraph,
-    barycenter_query,
+    barycenter_batch,
     neighbourhood,
     parse_formulas,
-    predict_query,
+    predict_batch,
     valence_arrays,
 )
 
@@ -134,6 +134,12 @@ class BarycenterGraphPredictor(BaseEstimator):
         ``weight_model_``.
     local_size : int, default=500
         Training inputs per local solve (``weight_model="local"``).
+    batch_size : int, default=256
+        Queries whose barycenters are solved together
+        (:func:`gwpred.fgw.fgw_barycenter_batch`): the per-step Python cost is
+        paid once per batch.  A batch is also the unit of work of ``n_jobs``
+        workers.  ``1`` solves one query at a time; the predictions are the
+        same (``benchmarks/bench_batch.py``).
 
     Attributes
     ----------
@@ -173,6 +179,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         "top_k": _POSITIVE_INT,
         "weight_model": Rule(Options(WEIGHT_MODELS)),
         "local_size": _POSITIVE_INT,
+        "batch_size": _POSITIVE_INT,
         "alpha": Rule(Interval(0.0, 1.0)),
         "n_nodes": Rule(Options(("vote",)), Interval(1, np.inf, integer=True)),
         "max_outer": _POSITIVE_INT,
@@ -213,6 +220,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         n_jobs: int = 1,
         weight_model: str = "auto",
         local_size: int = 500,
+        batch_size: int = 256,
     ) -> None:
         self.kernel = kernel
         self.gamma = gamma
@@ -237,6 +245,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         self.n_jobs = n_jobs
         self.weight_model = weight_model
         self.local_size = local_size
+        self.batch_size = batch_size
 
     # ----------------------------------------------------------------- fit
     def fit(self, X: ArrayLike, graphs: list[nx.Graph]) -> BarycenterGraphPredictor:
@@ -386,13 +395,18 @@ class BarycenterGraphPredictor(BaseEstimator):
         )
 
     def _map(self, step: Any, X: ArrayLike, formulas: Any, decode: bool) -> list:
-        """Run one per-query step over the inputs (in order, through the parallel seam)."""
+        """Run one batched step over the inputs, ``batch_size`` queries per task, in order."""
         idx, w = self.neighbors(X)
         parsed = parse_formulas(formulas, len(idx), self.labels_.node_labels_)
         # valence tables are needed (and checked) only to decode molecules
         settings = self._settings(decode and (bool(self.valence) or any(f is not None for f in parsed)))
-        tasks = [(neighbourhood(self.training_, i, ww), settings, f) for i, ww, f in zip(idx, w, parsed)]
-        return parallel_map(step, tasks, n_jobs=self.n_jobs, progress=self.progress, desc="barycenters", unit="graph")
+        hoods = [neighbourhood(self.training_, i, ww) for i, ww in zip(idx, w)]
+        tasks = [(hoods[b], parsed[b]) for b in batch_slices(len(hoods), self.batch_size, self.n_jobs)]
+        done = parallel_map(
+            step, tasks, n_jobs=self.n_jobs, progress=self.progress, desc="barycenters", unit="batch",
+            shared={"settings": settings},
+        )
+        return [item for batch in done for item in batch]
 
     def predict_barycenters(self, X: ArrayLike, formulas: Any = None) -> list[SoftGraph]:
         """Soft barycenters for new inputs, before decoding (for inspection).
@@ -408,7 +422,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         -------
         list of SoftGraph
         """
-        return self._map(barycenter_query, X, formulas, decode=False)
+        return self._map(barycenter_batch, X, formulas, decode=False)
 
     def predict(self, X: ArrayLike, formulas: Any = None) -> list[nx.Graph]:
         """Predict one labeled graph per input row.
@@ -438,7 +452,7 @@ class BarycenterGraphPredictor(BaseEstimator):
             that cannot be read, holds elements unseen in training, or that
             no connected molecule of its atoms can have.
         """
-        return self._map(predict_query, X, formulas, decode=True)
+        return self._map(predict_batch, X, formulas, decode=True)
 
     def score(self, X: ArrayLike, graphs: list[nx.Graph]) -> float:
         """Negative mean graph edit distance to the true graphs (higher is better).

@@ -8,7 +8,8 @@ For one input, given its kept training graphs and their weights (a
 2. :func:`choose_start` picks the start graph (the *anchor*: the
    highest-weight kept graph of that size);
 3. :func:`solve_barycenter` runs the FGW barycenter from it
-   (:func:`gwpred.fgw.fgw_barycenter`) and averages the edge-label channels;
+   (:func:`gwpred.fgw.fgw_barycenter_batch`, many queries at once) and averages
+   the edge-label channels;
 4. :func:`decode_query` decodes the soft barycenter with the decoder named in
    :data:`DECODERS`, then, for molecules, repairs it into a valid one or
    decodes the formula's graph (:func:`gwpred.decode.decode_valence`).
@@ -38,7 +39,7 @@ from ..decode import (
     edge_budget,
     weighted_median,
 )
-from ..fgw import fgw_barycenter, transport_average
+from ..fgw import fgw_barycenter_batch, pad_graphs, transport_average
 from ..formula import Formula, bond_total, label_counts, parse_formula, valence_table
 
 __all__ = [
@@ -46,6 +47,7 @@ __all__ = [
     "Neighbourhood",
     "Settings",
     "SoftGraph",
+    "barycenter_batch",
     "barycenter_query",
     "bond_orders",
     "choose_size",
@@ -54,8 +56,10 @@ __all__ = [
     "formula_counts",
     "neighbourhood",
     "parse_formulas",
+    "predict_batch",
     "predict_query",
     "solve_barycenter",
+    "solve_barycenters",
     "valence_arrays",
 ]
 
@@ -290,6 +294,95 @@ def choose_start(hood: Neighbourhood, n: int) -> int:
     return int(same[0]) if same.size else int(np.argmin(np.abs(hood.sizes - n)))
 
 
+def _start(hood: Neighbourhood, settings: Settings, counts: NDArray[np.int64] | None) -> tuple:
+    """Size, start position, start graph (structure, features, edge classes) of one query."""
+    n = choose_size(hood, settings.n_nodes, counts)
+    pos = choose_start(hood, n)
+    C0, F0 = hood.structures[pos], hood.features[pos]
+    L0 = hood.channels[pos].argmax(-1)
+    if C0.shape[0] != n:  # fixed size without a training graph of that size
+        reps = np.resize(np.arange(C0.shape[0]), n)
+        C0, F0, L0 = C0[np.ix_(reps, reps)], F0[reps], L0[np.ix_(reps, reps)]
+        np.fill_diagonal(C0, 0.0)
+    return n, pos, C0, F0, L0
+
+
+def solve_barycenters(
+    hoods: Sequence[Neighbourhood],
+    settings: Settings,
+    counts: Sequence[NDArray[np.int64] | None] | None = None,
+) -> list[SoftGraph]:
+    """The FGW barycenters of several queries, each started from its anchor, solved together.
+
+    Queries whose barycenters have the same size and whose kept graphs pad to
+    the same size form one batch of :func:`gwpred.fgw.fgw_barycenter_batch`:
+    the same arithmetic, array for array, as solving each query alone, with
+    the per-step Python cost paid once per batch.
+
+    Parameters
+    ----------
+    hoods : sequence of Neighbourhood
+    settings : Settings
+    counts : sequence of (ndarray of shape (n_node_labels,) or None), optional
+        Per query, heavy atoms per label of a known formula (fixes the size).
+
+    Returns
+    -------
+    list of SoftGraph
+        One per query, in order.
+    """
+    counts = [None] * len(hoods) if counts is None else list(counts)
+    starts = [_start(h, settings, c) for h, c in zip(hoods, counts)]
+    groups: dict[tuple[int, int], list[int]] = {}
+    for q, (hood, st) in enumerate(zip(hoods, starts)):
+        groups.setdefault((st[0], int(hood.sizes.max())), []).append(q)
+    out: list[SoftGraph | None] = [None] * len(hoods)
+    for (n, m), members in groups.items():
+        structures = [C for q in members for C in hoods[q].structures]
+        features = [F for q in members for F in hoods[q].features]
+        Cs, Fs, qs, sizes = pad_graphs(structures, features)
+        owner = np.repeat(np.arange(len(members)), [len(hoods[q].indices) for q in members])
+        offsets = np.r_[0, np.cumsum([len(hoods[q].indices) for q in members])]
+        init_from = [
+            int(offsets[j] + starts[q][1]) if hoods[q].sizes[starts[q][1]] == n else -1
+            for j, q in enumerate(members)
+        ]
+        res = fgw_barycenter_batch(
+            Cs,
+            Fs,
+            qs,
+            owner,
+            np.concatenate([hoods[q].weights for q in members]),
+            np.stack([starts[q][2] for q in members]),
+            np.stack([starts[q][3] for q in members]),
+            sizes=sizes,
+            alpha=settings.alpha,
+            init_plans="features",
+            init_from=init_from,
+            # anchored decoding needs the barycenter's nodes to stay the anchor's
+            # nodes: warm starts only (benchmarks/bench_decoding.py)
+            restarts=0 if settings.decoding == "anchored" else 2,
+            max_outer=settings.max_outer,
+            tol_outer=settings.tol,
+            max_inner=settings.max_inner,
+            tol_inner=settings.tol,
+        )
+        h = np.full(n, 1.0 / n)
+        for j, q in enumerate(members):
+            hood, (_, pos, C0, _, L0) = hoods[q], starts[q]
+            plans = res.plans[offsets[j] : offsets[j + 1]]
+            chans = np.zeros((len(hood.indices), m, m, settings.labels.n_edge_labels))
+            for s, E in enumerate(hood.channels):
+                k = E.shape[0]
+                chans[s, :k, :k] = E
+            E = transport_average(plans, chans, hood.weights, h)
+            out[q] = SoftGraph(
+                res.structures[j], res.features[j], E, hood.indices, hood.weights,
+                float(res.objectives[j]), int(hood.indices[pos]), C0, L0,
+            )
+    return out  # type: ignore[return-value]  # every position was filled
+
+
 def solve_barycenter(hood: Neighbourhood, settings: Settings, counts: NDArray[np.int64] | None = None) -> SoftGraph:
     """The FGW barycenter of one query's kept graphs, started from its anchor.
 
@@ -303,40 +396,9 @@ def solve_barycenter(hood: Neighbourhood, settings: Settings, counts: NDArray[np
     Returns
     -------
     SoftGraph
+        The same as :func:`solve_barycenters` gives for this query in any batch.
     """
-    n = choose_size(hood, settings.n_nodes, counts)
-    pos = choose_start(hood, n)
-    anchor = hood.indices[pos]
-    C0, F0 = hood.structures[pos], hood.features[pos]
-    L0 = hood.channels[pos].argmax(-1)
-    if C0.shape[0] != n:  # fixed size without a training graph of that size
-        reps = np.resize(np.arange(C0.shape[0]), n)
-        C0, F0, L0 = C0[np.ix_(reps, reps)], F0[reps], L0[np.ix_(reps, reps)]
-        np.fill_diagonal(C0, 0.0)
-    res = fgw_barycenter(
-        hood.structures,
-        hood.features,
-        hood.weights,
-        C0,
-        F0,
-        alpha=settings.alpha,
-        init_plans="features",
-        init_from=pos if hood.sizes[pos] == n else None,
-        # anchored decoding needs the barycenter's nodes to stay the anchor's
-        # nodes: warm starts only (benchmarks/bench_decoding.py)
-        restarts=0 if settings.decoding == "anchored" else 2,
-        max_outer=settings.max_outer,
-        tol_outer=settings.tol,
-        max_inner=settings.max_inner,
-        tol_inner=settings.tol,
-    )
-    m = int(hood.sizes.max())
-    chans = np.zeros((len(hood.indices), m, m, settings.labels.n_edge_labels))
-    for s, E in enumerate(hood.channels):
-        k = E.shape[0]
-        chans[s, :k, :k] = E
-    E = transport_average(res.plans, chans, hood.weights, np.full(n, 1.0 / n))
-    return SoftGraph(res.structure, res.features, E, hood.indices, hood.weights, res.objective, int(anchor), C0, L0)
+    return solve_barycenters([hood], settings, [counts])[0]
 
 
 # --------------------------------------------------------------------------- decoding
@@ -425,10 +487,24 @@ def formula_counts(formula: Formula | None, labels: LabelSpace) -> NDArray[np.in
 
 def predict_query(hood: Neighbourhood, settings: Settings, formula: Formula | None = None) -> nx.Graph:
     """One prediction: barycenter of the neighbourhood, then decoding."""
-    soft = solve_barycenter(hood, settings, formula_counts(formula, settings.labels))
-    return decode_query(soft, hood, settings, formula)
+    return predict_batch([hood], [formula], settings)[0]
 
 
 def barycenter_query(hood: Neighbourhood, settings: Settings, formula: Formula | None = None) -> SoftGraph:
     """One soft barycenter, not decoded."""
-    return solve_barycenter(hood, settings, formula_counts(formula, settings.labels))
+    return barycenter_batch([hood], [formula], settings)[0]
+
+
+def barycenter_batch(
+    hoods: Sequence[Neighbourhood], formulas: Sequence[Formula | None], settings: Settings
+) -> list[SoftGraph]:
+    """Soft barycenters of a batch of queries (:func:`solve_barycenters`), not decoded."""
+    return solve_barycenters(hoods, settings, [formula_counts(f, settings.labels) for f in formulas])
+
+
+def predict_batch(
+    hoods: Sequence[Neighbourhood], formulas: Sequence[Formula | None], settings: Settings
+) -> list[nx.Graph]:
+    """Predictions for a batch of queries: barycenters solved together, then decoded one by one."""
+    softs = barycenter_batch(hoods, formulas, settings)
+    return [decode_query(soft, hood, settings, f) for soft, hood, f in zip(softs, hoods, formulas)]
