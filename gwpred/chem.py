@@ -941,6 +941,21 @@ def _positive_int(name: str, value: Any, minimum: int) -> int:
     return int(value)
 
 
+def _fingerprint_dtype(dtype: Any) -> tuple[np.dtype[Any], float]:
+    """The dtype of a fingerprint array and the largest value it holds exactly."""
+    try:
+        dt = np.dtype(dtype)
+    except TypeError:
+        raise TypeError(f"dtype must be a numpy number dtype (e.g. np.uint8), got {dtype!r}") from None
+    if dt == np.bool_:
+        return dt, 1.0
+    if np.issubdtype(dt, np.integer):
+        return dt, float(np.iinfo(dt).max)
+    if np.issubdtype(dt, np.floating):
+        return dt, float(2 ** (np.finfo(dt).nmant + 1))  # integers are exact up to here
+    raise TypeError(f"dtype must be a bool, integer or float dtype (e.g. np.uint8), got {dt}")
+
+
 def _as_mol(item: Any, index: int) -> Any:
     if isinstance(item, str):
         Chem, _ = rdkit_modules()
@@ -966,7 +981,8 @@ def morgan_fingerprints(
     radius: int = 2,
     n_bits: int = 2048,
     counts: bool = False,
-) -> NDArray[np.float64]:
+    dtype: Any = np.float64,
+) -> NDArray[Any]:
     """Morgan (circular) fingerprints of molecules, one row per molecule.
 
     Parameters
@@ -981,10 +997,13 @@ def morgan_fingerprints(
         Length of the folded fingerprint (>= 1).
     counts : bool, default=False
         Count how often each bit is hit instead of setting it to 1.
+    dtype : numpy dtype, default=np.float64
+        Of the result: ``np.uint8`` (or ``bool``) holds bits in an eighth of
+        the memory of float64, ``np.uint16`` counts in a quarter.
 
     Returns
     -------
-    ndarray of shape (n_molecules, n_bits), dtype float64
+    ndarray of shape (n_molecules, n_bits), of ``dtype``
         Bits (0/1) or counts, as RDKit's Morgan generator
         (:func:`rdkit.Chem.rdFingerprintGenerator.GetMorganGenerator`) gives
         them with default atom invariants, no chirality.
@@ -993,10 +1012,11 @@ def morgan_fingerprints(
     ------
     TypeError
         If ``molecules`` is a single str, an item is neither a str nor a
-        networkx graph, or ``radius`` / ``n_bits`` is not an int.
+        networkx graph, ``radius`` / ``n_bits`` is not an int, or ``dtype``
+        is not a bool, integer or float dtype.
     ValueError
-        If ``radius < 0``, ``n_bits < 1`` or a molecule is rejected (the
-        message gives its index).
+        If ``radius < 0``, ``n_bits < 1``, a molecule is rejected (the
+        message gives its index), or a count does not fit ``dtype``.
     ImportError
         If RDKit is not installed.
 
@@ -1005,16 +1025,26 @@ def morgan_fingerprints(
     >>> X = morgan_fingerprints(["CCO", graph_from_smiles("CCO")], n_bits=64)
     >>> X.shape, bool((X[0] == X[1]).all())
     ((2, 64), True)
+    >>> morgan_fingerprints(["CCO"], n_bits=64, dtype=np.uint8).dtype
+    dtype('uint8')
     """
     if isinstance(molecules, str):
         raise TypeError("molecules must be a sequence of SMILES or graphs, not one str; wrap it: [smiles]")
     radius = _positive_int("radius", radius, 0)
     n_bits = _positive_int("n_bits", n_bits, 1)
+    dt, top = _fingerprint_dtype(dtype)
     rdFingerprintGenerator = require_extra("rdkit.Chem.rdFingerprintGenerator", "morgan_fingerprints")
 
     generator = rdFingerprintGenerator.GetMorganGenerator(radius=radius, fpSize=n_bits)
     fingerprint = generator.GetCountFingerprintAsNumPy if counts else generator.GetFingerprintAsNumPy
-    out = np.zeros((len(molecules), n_bits), dtype=np.float64)
+    check = counts and top < 2**32  # bits always fit; RDKit's counts are 32-bit
+    out = np.zeros((len(molecules), n_bits), dtype=dt)
     for i, item in enumerate(molecules):
-        out[i] = fingerprint(_as_mol(item, i))
+        row = fingerprint(_as_mol(item, i))
+        if check and row.max() > top:
+            raise ValueError(
+                f"molecules[{i}] has a fingerprint count of {int(row.max())}, more than dtype {dt} "
+                "holds; use a wider dtype (e.g. np.uint16 or np.float64)"
+            )
+        out[i] = row
     return out

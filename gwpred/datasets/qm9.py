@@ -23,6 +23,7 @@ import zipfile
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 import networkx as nx
 import numpy as np
@@ -76,8 +77,9 @@ class Qm9Data:
     Attributes
     ----------
     X : ndarray of shape (n, d) or None
-        Input features (broadened spectra or Morgan fingerprints), or None
-        when ``load_qm9(features=None)``.
+        Input features: broadened spectra (float64) or Morgan fingerprints
+        (``uint8`` bits or ``uint16`` counts), or None when
+        ``load_qm9(features=None)``.
     graphs : list of networkx.Graph
         Heavy-atom graphs: node ``label`` element symbol (str), node
         ``charge`` formal charge (int), edge ``label`` bond order 1, 2 or 3
@@ -100,7 +102,7 @@ class Qm9Data:
         Number of rows in the source CSV files.
     """
 
-    X: NDArray[np.float64] | None
+    X: NDArray[Any] | None
     graphs: list[nx.Graph]
     smiles: list[str]
     formulas: list[str]
@@ -683,9 +685,11 @@ def load_qm9(
         by :func:`broadened_spectra` (unit-height lines, L2-normalised rows;
         same defaults as :func:`load_demo`); ``"fingerprint"``, Morgan
         fingerprints from :func:`gwpred.chem.morgan_fingerprints` of the
-        QM9 SMILES (about 20 s and, as float64, 2.1 GB for all molecules
-        with 2048 bits: narrow ``max_heavy`` or load ``features=None`` and
-        compute them for a subset); None, no features (``X`` is None).
+        QM9 SMILES, ``np.uint8`` bits (0/1) or ``np.uint16`` counts (about
+        20 s; bits of all molecules take about 270 MB at 2048 bits, counts
+        twice that; ``X.astype(float)`` would take 2.1 GB: gwpred's
+        estimator and kernels accept the integer array as it is); None, no
+        features (``X`` is None).
         Spectra of all molecules take about 380 MB.
     max_heavy, min_heavy : int, default=9 and 1
         Keep molecules with ``min_heavy <= heavy atoms <= max_heavy``
@@ -782,7 +786,11 @@ def load_qm9(
         # From the SMILES: four times faster than from the graphs, same values (checked
         # on every 5th QM9 molecule, count fingerprints of radius 2).
         X = morgan_fingerprints(
-            smiles, radius=fingerprint_radius, n_bits=fingerprint_bits, counts=fingerprint_counts
+            smiles,
+            radius=fingerprint_radius,
+            n_bits=fingerprint_bits,
+            counts=fingerprint_counts,
+            dtype=np.uint16 if fingerprint_counts else np.uint8,
         )
     else:
         X = None

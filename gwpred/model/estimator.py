@@ -254,7 +254,9 @@ class BarycenterGraphPredictor(BaseEstimator):
         Parameters
         ----------
         X : array-like of shape (n_samples, n_features), or (n_samples, n_samples) with ``kernel="precomputed"``
-            Training inputs.
+            Training inputs.  Bool and integer arrays are not copied to
+            float64: ``uint8`` 0/1 fingerprints with ``weight_model="local"``
+            and ``kernel="tanimoto"`` are held as sparse rows.
         graphs : list of networkx.Graph of length n_samples
             Training graphs (undirected, simple, at least one node, every node labeled).
 
@@ -275,7 +277,7 @@ class BarycenterGraphPredictor(BaseEstimator):
             For graphs that are not simple undirected networkx graphs.
         """
         validate_params(self.get_params(deep=False), self._parameter_rules)
-        X = check_inputs(X)
+        X = check_inputs(X, compact=True)  # bool/integer inputs (e.g. uint8 fingerprints) stay compact
         graphs = list(graphs) if not isinstance(graphs, nx.Graph) else [graphs]
         if len(graphs) != X.shape[0]:
             raise ValueError(
@@ -293,7 +295,9 @@ class BarycenterGraphPredictor(BaseEstimator):
         Parameters
         ----------
         X : array-like of shape (n_samples, n_features), or (n_samples, n_samples) with ``kernel="precomputed"``
-            Training inputs.
+            Training inputs.  Bool and integer arrays are not copied to
+            float64: ``uint8`` 0/1 fingerprints with ``weight_model="local"``
+            and ``kernel="tanimoto"`` are held as sparse rows.
         training : TrainingSet
             The encoded training graphs, one per row of ``X``; its label space
             is kept as it is.
@@ -307,7 +311,7 @@ class BarycenterGraphPredictor(BaseEstimator):
             ``self``.
         """
         validate_params(self.get_params(deep=False), self._parameter_rules)
-        X = check_inputs(X)
+        X = check_inputs(X, compact=True)  # bool/integer inputs (e.g. uint8 fingerprints) stay compact
         if len(training) != X.shape[0]:
             raise ValueError(
                 f"X has {X.shape[0]} rows but the training set holds {len(training)} graphs; "

@@ -40,7 +40,10 @@ def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
     The archive holds the constructor parameters and label categories (JSON
     manifest), the training graphs as flat integer arrays, and the training
     inputs (or the training kernel matrix with ``kernel="precomputed"``);
-    kernel factorisations are recomputed on loading.
+    kernel factorisations are recomputed on loading.  Inputs are stored as
+    the weight model holds them: float64, or, for 0/1 inputs of a local
+    Tanimoto model, in the dtype given to ``fit`` (``uint8`` fingerprints
+    stay ``uint8``, an eighth of the size).
 
     Parameters
     ----------
