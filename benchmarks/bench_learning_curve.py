@@ -48,14 +48,12 @@ def _split(kind: str, size: int, n_test: int, seed: int) -> tuple:
     return data, train, test
 
 
-def _nearest(X_test: np.ndarray, X_train: np.ndarray, kernel: str, gamma: float, block: int = 128) -> np.ndarray:
-    from gwpred.weights import kernel_matrix
+def _nearest(X_test: np.ndarray, X_train: np.ndarray, kernel: str, gamma: float) -> np.ndarray:
+    """Most similar training input of each test input (ties: smaller index), by exact search in blocks."""
+    from gwpred.weights import LocalRidgeWeights
 
-    out = np.empty(len(X_test), dtype=np.int64)
-    for start in range(0, len(X_test), block):
-        K = kernel_matrix(X_test[start : start + block], X_train, kernel, gamma)
-        out[start : start + block] = K.argmax(1)
-    return out
+    search = LocalRidgeWeights(kernel, gamma, method="knn", local_size=1).fit(X_train)
+    return search.top_weights(X_test, 1)[0][:, 0]
 
 
 def run_one(kind: str, size: int, method: str, args: argparse.Namespace) -> dict:
