@@ -381,7 +381,10 @@ def cmd_rank(args: argparse.Namespace) -> int:
         raise UsageError(f"--k must be at least 1; got {args.k}.")
     if Path(args.out).suffix.lower() != ".jsonl":
         raise UsageError(f"--out must name a JSON Lines file ending in .jsonl; got {args.out}")
+    n_jobs = _n_jobs(args)
     model = load_model(args.model)
+    if n_jobs is not None:
+        model.set_params(n_jobs=n_jobs)
     X = read_features(args.features)
     library = CandidateLibrary(read_graphs(args.candidates))
     formulas = _formulas(args, X.shape[0])
@@ -550,6 +553,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--output-kernel", default="wl", choices=_OUTPUT_KERNELS, metavar="KERNEL",
                    help="%(choices)s. kernel scorer: Weisfeiler-Lehman subtree kernel, or Tanimoto on Morgan fingerprints "
                         "(molecules, needs gwpred[chem]) (default: wl)")
+    parallel(p, "the barycenters and FGW values of the fgw scorer", "the model's own, 1 unless set")
     common(p)
     p.set_defaults(func=cmd_rank)
 

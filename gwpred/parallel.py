@@ -277,6 +277,7 @@ def parallel_map(
     progress: bool = False,
     desc: str = "",
     unit: str = "it",
+    weights: Sequence[int] | None = None,
 ) -> list[T]:
     """``[fn(*task, **shared) for task in tasks]``, in task order, on ``n_jobs`` workers.
 
@@ -302,6 +303,9 @@ def parallel_map(
         cluster: as each batch of results comes back).
     desc, unit : str
         Label and unit of the progress bar.
+    weights : sequence of int, optional
+        Units of work in each task (e.g. the queries of a batch): the bar
+        counts these instead of tasks.
 
     Returns
     -------
@@ -323,11 +327,14 @@ def parallel_map(
     n_jobs = check_n_jobs(n_jobs)
     kwargs = _check_shared(shared)
     out: list[Any] = [None] * len(tasks)
-    with progress_bar(range(len(tasks)), progress=progress, total=len(tasks), desc=desc, unit=unit) as bar:
+    ticks = [1] * len(tasks) if weights is None else [int(w) for w in weights]
+    if len(ticks) != len(tasks):
+        raise ValueError(f"weights must give one number per task; got {len(ticks)} for {len(tasks)} tasks.")
+    with progress_bar(None, progress=progress, total=sum(ticks), desc=desc, unit=unit) as bar:
         if n_jobs == 1 or len(tasks) <= 1:
             for i, task in enumerate(tasks):
                 out[i] = fn(*task, **kwargs)
-                bar.update(1)
+                bar.update(ticks[i])
             return out
         client = _CLIENT.get()
         with _backend(client, kwargs):
@@ -338,7 +345,7 @@ def parallel_map(
                     delayed(_indexed)(fn, i, task, kwargs) for i, task in enumerate(tasks)
                 ):
                     out[i] = res
-                    bar.update(1)
+                    bar.update(ticks[i])
                 return out
             # older joblib: batches of a few items per worker, the bar ticks per batch
             size = 4 * effective_n_jobs(n_jobs)
@@ -349,7 +356,7 @@ def parallel_map(
                         for j, task in enumerate(tasks[start : start + size])
                     ):
                         out[i] = res
-                        bar.update(1)
+                        bar.update(ticks[i])
     return out
 
 

@@ -91,6 +91,7 @@ from .chem import graph_to_mol, morgan_fingerprints, rdkit_modules
 from .codec import LabelSpace, TrainingSet
 from .fgw import feature_costs, fgw_to_many, pad_graphs
 from .formula import Formula, parse_formula
+from .parallel import parallel_map
 from .wl import (
     IdGraph,
     LabelIds,
@@ -132,6 +133,7 @@ class FittedModel(Protocol):
     node_label: str
     edge_label: str | None
     progress: bool
+    n_jobs: int
 
     def neighbors(self, X: ArrayLike) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
         """Kept training graphs of each input and their weights (validates ``X``)."""
@@ -761,11 +763,15 @@ def _fgw_scores(job: _Job) -> Iterator[NDArray[np.float64]]:
     model, lib = job.model, job.problem.library
     softs = model.predict_barycenters(job.X, _barycenter_formulas(model, job.filter, len(job.X)))
     k = model.labels_.n_node_labels
+    tasks = []
     for soft, rows in zip(softs, job.problem.rows):
-        cands = candidate_fgw_arrays(lib, job.space, rows)
         F = np.concatenate([soft.node_scores[:, :k], np.zeros((len(soft.node_scores), 1))], 1)
         E = np.concatenate([soft.edge_scores, np.zeros(soft.edge_scores.shape[:2] + (1,))], 2)
-        yield _values(soft.structure, F, E, cands, model.alpha)
+        tasks.append((soft.structure, F, E, candidate_fgw_arrays(lib, job.space, rows), model.alpha))
+    if model.n_jobs == 1:  # one row at a time, so that the caller's progress bar moves
+        yield from (_values(*t) for t in tasks)
+    else:
+        yield from parallel_map(_values, tasks, n_jobs=model.n_jobs)
 
 
 def _objective_scores(job: _Job) -> Iterator[NDArray[np.float64]]:

@@ -26,6 +26,8 @@ from numpy.typing import ArrayLike, NDArray
 from scipy.linalg import cho_factor, cho_solve
 from threadpoolctl import threadpool_limits
 
+from ._utils import progress_bar
+
 __all__ = [
     "KERNELS",
     "kernel_matrix",
@@ -700,9 +702,10 @@ class LocalRidgeWeights:
 
     def _train_kernel(self, sel: NDArray[np.int64]) -> Array:
         """Kernel among the training inputs ``sel``, shape (len(sel), len(sel))."""
-        if self._bits:
+        if self._bits:  # sparse-by-sparse intersections: exact counts, half the time of sparse-by-dense
             rows = self._X_sparse[sel]
-            return _tanimoto_sparse(rows, self._X_sums[sel], rows.toarray(), self._X_sums[sel])
+            inter = (rows @ rows.T).toarray()
+            return _ratio_rows(inter, self._X_sums[sel], self._X_sums[sel])
         Xs = self._X[sel]
         return kernel_matrix(Xs, Xs, self.kernel, self.gamma_)
 
@@ -764,7 +767,7 @@ class LocalRidgeWeights:
         return np.vstack([self._local_rows(X[b]) for b in blocks])
 
     def top_weights(
-        self, X: ArrayLike, top_k: int | None = 10, *, negative: str = "clip"
+        self, X: ArrayLike, top_k: int | None = 10, *, negative: str = "clip", progress: bool = False
     ) -> tuple[NDArray[np.int64], Array]:
         """The ``top_k`` largest local weights per query, on the simplex, block by block.
 
@@ -777,6 +780,8 @@ class LocalRidgeWeights:
         top_k : int or None, default=10
         negative : {"clip", "shift"}, default="clip"
             See :func:`sparsify`.
+        progress : bool, default=False
+            Progress bar over the queries (a tick per block).
 
         Returns
         -------
@@ -788,5 +793,9 @@ class LocalRidgeWeights:
         X, blocks = self._blocks(X)
         if not blocks:
             return sparsify(np.zeros((0, self.n_train_)), top_k, negative=negative)
-        parts = [sparsify(self._local_rows(X[b]), top_k, negative=negative) for b in blocks]
+        parts = []
+        with progress_bar(None, progress=progress, total=len(X), desc="local weights", unit="query") as bar:
+            for b in blocks:
+                parts.append(sparsify(self._local_rows(X[b]), top_k, negative=negative))
+                bar.update(len(parts[-1][0]))
         return np.vstack([p[0] for p in parts]), np.vstack([p[1] for p in parts])

@@ -582,7 +582,7 @@ def free_loopback_port() -> int:
         return s.getsockname()[1]
 
 
-@pytest.mark.parametrize("command", ["predict", "evaluate", "demo"])
+@pytest.mark.parametrize("command", ["predict", "evaluate", "demo", "rank"])
 def test_parallel_options_in_help(capsys, command):
     with pytest.raises(SystemExit) as exc:
         main([command, "--help"])

@@ -246,3 +246,12 @@ def test_batch_slices_cover_the_items_in_order():
         assert all(0 < s.stop - s.start <= size for s in parts)
     assert len(batch_slices(1000, 256, 1)) == 4 and len(batch_slices(1000, 256, 2)) == 4
     assert len(batch_slices(100, 256, 2)) == 4  # two per worker: every worker gets work
+
+
+def test_progress_counts_the_work_in_each_task(capsys):
+    # the bar counts units of work (e.g. the queries of a batch), not tasks; tqdm's own
+    # "done/total" counter is the reference
+    assert parallel_map(pow, [(2,), (3,)], shared={"exp": 2}, progress=True, weights=[2, 3], unit="q") == [4, 9]
+    assert "5/5" in capsys.readouterr().err
+    with pytest.raises(ValueError, match=r"weights must give one number per task; got 1 for 2 tasks"):
+        parallel_map(pow, [(2,), (3,)], shared={"exp": 2}, weights=[1])

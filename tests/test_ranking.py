@@ -36,6 +36,7 @@ from networkx.algorithms.isomorphism import (
     categorical_edge_match,
     categorical_node_match,
 )
+from sklearn.base import clone
 from sklearn.exceptions import NotFittedError
 
 from gwpred import BarycenterGraphPredictor
@@ -675,3 +676,11 @@ def test_cli_compare_small_run(capsys, tmp_path):
 def test_cli_compare_rejects_negative_fgw_rows(capsys, tmp_path):
     assert main(["compare", "--fgw-rows", "-1", "--out", str(tmp_path / "x"), "-q"]) == 2
     assert "--fgw-rows must be 0 (all test inputs) or more" in capsys.readouterr().err
+
+
+def test_fgw_scorer_on_two_workers_equals_one(demo, model, cands):
+    # the FGW values of the fgw scorer run in joblib worker processes with n_jobs=2 (outside
+    # reference: joblib/loky); the ranked lists must not depend on where they ran
+    X = demo[0]
+    two = clone(model).set_params(n_jobs=2).fit(X[:N_TRAIN], demo[1][:N_TRAIN])
+    assert two.rank(X[QUERIES], cands, k=5, scorer="fgw") == model.rank(X[QUERIES], cands, k=5, scorer="fgw")

@@ -375,6 +375,8 @@ class BarycenterGraphPredictor(BaseEstimator):
                 f"X has {X.shape[1]} columns but the model was fitted with {expected}; "
                 "use the same features (or the kernel to the training items) as in fit."
             )
+        if self.weight_model_ == "local":  # the slow part at scale: show it
+            return self.weights_.top_weights(X, self.top_k, progress=self.progress)
         return self.weights_.top_weights(X, self.top_k)
 
     def _settings(self, need_valences: bool) -> Settings:
@@ -407,8 +409,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         hoods = [neighbourhood(self.training_, i, ww) for i, ww in zip(idx, w)]
         tasks = [(hoods[b], parsed[b]) for b in batch_slices(len(hoods), self.batch_size, self.n_jobs)]
         done = parallel_map(
-            step, tasks, n_jobs=self.n_jobs, progress=self.progress, desc="barycenters", unit="batch",
-            shared={"settings": settings},
+            step, tasks, n_jobs=self.n_jobs, progress=self.progress, desc="barycenters", unit="graph",
+            shared={"settings": settings}, weights=[len(t[0]) for t in tasks],
         )
         return [item for batch in done for item in batch]
 
