@@ -297,7 +297,14 @@ def _cg_batch(
     target = np.zeros((S, n, m))
     # second marginals balanced once, rounded as ot.emd does
     ks = sizes.tolist()
-    qs_bal = [q[s, :k] * p.sum() / q[s, :k].sum() for s, k in enumerate(ks)]
+    qs_bal: list[Array] = [q[0, :0]] * S
+    total = p.sum()
+    for k in set(ks):  # rows of one size at once: the same sums as row by row
+        rows = np.flatnonzero(sizes == k)
+        block = q[rows, :k]
+        block = block * total / block.sum(1)[:, None]
+        for j, s in enumerate(rows.tolist()):
+            qs_bal[s] = block[j]
     lp = _emd_c if _emd_c is not None else None
     every = True  # all problems still active: plain views instead of fancy-index copies
     while active.size:
