@@ -224,6 +224,16 @@ def _check_kernel_name(kernel: str, precomputed: bool = False) -> None:
 
 
 def _check_kernel_inputs(kernel: str, X: NDArray[Any]) -> None:
+    if np.issubdtype(X.dtype, np.floating) and X.size:
+        # squared norms overflow to inf long before the values do: every kernel would be NaN
+        with np.errstate(over="ignore"):
+            big = not all(np.isfinite(np.einsum("ij,ij->i", X[b], X[b])).all() for b in _row_blocks(len(X), X.shape[1]))
+        if big:
+            raise ValueError(
+                f"the inputs hold values so large (largest magnitude {np.abs(X).max():.3g}) that squared "
+                "norms overflow and every kernel value would be NaN; rescale the features (e.g. "
+                "standardise them) the same way for fit and predict."
+            )
     if kernel != "tanimoto" or X.dtype == np.bool_ or np.issubdtype(X.dtype, np.unsignedinteger):
         return
     # integers: min() makes no (n, d) temporary; floats may hold NaN, which min() would return
@@ -346,6 +356,28 @@ def sparsify(
     vals[dead, 0] = 1.0
     sums[dead] = 1.0
     return idx, vals / sums
+
+
+def _check_empty(empty: str) -> None:
+    if empty not in ("first", "error"):
+        raise ValueError(f"empty must be 'first' or 'error'; got {empty!r}.")
+
+
+def _empty_rows(W: Array) -> NDArray[np.int64]:
+    """Rows whose raw weights are all zero (every kernel value 0)."""
+    return np.flatnonzero(~np.any(W != 0, axis=1)) if W.shape[1] else np.zeros(0, dtype=np.int64)
+
+
+def _refuse_empty(rows: NDArray[np.int64]) -> None:
+    """Refuse inputs that no training graph can be weighted for, naming them."""
+    if rows.size:
+        shown = ", ".join(str(int(r)) for r in rows[:10]) + (", ..." if rows.size > 10 else "")
+        raise ValueError(
+            f"{rows.size} input row(s) ({shown}) are unlike every training input: all their kernel "
+            "values are 0, so no training graph can be weighted (features far outside the training "
+            "data, or a bandwidth gamma too small for their scale). Give them the same preprocessing "
+            "and units as the training inputs, or use a wider kernel (smaller gamma)."
+        )
 
 
 def _check_queries(X: ArrayLike, n_features: int) -> Array:
@@ -518,7 +550,7 @@ class KernelRidgeWeights:
         return cho_solve(self._factor, Kx.T, check_finite=False).T
 
     def top_weights(
-        self, X: ArrayLike, top_k: int | None = 10, *, negative: str = "clip"
+        self, X: ArrayLike, top_k: int | None = 10, *, negative: str = "clip", empty: str = "first"
     ) -> tuple[NDArray[np.int64], Array]:
         """The ``top_k`` largest weights of each query, on the simplex: ``sparsify(raw_weights(X))``.
 
@@ -528,13 +560,22 @@ class KernelRidgeWeights:
         top_k : int or None, default=10
         negative : {"clip", "shift"}, default="clip"
             See :func:`sparsify`.
+        empty : {"first", "error"}, default="first"
+            A row whose weights are all zero (every kernel value 0: an input
+            unlike all training inputs): ``first`` gives all the mass to the
+            first training item (as :func:`sparsify`), ``error`` raises a
+            ValueError naming the rows.
 
         Returns
         -------
         indices : ndarray of shape (n_queries, k)
         weights : ndarray of shape (n_queries, k)
         """
-        return sparsify(self.raw_weights(X), top_k, negative=negative)
+        _check_empty(empty)
+        W = self.raw_weights(X)
+        if empty == "error":
+            _refuse_empty(_empty_rows(W))
+        return sparsify(W, top_k, negative=negative)
 
 
 class LocalRidgeWeights:
@@ -767,7 +808,13 @@ class LocalRidgeWeights:
         return np.vstack([self._local_rows(X[b]) for b in blocks])
 
     def top_weights(
-        self, X: ArrayLike, top_k: int | None = 10, *, negative: str = "clip", progress: bool = False
+        self,
+        X: ArrayLike,
+        top_k: int | None = 10,
+        *,
+        negative: str = "clip",
+        progress: bool = False,
+        empty: str = "first",
     ) -> tuple[NDArray[np.int64], Array]:
         """The ``top_k`` largest local weights per query, on the simplex, block by block.
 
@@ -782,6 +829,8 @@ class LocalRidgeWeights:
             See :func:`sparsify`.
         progress : bool, default=False
             Progress bar over the queries (a tick per block).
+        empty : {"first", "error"}, default="first"
+            See :meth:`KernelRidgeWeights.top_weights`.
 
         Returns
         -------
@@ -790,12 +839,17 @@ class LocalRidgeWeights:
         weights : ndarray of shape (n_queries, k)
             Non-negative weights that sum to one per row.
         """
+        _check_empty(empty)
         X, blocks = self._blocks(X)
         if not blocks:
             return sparsify(np.zeros((0, self.n_train_)), top_k, negative=negative)
-        parts = []
+        parts, empty_rows = [], []
         with progress_bar(None, progress=progress, total=len(X), desc="local weights", unit="query") as bar:
             for b in blocks:
-                parts.append(sparsify(self._local_rows(X[b]), top_k, negative=negative))
+                W = self._local_rows(X[b])
+                empty_rows.append(_empty_rows(W) + b.start)
+                parts.append(sparsify(W, top_k, negative=negative))
                 bar.update(len(parts[-1][0]))
+        if empty == "error":
+            _refuse_empty(np.concatenate(empty_rows))
         return np.vstack([p[0] for p in parts]), np.vstack([p[1] for p in parts])

@@ -646,3 +646,26 @@ def test_local_weight_model_refuses_a_precomputed_kernel():
     assert not hasattr(est, "training_")  # refused before anything was stored
     model = BarycenterGraphPredictor(kernel="precomputed", top_k=1)
     assert model.fit(K, graphs).weight_model_ == "dense"
+
+
+@pytest.mark.parametrize("weight_model", ["dense", "local"])
+def test_inputs_unlike_every_training_input_are_refused(weight_model):
+    # features 30 times too large: every RBF value exp(-gamma d^2) underflows to 0.0 (IEEE 754
+    # double, the smallest subnormal is about 5e-324), so no training graph can be weighted;
+    # the rows are named instead of silently predicting training graph 0
+    X, graphs = load_demo()
+    model = BarycenterGraphPredictor(weight_model=weight_model, local_size=50).fit(X[:300], graphs[:300])
+    bad = X[300:306].copy()
+    bad[[1, 4]] *= 30
+    with pytest.raises(ValueError, match=r"2 input row\(s\) \(1, 4\) are unlike every training input: all their "
+                                         r"kernel values are 0"):
+        model.predict(bad)
+    assert len(model.predict(X[300:302])) == 2
+
+
+def test_inputs_whose_squares_overflow_are_refused_at_fit():
+    # 1e200 squared is beyond the largest double (about 1.8e308): the kernel would be NaN
+    X, graphs = load_demo()
+    with pytest.raises(ValueError, match=r"the inputs hold values so large \(largest magnitude 1e\+200\) that "
+                                         r"squared norms overflow"):
+        BarycenterGraphPredictor().fit(X[:50] / np.abs(X[:50]).max() * 1e200, graphs[:50])

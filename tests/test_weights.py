@@ -632,3 +632,16 @@ def test_local_ridge_not_positive_definite() -> None:
     X = np.array([[1.0], [2.0], [3.0]])
     with pytest.raises(ValueError, match=r"not positive definite; increase ridge \(now 0\)"):
         LocalRidgeWeights("linear", ridge=0, local_size=3).fit(X).raw_weights([[1.0]])
+
+
+def test_rows_with_only_zero_kernel_values_are_named_or_given_to_the_first_item():
+    # exp(-1 * 40^2) underflows to exactly 0.0 in IEEE 754 doubles: such a row has no weight at all
+    X = np.arange(6.0).reshape(-1, 1)
+    Q = np.array([[1.0], [45.0], [2.0], [50.0]])
+    for model in (KernelRidgeWeights(gamma=1.0).fit(X), LocalRidgeWeights(gamma=1.0, local_size=3, block_size=3).fit(X)):
+        idx, w = model.top_weights(Q, 2)  # default: the documented fallback of sparsify
+        assert idx[1].tolist() == [0, 1] and w[1].tolist() == [1.0, 0.0]
+        with pytest.raises(ValueError, match=r"2 input row\(s\) \(1, 3\) are unlike every training input"):
+            model.top_weights(Q, 2, empty="error")
+        with pytest.raises(ValueError, match=r"empty must be 'first' or 'error'; got 'skip'\."):
+            model.top_weights(Q, 2, empty="skip")

@@ -375,9 +375,10 @@ class BarycenterGraphPredictor(BaseEstimator):
                 f"X has {X.shape[1]} columns but the model was fitted with {expected}; "
                 "use the same features (or the kernel to the training items) as in fit."
             )
+        # an input unlike every training input (all kernel values 0) is an error, not graph 0
         if self.weight_model_ == "local":  # the slow part at scale: show it
-            return self.weights_.top_weights(X, self.top_k, progress=self.progress)
-        return self.weights_.top_weights(X, self.top_k)
+            return self.weights_.top_weights(X, self.top_k, progress=self.progress, empty="error")
+        return self.weights_.top_weights(X, self.top_k, empty="error")
 
     def _settings(self, need_valences: bool) -> Settings:
         valences = orders = None
