@@ -643,6 +643,12 @@ def decode_valence(
         bounds=Bounds(np.zeros(nv), upper),
         options={"time_limit": float(time_limit)},
     )
+    if res.x is None and res.status == 1:  # scipy's milp: time or iteration limit, no solution found
+        raise ValueError(
+            f"the valence integer program found no graph of {n} nodes within its time limit "
+            f"({float(time_limit):g} s); the constraints may still be satisfiable. Allow more time "
+            "(time_limit) or predict a smaller molecule."
+        )
     if res.x is None:
         raise ValueError(
             "no graph satisfies the valence constraints"

@@ -21,6 +21,7 @@ import networkx as nx
 from ._utils import require_extra
 
 __all__ = [
+    "MAX_FORMULA_ATOMS",
     "ELEMENTS",
     "Formula",
     "SYMBOLS",
@@ -35,6 +36,10 @@ __all__ = [
     "parse_formula",
     "valence_table",
 ]
+
+#: Most atoms a formula may hold (hydrogens included): far beyond any molecule whose graph
+#: gwpred can predict, and small enough that counts never overflow an array.
+MAX_FORMULA_ATOMS = 10_000
 
 # Periodic table symbols, Z = 1..118 (IUPAC).
 #: Element symbols in order of atomic number: ``SYMBOLS[Z - 1]``.
@@ -330,6 +335,12 @@ def parse_formula(text: str) -> Formula:
         raise ValueError(
             f"formula {text!r}: cannot read {s[pos:]!r}; write element symbols with counts only "
             "(e.g. 'C4H6O2'), without charges, dots or brackets."
+        )
+    total = sum(counts.values())
+    if total > MAX_FORMULA_ATOMS:
+        raise ValueError(
+            f"formula {text!r} has {total:,} atoms; gwpred reads formulas of at most "
+            f"{MAX_FORMULA_ATOMS:,} atoms."
         )
     hydrogens = counts.pop("H", None)
     if not counts:

@@ -192,3 +192,13 @@ def test_graph_formula_matches_rdkit(demo):
         expected = rdMolDescriptors.CalcMolFormula(Chem.MolFromSmiles(s))
         assert graph_formula(g) == expected, s
         assert formula_matches(g, expected)
+
+
+@pytest.mark.parametrize("text, shown", [("C1000000", "1,000,000"), ("C99999999999999999999", "99,999,999,999,999,999,999"),
+                                          ("C5000H5001", "10,001")])
+def test_absurdly_large_formulas_are_refused(text, shown):
+    # no molecule gwpred can predict has 10,000 atoms; counts beyond it used to reach numpy
+    # (a 7 TiB allocation, an OverflowError) instead of a message
+    with pytest.raises(ValueError, match=rf"formula '{text}' has {shown} atoms; gwpred reads formulas of at most 10,000 atoms\."):
+        parse_formula(text)
+    assert sum(parse_formula("C4000H6000").heavy.values()) == 4000  # the limit itself is accepted

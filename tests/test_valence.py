@@ -316,3 +316,30 @@ def test_valence_needs_bond_orders_and_elements():
     assert nx.is_connected(model.predict(X[:1])[0])
     with pytest.raises(TypeError, match="valence must be True, False or a dict"):
         BarycenterGraphPredictor(valence="yes").fit(X, [h, h, h])
+
+
+def test_time_limit_is_not_reported_as_an_impossible_formula():
+    # 60 carbons with total bond order 61: connected skeletons exist (e.g. a 60-ring with one
+    # double bond), but HiGHS cannot find one within a millisecond; the message must say that
+    # time ran out, not that no graph exists
+    rng = np.random.default_rng(0)
+    C = rng.random((60, 60))
+    C = (C + C.T) / 2
+    np.fill_diagonal(C, 0)
+    F = np.zeros((60, 4))
+    F[:, 0] = 1
+    E = np.repeat(C[:, :, None] / 3, 3, axis=2)
+    with pytest.raises(ValueError, match=r"the valence integer program found no graph of 60 nodes within its time "
+                                         r"limit \(0\.001 s\); the constraints may still be satisfiable"):
+        decode_valence(C, F, E, [4, 3, 2, 1], [1, 2, 3], label_counts=[60, 0, 0, 0], total_bond_order=61,
+                       time_limit=0.001)
+
+
+def test_formulas_far_larger_than_training_are_refused():
+    # the demo's molecules have at most 9 heavy atoms (QM9); C60H122 has 60
+    X, graphs = load_demo()
+    model = BarycenterGraphPredictor(top_k=5).fit(X[:200], graphs[:200])
+    limit = 4 * max(g.number_of_nodes() for g in graphs[:200])
+    with pytest.raises(ValueError, match=rf"formulas\[1\] \(C60H122\) has 60 heavy atoms, more than {limit} \(four "
+                                         r"times the largest training graph\)"):
+        model.predict(X[200:202], formulas=["C4H10", "C60H122"])

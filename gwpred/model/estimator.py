@@ -404,7 +404,7 @@ class BarycenterGraphPredictor(BaseEstimator):
     def _map(self, step: Any, X: ArrayLike, formulas: Any, decode: bool) -> list:
         """Run one batched step over the inputs, ``batch_size`` queries per task, in order."""
         idx, w = self.neighbors(X)
-        parsed = parse_formulas(formulas, len(idx), self.labels_.node_labels_)
+        parsed = parse_formulas(formulas, len(idx), self.labels_.node_labels_, 4 * int(self.sizes_.max()))
         # valence tables are needed (and checked) only to decode molecules
         settings = self._settings(decode and (bool(self.valence) or any(f is not None for f in parsed)))
         hoods = [neighbourhood(self.training_, i, ww) for i, ww in zip(idx, w)]

@@ -189,7 +189,9 @@ def neighbourhood(training: TrainingSet, indices: NDArray[np.int64], weights: ND
 # --------------------------------------------------------------------------- formulas and valences
 
 
-def parse_formulas(formulas: Any, n_rows: int, known: Sequence[Any]) -> list[Formula | None]:
+def parse_formulas(
+    formulas: Any, n_rows: int, known: Sequence[Any], max_heavy: int | None = None
+) -> list[Formula | None]:
     """Parse per-row formulas; check the length and that every element was seen in training.
 
     Parameters
@@ -199,6 +201,9 @@ def parse_formulas(formulas: Any, n_rows: int, known: Sequence[Any]) -> list[For
         Number of input rows.
     known : sequence
         Node labels seen in training.
+    max_heavy : int, optional
+        Most heavy atoms a formula may have (the estimator allows four times
+        its largest training graph).
 
     Returns
     -------
@@ -239,6 +244,13 @@ def parse_formulas(formulas: Any, n_rows: int, known: Sequence[Any]) -> list[For
             raise ValueError(
                 f"formulas[{r}] ({parsed.text}) holds {unknown}, never seen as a node label in "
                 f"training (known: {sorted(map(str, known_set))}); the model cannot place them."
+            )
+        n_heavy = sum(parsed.heavy.values())
+        if max_heavy is not None and n_heavy > max_heavy:
+            raise ValueError(
+                f"formulas[{r}] ({parsed.text}) has {n_heavy} heavy atoms, more than {max_heavy} (four "
+                f"times the largest training graph); a barycenter of training graphs cannot reach that "
+                "size meaningfully. Train on molecules of that size."
             )
         out.append(parsed)
     return out
