@@ -669,3 +669,37 @@ def test_inputs_whose_squares_overflow_are_refused_at_fit():
     with pytest.raises(ValueError, match=r"the inputs hold values so large \(largest magnitude 1e\+200\) that "
                                          r"squared norms overflow"):
         BarycenterGraphPredictor().fit(X[:50] / np.abs(X[:50]).max() * 1e200, graphs[:50])
+
+
+def test_predict_weighted_is_the_step_after_neighbors():
+    # predict(X) == predict_weighted(*neighbors(X)), on one process and on two workers (where the
+    # padded training graphs are sent once and the tasks carry only indices and weights)
+    X, graphs = load_demo()
+    model = BarycenterGraphPredictor(top_k=6, batch_size=5).fit(X[:300], graphs[:300])
+    queries = X[300:330]
+    expected = _as_data(model.predict(queries))
+    idx, w = model.neighbors(queries)
+    assert _as_data(model.predict_weighted(idx, w)) == expected
+    assert _as_data(model.set_params(n_jobs=2).predict_weighted(idx, 3 * w)) == _as_data(model.predict_weighted(idx, w))
+    # a hand-picked neighbourhood: training graph 7 alone is predicted as itself (anchored decoding
+    # keeps the anchor's edges unless the weighted graphs disagree; here there is nothing to disagree)
+    one = model.set_params(n_jobs=1).predict_weighted([[7, 8]], [[1.0, 0.0]])[0]
+    assert nx.is_isomorphic(one, graphs[7], node_match=categorical_node_match("label", None),
+                            edge_match=categorical_edge_match("label", None))
+
+
+@pytest.mark.parametrize(
+    "indices, weights, match",
+    [
+        ([[0, 1]], [[0.5]], r"indices must be integers and weights numbers, both of shape \(n_queries, k\)"),
+        ([[0.0, 1.0]], [[0.5, 0.5]], r"indices must be integers"),
+        ([[0, 300]], [[0.5, 0.5]], r"indices must lie in 0\.\.299 \(the training graphs\)\."),
+        ([[0, 1]], [[0.0, 0.0]], r"weights must be finite and non-negative with a positive entry in every row\."),
+        ([[0, 1]], [[-1.0, 2.0]], r"weights must be finite and non-negative"),
+    ],
+)
+def test_predict_weighted_errors(indices, weights, match):
+    X, graphs = load_demo()
+    model = BarycenterGraphPredictor(top_k=3).fit(X[:300], graphs[:300])
+    with pytest.raises(ValueError, match=match):
+        model.predict_weighted(indices, weights)

@@ -30,9 +30,12 @@ from .steps import (
     Settings,
     SoftGraph,
     barycenter_batch,
+    barycenter_rows,
     neighbourhood,
+    padded_graphs,
     parse_formulas,
     predict_batch,
+    predict_rows,
     valence_arrays,
 )
 
@@ -402,16 +405,36 @@ class BarycenterGraphPredictor(BaseEstimator):
         )
 
     def _map(self, step: Any, X: ArrayLike, formulas: Any, decode: bool) -> list:
-        """Run one batched step over the inputs, ``batch_size`` queries per task, in order."""
+        """Run one batched step over the inputs' neighbourhoods (see :meth:`_map_weighted`)."""
         idx, w = self.neighbors(X)
+        return self._map_weighted(step, idx, w, formulas, decode)
+
+    def _map_weighted(
+        self, step: Any, idx: NDArray[np.int64], w: NDArray[np.float64], formulas: Any, decode: bool
+    ) -> list:
+        """Run one batched step, ``batch_size`` queries per task, in order.
+
+        On one process the tasks carry the queries' neighbourhoods; on workers
+        they carry only training indices and weights, and the padded training
+        graphs go to each worker once (``shared``: memory-mapped by joblib,
+        scattered on a Dask cluster).
+        """
         parsed = parse_formulas(formulas, len(idx), self.labels_.node_labels_, 4 * int(self.sizes_.max()))
         # valence tables are needed (and checked) only to decode molecules
         settings = self._settings(decode and (bool(self.valence) or any(f is not None for f in parsed)))
-        hoods = [neighbourhood(self.training_, i, ww) for i, ww in zip(idx, w)]
-        tasks = [(hoods[b], parsed[b]) for b in batch_slices(len(hoods), self.batch_size, self.n_jobs)]
+        slices = batch_slices(len(idx), self.batch_size, self.n_jobs)
+        padded = padded_graphs(self.training_) if len(slices) > 1 and self.n_jobs != 1 else None
+        if padded is None:
+            hoods = [neighbourhood(self.training_, i, ww) for i, ww in zip(idx, w)]
+            tasks = [(hoods[b], parsed[b]) for b in slices]
+            shared: dict[str, Any] = {"settings": settings}
+        else:
+            step = {predict_batch: predict_rows, barycenter_batch: barycenter_rows}[step]
+            tasks = [(idx[b], w[b], parsed[b]) for b in slices]
+            shared = {"settings": settings, "padded": padded}
         done = parallel_map(
             step, tasks, n_jobs=self.n_jobs, progress=self.progress, desc="barycenters", unit="graph",
-            shared={"settings": settings}, weights=[len(t[0]) for t in tasks],
+            shared=shared, weights=[len(t[0]) for t in tasks],
         )
         return [item for batch in done for item in batch]
 
@@ -460,6 +483,54 @@ class BarycenterGraphPredictor(BaseEstimator):
             no connected molecule of its atoms can have.
         """
         return self._map(predict_batch, X, formulas, decode=True)
+
+    def predict_weighted(
+        self, indices: ArrayLike, weights: ArrayLike, formulas: Any = None
+    ) -> list[nx.Graph]:
+        """Predict from given training indices and barycentric weights instead of inputs.
+
+        The step after :meth:`neighbors`: ``predict(X)`` is
+        ``predict_weighted(*neighbors(X))``.  Use it with weights of your own
+        (another similarity, a hand-picked set of training graphs).
+
+        Parameters
+        ----------
+        indices : array-like of int, shape (n_queries, k)
+            Training indices per query.
+        weights : array-like of shape (n_queries, k)
+            Non-negative weights; zero entries are ignored, each row is
+            normalised to sum one and needs a positive entry.
+        formulas : list of (str or None), default=None
+            As in :meth:`predict`.
+
+        Returns
+        -------
+        list of networkx.Graph
+
+        Raises
+        ------
+        ValueError
+            For mismatched shapes, indices outside the training set, or
+            weights that are negative, not finite, or all zero in a row.
+        """
+        check_is_fitted(self, "weights_")
+        idx = np.asarray(indices)
+        w = np.asarray(weights, dtype=np.float64)
+        if idx.ndim != 2 or idx.shape != w.shape or idx.shape[0] == 0 or not np.issubdtype(idx.dtype, np.integer):
+            raise ValueError(
+                f"indices must be integers and weights numbers, both of shape (n_queries, k); got "
+                f"{idx.dtype} {idx.shape} and {w.shape}."
+            )
+        if idx.size and (idx.min() < 0 or idx.max() >= self.n_train_):
+            raise ValueError(f"indices must lie in 0..{self.n_train_ - 1} (the training graphs).")
+        if not np.all(np.isfinite(w)) or np.any(w < 0) or np.any(w.sum(1) <= 0):
+            raise ValueError("weights must be finite and non-negative with a positive entry in every row.")
+        order = np.argsort(-w, axis=1, kind="stable")  # by decreasing weight, as neighbors() gives them
+        idx = np.take_along_axis(idx.astype(np.int64), order, 1)
+        w = np.take_along_axis(w, order, 1)
+        sums = w.sum(1, keepdims=True)  # rows that already sum to one (as from neighbors) stay as they are
+        w = np.where(np.abs(sums - 1.0) <= 1e-12, w, w / sums)
+        return self._map_weighted(predict_batch, idx, w, formulas, decode=True)
 
     def score(self, X: ArrayLike, graphs: list[nx.Graph]) -> float:
         """Negative mean graph edit distance to the true graphs (higher is better).

@@ -45,19 +45,24 @@ from ..formula import Formula, bond_total, label_counts, parse_formula, valence_
 __all__ = [
     "DECODERS",
     "Neighbourhood",
+    "PaddedGraphs",
     "Settings",
     "SoftGraph",
     "barycenter_batch",
     "barycenter_query",
+    "barycenter_rows",
+    "gather",
     "bond_orders",
     "choose_size",
     "choose_start",
     "decode_query",
     "formula_counts",
     "neighbourhood",
+    "padded_graphs",
     "parse_formulas",
     "predict_batch",
     "predict_query",
+    "predict_rows",
     "solve_barycenter",
     "solve_barycenters",
     "valence_arrays",
@@ -183,6 +188,65 @@ def neighbourhood(training: TrainingSet, indices: NDArray[np.int64], weights: ND
         [training.channels[i] for i in idx],
         training.sizes[idx],
         training.n_edges[idx],
+    )
+
+
+@dataclass(frozen=True)
+class PaddedGraphs:
+    """Every training graph in zero-padded arrays, to send to workers once instead of per query.
+
+    Attributes
+    ----------
+    structures : ndarray of shape (n_train, m, m)
+    features : ndarray of shape (n_train, m, d)
+    channels : ndarray of shape (n_train, m, m, n_edge_labels)
+        Graph ``i`` in the first ``sizes[i]`` rows and columns, zeros elsewhere.
+    sizes, n_edges : ndarray of shape (n_train,)
+    """
+
+    structures: NDArray[np.float64]
+    features: NDArray[np.float64]
+    channels: NDArray[np.float64]
+    sizes: NDArray[np.int64]
+    n_edges: NDArray[np.int64]
+
+
+def padded_graphs(training: TrainingSet, max_padding: float = 4.0) -> PaddedGraphs | None:
+    """The training graphs as :class:`PaddedGraphs` (built once, kept in ``training.derived``).
+
+    Returns None when padding would take more than ``max_padding`` times
+    the graphs' own entries (a few large graphs among many small ones).
+    """
+    if "padded" in training.derived:
+        return training.derived["padded"]
+    sizes = training.sizes
+    m = int(sizes.max())
+    if len(sizes) * m * m > max_padding * float(np.sum(sizes.astype(np.float64) ** 2)):
+        return None
+    n, d, L = len(sizes), training.features[0].shape[1], training.channels[0].shape[2]
+    C, F, E = np.zeros((n, m, m)), np.zeros((n, m, d)), np.zeros((n, m, m, L))
+    for i, k in enumerate(sizes.tolist()):
+        C[i, :k, :k] = training.structures[i]
+        F[i, :k] = training.features[i]
+        E[i, :k, :k] = training.channels[i]
+    padded = PaddedGraphs(C, F, E, sizes, training.n_edges)
+    training.derived["padded"] = padded
+    return padded
+
+
+def gather(padded: PaddedGraphs, indices: NDArray[np.int64], weights: NDArray[np.float64]) -> Neighbourhood:
+    """:func:`neighbourhood` from padded arrays: the same values, as views."""
+    keep = weights > 0
+    idx, w = indices[keep], weights[keep]
+    ks = padded.sizes[idx].tolist()
+    return Neighbourhood(
+        idx,
+        w,
+        [padded.structures[i, :k, :k] for i, k in zip(idx.tolist(), ks)],
+        [padded.features[i, :k] for i, k in zip(idx.tolist(), ks)],
+        [padded.channels[i, :k, :k] for i, k in zip(idx.tolist(), ks)],
+        padded.sizes[idx],
+        padded.n_edges[idx],
     )
 
 
@@ -520,3 +584,25 @@ def predict_batch(
     """Predictions for a batch of queries: barycenters solved together, then decoded one by one."""
     softs = barycenter_batch(hoods, formulas, settings)
     return [decode_query(soft, hood, settings, f) for soft, hood, f in zip(softs, hoods, formulas)]
+
+
+def predict_rows(
+    indices: NDArray[np.int64],
+    weights: NDArray[np.float64],
+    formulas: Sequence[Formula | None],
+    settings: Settings,
+    padded: PaddedGraphs,
+) -> list[nx.Graph]:
+    """:func:`predict_batch` for rows of kept training indices and weights (a worker's task)."""
+    return predict_batch([gather(padded, i, w) for i, w in zip(indices, weights)], formulas, settings)
+
+
+def barycenter_rows(
+    indices: NDArray[np.int64],
+    weights: NDArray[np.float64],
+    formulas: Sequence[Formula | None],
+    settings: Settings,
+    padded: PaddedGraphs,
+) -> list[SoftGraph]:
+    """:func:`barycenter_batch` for rows of kept training indices and weights (a worker's task)."""
+    return barycenter_batch([gather(padded, i, w) for i, w in zip(indices, weights)], formulas, settings)
