@@ -70,6 +70,11 @@ def _emd(a: Array, b: Array, M: Array, max_iter: int = 100_000) -> Array:
     return ot.emd(a, b, M, numItermax=max_iter)  # pragma: no cover
 
 
+def _emd_plan(a: Array, b: Array, M: Array, max_iter: int, *_: object) -> tuple[Array]:  # pragma: no cover
+    """``ot.emd`` shaped like ``emd_c``'s result (POT versions without ``emd_c``)."""
+    return (_emd(a, b, M, max_iter),)
+
+
 def feature_costs(F1: ArrayLike, F2: ArrayLike) -> Array:
     """Squared Euclidean costs between node features.
 
@@ -305,7 +310,7 @@ def _cg_batch(
         block = block * total / block.sum(1)[:, None]
         for j, s in enumerate(rows.tolist()):
             qs_bal[s] = block[j]
-    lp = _emd_c if _emd_c is not None else None
+    lp = _emd_c if _emd_c is not None else _emd_plan
     every = True  # all problems still active: plain views instead of fancy-index copies
     while active.size:
         sel = slice(None) if every else active
@@ -313,11 +318,10 @@ def _cg_batch(
         grad = linM[sel] + alpha * (2.0 * (constC[sel] - CGC[sel]))
         for j, s in enumerate(active.tolist()):
             k = ks[s]
-            Mj = grad[j] if k == m else np.ascontiguousarray(grad[j, :, :k])
-            if lp is not None:
-                target[s, :, :k] = lp(p, qs_bal[s], Mj, 100_000, 1, None, None)[0]
-            else:  # pragma: no cover - depends on the POT version
-                target[s, :, :k] = _emd(p, qs_bal[s], Mj)
+            if k == m:  # the common case: no padding, a plain row of the stack
+                target[s] = lp(p, qs_bal[s], grad[j], 100_000, 1, None, None)[0]
+            else:
+                target[s, :, :k] = lp(p, qs_bal[s], np.ascontiguousarray(grad[j, :, :k]), 100_000, 1, None, None)[0]
         Ga = G[sel]
         dG = target[sel] - Ga
         dC = (C1[sel] if stacked else C1) @ dG @ twoC2[sel]
