@@ -190,11 +190,25 @@ def _on_scheduler(args: argparse.Namespace, stack: ExitStack) -> None:
           f"{t} thread{'s' * (t != 1)}")
 
 
+def _output_path(value: str, option: str, folder: bool = False) -> Path:
+    """Check an output location before any work: its parent folder must exist (no result lost late)."""
+    path = Path(value)
+    if not path.parent.is_dir():
+        raise UsageError(f"{option} {value}: folder {str(path.parent)!r} does not exist; create it first "
+                         "(checked before any work is done)")
+    if not folder and path.is_dir():
+        raise UsageError(f"{option} {value} is a folder; give a file name")
+    if folder and path.exists() and not path.is_dir():
+        raise UsageError(f"{option} {value} is a file; give a folder (it is created if missing)")
+    return path
+
+
 # ----------------------------------------------------------------- commands
 def cmd_fit(args: argparse.Namespace) -> int:
     from .io import read_features, read_graphs
     from .model import BarycenterGraphPredictor, save_model
 
+    _output_path(args.model, "--model")
     X = read_features(args.features)
     graphs = read_graphs(args.graphs)
     t0 = time.perf_counter()
@@ -207,10 +221,14 @@ def cmd_fit(args: argparse.Namespace) -> int:
 
 
 def cmd_predict(args: argparse.Namespace) -> int:
-    from .io import MOLECULE_EXTENSIONS, read_features, write_graphs
+    from .io import GRAPH_EXTENSIONS, MOLECULE_EXTENSIONS, read_features, write_graphs
     from .model import load_model
 
     n_jobs = _n_jobs(args)
+    out = _output_path(args.out, "--out")
+    if out.suffix.lower() not in GRAPH_EXTENSIONS:
+        raise UsageError(f"--out {args.out}: unsupported graph file extension '{out.suffix}'; use one of "
+                         f"{', '.join(GRAPH_EXTENSIONS)}")
     model = load_model(args.model)
     model.set_params(progress=not args.quiet)
     if n_jobs is not None:
@@ -233,6 +251,9 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
     from .metrics import summarize
 
     n_jobs = _n_jobs(args) or 1
+    for option, value in (("--summary", args.summary), ("--items", args.items)):
+        if value:
+            _output_path(value, option)
     pred = read_graphs(args.predicted)
     true = read_graphs(args.truth)
     if len(pred) != len(true):
@@ -269,8 +290,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
 
     t_start = time.perf_counter()
     n_jobs = _n_jobs(args) or 1
-    out = Path(args.out)
-    out.mkdir(parents=True, exist_ok=True)
+    out = _output_path(args.out, "--out", folder=True)
     X, graphs, smiles = load_demo(return_smiles=True)
     rng = np.random.default_rng(args.seed)
     perm = rng.permutation(len(graphs))
@@ -278,6 +298,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
         raise UsageError(f"--test-size must be between 1 and {len(graphs) - 1}; got {args.test_size}.")
     if args.show < 1:
         raise UsageError(f"--show must be at least 1 (rows in the PNG grid); got {args.show}.")
+    out.mkdir(exist_ok=True)  # only after the arguments passed: a refused run leaves no folder
     test, train = perm[: args.test_size], perm[args.test_size:]
     print(f"demo: spectrum -> heavy-atom skeleton, {len(train)} training and {len(test)} held-out "
           f"QM9 molecules (seed {args.seed})")
@@ -347,6 +368,7 @@ def cmd_report(args: argparse.Namespace) -> int:
     out = Path(args.out)
     if out.suffix.lower() not in (".html", ".htm"):
         raise UsageError(f"--out must name an HTML file ending in .html; got {args.out}")
+    _output_path(args.out, "--out")
     for name, value, least in (("--limit", args.limit, 1), ("--drawings", args.drawings, 0), ("--top", args.top, 0)):
         if value is not None and value < least:
             raise UsageError(f"{name} must be at least {least}; got {value}")
@@ -381,6 +403,7 @@ def cmd_rank(args: argparse.Namespace) -> int:
         raise UsageError(f"--k must be at least 1; got {args.k}.")
     if Path(args.out).suffix.lower() != ".jsonl":
         raise UsageError(f"--out must name a JSON Lines file ending in .jsonl; got {args.out}")
+    _output_path(args.out, "--out")
     n_jobs = _n_jobs(args)
     model = load_model(args.model)
     if n_jobs is not None:
@@ -410,8 +433,7 @@ def cmd_compare(args: argparse.Namespace) -> int:
 
     if args.fgw_rows < 0:
         raise UsageError(f"--fgw-rows must be 0 (all test inputs) or more; got {args.fgw_rows}.")
-    out = Path(args.out)
-    out.mkdir(parents=True, exist_ok=True)
+    out = _output_path(args.out, "--out", folder=True)
     X, graphs, kernel = load_comparison_data(args.data, progress=not args.quiet)
     train, test = split_indices(len(graphs), n_train=args.n_train, n_test=args.n_test, random_state=args.seed)
     params = _model_params(args)
@@ -424,6 +446,7 @@ def cmd_compare(args: argparse.Namespace) -> int:
                              progress=not args.quiet, data=args.data)
     table = comparison_table(result)
     print(table)
+    out.mkdir(exist_ok=True)  # only now: a run stopped by bad arguments leaves no folder behind
     atomic_write_text(out / "comparison.txt", table + "\n")
     summary = result.to_dict()
     summary["options"] = {k: v for k, v in vars(args).items() if k != "func"}

@@ -652,3 +652,31 @@ def test_predict_n_jobs_gives_the_same_graphs(capsys, tmp_path, files):
                            "--out", path, "--n-jobs", n_jobs, "-q")
         assert code == 0, err
     assert two.read_text() == one.read_text()
+
+
+@pytest.mark.parametrize("command", ["fit", "predict", "evaluate-summary", "evaluate-items", "rank", "report", "demo",
+                                     "compare"])
+def test_output_locations_are_checked_before_any_work(capsys, tmp_path, files, command):
+    # an output in a folder that does not exist is refused at once (exit 2), not after the work;
+    # demo and compare leave no folder behind
+    where = tmp_path / "nodir"
+    argv = {
+        "fit": ["fit", "--features", files["train_x"], "--graphs", files["train_gj"], "--model", where / "m.npz"],
+        "predict": ["predict", "--model", files["model"], "--features", files["test_x"], "--out", where / "p.jsonl"],
+        "evaluate-summary": ["evaluate", files["truth"], files["truth"], "--summary", where / "s.json"],
+        "evaluate-items": ["evaluate", files["truth"], files["truth"], "--items", where / "i.csv"],
+        "rank": ["rank", "--model", files["model"], "--features", files["test_x"], "--candidates", files["truth"],
+                 "--out", where / "r.jsonl"],
+        "report": ["report", files["truth"], "--out", where / "r.html"],
+        "demo": ["demo", "--out", where / "demo"],
+        "compare": ["compare", "--data", "demo", "--out", where / "cmp"],
+    }[command]
+    expect_usage_error(capsys, [*argv, "-q"], f"folder {str(where)!r} does not exist; create it first")
+    assert not where.exists()
+
+
+def test_demo_and_compare_leave_no_folder_when_refused(capsys, tmp_path):
+    expect_usage_error(capsys, ["demo", "--out", tmp_path / "d", "--test-size", "0", "-q"], "--test-size must be")
+    expect_usage_error(capsys, ["compare", "--data", "demo", "--out", tmp_path / "c", "--fgw-rows", "-1", "-q"],
+                       "--fgw-rows must be 0")
+    assert not (tmp_path / "d").exists() and not (tmp_path / "c").exists()
