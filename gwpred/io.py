@@ -27,6 +27,7 @@ import csv
 import hashlib
 import inspect
 import json
+import math
 import os
 import re
 import tokenize
@@ -158,6 +159,51 @@ def graph_to_json_line(G: nx.Graph, index: int) -> str:
         ) from err
 
 
+def _not_finite(value: Any) -> bool:
+    return isinstance(value, float) and not math.isfinite(value)
+
+
+def _check_node_link_lists(
+    nodes: Any, edges: Any, edge_key: str, where: str, directed: bool = False, multigraph: bool = False
+) -> None:
+    """Refuse what networkx would silently rewrite: repeated nodes or edges, dangling edges, NaN values."""
+    if not isinstance(nodes, list) or not isinstance(edges, list):
+        raise ValueError(f"{where}: 'nodes' and '{edge_key}' must be JSON lists")
+    seen: set = set()
+    for k, node in enumerate(nodes):
+        if not isinstance(node, dict) or "id" not in node:
+            raise ValueError(f"{where}: nodes[{k}] must be a JSON object with an 'id'")
+        nid = node["id"]
+        try:
+            if nid in seen:
+                raise ValueError(f"{where}: node id {nid!r} appears twice (nodes[{k}]); node ids must be unique")
+        except TypeError:
+            raise ValueError(f"{where}: nodes[{k}] has id {nid!r}; ids must be numbers or strings") from None
+        seen.add(nid)
+        bad = [key for key, value in node.items() if _not_finite(value)]
+        if bad:
+            raise ValueError(f"{where}: node {nid!r} has a NaN or infinite {bad[0]!r}")
+    pairs: set = set()
+    for k, edge in enumerate(edges):
+        if not isinstance(edge, dict) or "source" not in edge or "target" not in edge:
+            raise ValueError(f"{where}: {edge_key}[{k}] must be a JSON object with 'source' and 'target'")
+        u, v = edge["source"], edge["target"]
+        try:
+            missing = [x for x in (u, v) if x not in seen]
+        except TypeError:
+            raise ValueError(f"{where}: {edge_key}[{k}] has an endpoint that is not a number or string") from None
+        if missing:
+            raise ValueError(f"{where}: {edge_key}[{k}] refers to node {missing[0]!r}, which is not in 'nodes'")
+        key = (u, v) if directed else frozenset((u, v))
+        if key in pairs and not multigraph:
+            raise ValueError(f"{where}: the edge between {u!r} and {v!r} appears twice ({edge_key}[{k}]); "
+                             "a graph holds each pair once")
+        pairs.add(key)
+        bad = [key for key, value in edge.items() if _not_finite(value)]
+        if bad:
+            raise ValueError(f"{where}: the edge between {u!r} and {v!r} has a NaN or infinite {bad[0]!r}")
+
+
 def graph_from_record(record: Any, where: str) -> nx.Graph:
     if not isinstance(record, dict):
         raise ValueError(f"{where}: expected a JSON object (node-link record), got {type(record).__name__}")
@@ -181,6 +227,8 @@ def graph_from_record(record: Any, where: str) -> nx.Graph:
                 f"{key!r}={graph_attrs[key]!r}; keep only one of them"
             )
         graph_attrs[key] = value
+    _check_node_link_lists(record["nodes"], record[edge_key], edge_key, where,
+                           bool(record.get("directed")), bool(record.get("multigraph")))
     data = {k: v for k, v in record.items() if k in _NODE_LINK_RESERVED and k != edge_key}
     data["edges"] = record[edge_key]
     data["graph"] = graph_attrs
@@ -206,6 +254,8 @@ def _read_jsonl(path: Path) -> list[nx.Graph]:
                 record = json.loads(line)
             except json.JSONDecodeError as err:
                 raise ValueError(f"{where}: malformed JSON ({err.msg} at column {err.colno})") from err
+            except RecursionError:
+                raise ValueError(f"{where}: JSON nested too deeply to be a node-link record") from None
             graphs.append(graph_from_record(record, where))
     return graphs
 
@@ -1167,6 +1217,8 @@ def read_ranked(path: StrPath) -> dict[int, list[RankedCandidate]]:
                 record = json.loads(line)
             except json.JSONDecodeError as err:
                 raise ValueError(f"{where}: malformed JSON ({err.msg} at column {err.colno})") from err
+            except RecursionError:
+                raise ValueError(f"{where}: JSON nested too deeply to be a node-link record") from None
             row, items = _ranked_record(record, where)
             if row in out:
                 raise ValueError(f"{where}: row {row} appears twice; give one candidate list per row")

@@ -265,7 +265,21 @@ def test_write_graphs_rejects_non_graph(tmp_path: Path) -> None:
         ('{"nodes": []}', r"line 2: node-link record has no 'edges' list"),
         ('{"nodes": [], "edges": [], "graph": 3}', r"line 2: 'graph' must be a JSON object"),
         ('{"nodes": [], "edges": [], "graph": {"id": 1}, "id": 2}', r"line 2: top-level key 'id'=2 conflicts"),
-        ('{"nodes": [{"id": 0}], "edges": [{"target": 0}]}', r"line 2: invalid node-link record"),
+        ('{"nodes": [{"id": 0}], "edges": [{"target": 0}]}',
+         r"line 2: edges\[0\] must be a JSON object with 'source' and 'target'"),
+        # what networkx's node_link_graph would silently rewrite (it keeps the last copy of a node
+        # or edge and invents missing endpoints) is refused with the place
+        ('{"nodes": [{"id": 0, "label": "C"}, {"id": 0, "label": "O"}], "edges": []}',
+         r"line 2: node id 0 appears twice \(nodes\[1\]\); node ids must be unique"),
+        ('{"nodes": [{"id": 0}, {"id": 1}], "edges": [{"source": 0, "target": 1, "label": 1}, '
+         '{"source": 1, "target": 0, "label": 2}]}',
+         r"line 2: the edge between 1 and 0 appears twice \(edges\[1\]\); a graph holds each pair once"),
+        ('{"nodes": [{"id": 0}], "edges": [{"source": 0, "target": "0"}]}',
+         r"line 2: edges\[0\] refers to node '0', which is not in 'nodes'"),
+        ('{"nodes": [{"id": 0, "label": NaN}], "edges": []}', r"line 2: node 0 has a NaN or infinite 'label'"),
+        ('{"nodes": [{"id": [1]}], "edges": []}', r"line 2: nodes\[0\] has id \[1\]; ids must be numbers or strings"),
+        ('{"nodes": [{"label": "C"}], "edges": []}', r"line 2: nodes\[0\] must be a JSON object with an 'id'"),
+        ('{"nodes": ' + "[" * 100_000 + "]" * 100_000 + ', "edges": []}', r"line 2: JSON nested too deeply"),
     ],
 )
 def test_bad_jsonl_lines(tmp_path: Path, line: str, message: str) -> None:
