@@ -177,6 +177,11 @@ def check_inputs(X: ArrayLike, name: str = "X", *, compact: bool = False) -> NDA
     >>> check_inputs(np.array([[0, 1]], dtype=np.uint8), compact=True).dtype
     dtype('uint8')
     """
+    if np.iscomplexobj(X):
+        raise ValueError(
+            f"{name} holds complex numbers; pass real features (e.g. magnitudes with np.abs, or real "
+            "and imaginary parts as separate columns)."
+        )
     try:
         arr = np.asarray(X) if compact else np.asarray(X, dtype=np.float64)
         keep = compact and (arr.dtype == np.bool_ or np.issubdtype(arr.dtype, np.integer))

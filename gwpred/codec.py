@@ -98,6 +98,20 @@ def check_graph(graph: Any, where: str = "graph", *, allow_empty: bool = False) 
     return graph
 
 
+def _label_value(value: Any, where: str, name: str) -> Hashable:
+    """A label as a category: hashable, and not a NaN (which equals nothing, not even itself)."""
+    try:
+        hash(value)
+    except TypeError:
+        raise ValueError(
+            f"{where} has {name!r} = {value!r}, a {type(value).__name__}; labels must be single values "
+            "(a string or a number), not lists or dicts."
+        ) from None
+    if isinstance(value, float) and value != value:
+        raise ValueError(f"{where} has a NaN {name!r}; give every label a value.")
+    return value
+
+
 def _sort_key(value: Any) -> tuple[str, str]:
     return (type(value).__name__, str(value))
 
@@ -187,7 +201,9 @@ class LabelSpace:
                 node_set.add(self._node_value(data, v, f"graphs[{k}]"))
                 numeric.append(self._numeric_values(data, v, f"graphs[{k}]"))
             if self.edge_label is not None:
-                edge_set.update(d.get(self.edge_label) for _, _, d in g.edges(data=True))
+                for u, v, d in g.edges(data=True):
+                    edge_set.add(_label_value(d.get(self.edge_label), f"edge ({u!r}, {v!r}) of graphs[{k}]",
+                                              self.edge_label))
         self.node_labels_ = sorted(node_set, key=_sort_key)
         self.edge_labels_ = sorted(edge_set, key=_sort_key) or [None]
         values = np.asarray(numeric, dtype=np.float64).reshape(len(numeric), len(self.node_numeric))
@@ -250,7 +266,7 @@ class LabelSpace:
                 f"node {node!r} of {where} has no {self.node_label!r} attribute; every node "
                 f"needs one (set node_label= to the attribute that holds node labels)."
             )
-        return data[self.node_label]
+        return _label_value(data[self.node_label], f"node {node!r} of {where}", self.node_label)
 
     def _numeric_values(self, data: dict, node: Hashable, where: str) -> list[float]:
         out = []

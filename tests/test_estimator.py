@@ -703,3 +703,43 @@ def test_predict_weighted_errors(indices, weights, match):
     model = BarycenterGraphPredictor(top_k=3).fit(X[:300], graphs[:300])
     with pytest.raises(ValueError, match=match):
         model.predict_weighted(indices, weights)
+
+
+def test_score_bounds_the_edit_distance_search(monkeypatch):
+    # score() must never run an unbounded exact GED search (large pairs could take hours)
+    import gwpred.model.estimator as est
+
+    X, graphs = load_demo()
+    model = BarycenterGraphPredictor(top_k=3).fit(X[:100], graphs[:100])
+    seen = []
+    real = est.edit_distance
+
+    def spy(*args, **kwargs):
+        seen.append(kwargs.get("time_limit"))
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(est, "edit_distance", spy)
+    assert model.score(X[100:103], graphs[100:103]) <= 0
+    assert seen == [est.SCORE_TIME_LIMIT] * 3 and est.SCORE_TIME_LIMIT == 10.0
+
+
+@pytest.mark.parametrize(
+    "label, match",
+    [
+        (["C"], r"node 0 of graphs\[0\] has 'label' = \['C'\], a list; labels must be single values"),
+        (float("nan"), r"node 0 of graphs\[0\] has a NaN 'label'; give every label a value"),
+    ],
+)
+def test_labels_must_be_single_values(label, match):
+    g = nx.path_graph(3)
+    nx.set_node_attributes(g, "C", "label")
+    g.nodes[0]["label"] = label
+    with pytest.raises(ValueError, match=match):
+        BarycenterGraphPredictor().fit(np.ones((1, 2)), [g])
+
+
+def test_complex_inputs_are_refused():
+    # numpy would drop the imaginary part with only a ComplexWarning
+    X, graphs = load_demo()
+    with pytest.raises(ValueError, match=r"X holds complex numbers; pass real features"):
+        BarycenterGraphPredictor().fit(X[:20] + 1j, graphs[:20])
