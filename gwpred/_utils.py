@@ -147,6 +147,10 @@ def progress_bar(
 # --------------------------------------------------------------------------- input checks
 
 
+class _ComplexInput(Exception):
+    """Raised inside :func:`check_inputs` for complex arrays (reported as a ValueError)."""
+
+
 def check_inputs(X: ArrayLike, name: str = "X", *, compact: bool = False) -> NDArray[Any]:
     """Return ``X`` as a finite 2-D float array, or raise saying what to fix.
 
@@ -177,16 +181,18 @@ def check_inputs(X: ArrayLike, name: str = "X", *, compact: bool = False) -> NDA
     >>> check_inputs(np.array([[0, 1]], dtype=np.uint8), compact=True).dtype
     dtype('uint8')
     """
-    if np.iscomplexobj(X):
-        raise ValueError(
-            f"{name} holds complex numbers; pass real features (e.g. magnitudes with np.abs, or real "
-            "and imaginary parts as separate columns)."
-        )
     try:
-        arr = np.asarray(X) if compact else np.asarray(X, dtype=np.float64)
+        arr = np.asarray(X)
+        if np.iscomplexobj(arr):
+            raise _ComplexInput
         keep = compact and (arr.dtype == np.bool_ or np.issubdtype(arr.dtype, np.integer))
         if not keep:
             arr = np.asarray(arr, dtype=np.float64)
+    except _ComplexInput:
+        raise ValueError(
+            f"{name} holds complex numbers; pass real features (e.g. magnitudes with np.abs, or real "
+            "and imaginary parts as separate columns)."
+        ) from None
     except (TypeError, ValueError):
         raise ValueError(f"{name} must be a numeric array of shape (n_samples, n_features).") from None
     if arr.ndim != 2:
