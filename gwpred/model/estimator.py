@@ -127,7 +127,10 @@ class BarycenterGraphPredictor(BaseEstimator):
         Show progress bars for long loops.
     n_jobs : int, default=1
         Worker processes for the queries of ``predict`` (-1: one per
-        processor); results do not depend on it.
+        processor); results do not depend on it.  With workers, the training
+        graphs are sent once as zero-padded arrays (built on the first such
+        call and kept with the model: about 8 (m^2 (1 + L) + m d) bytes per
+        training graph, m its largest size, L edge labels, d node features).
     weight_model : {"auto", "dense", "local"}, default="auto"
         How the kernel ridge weights are solved.  ``dense``: one solve over
         all training inputs (:class:`~gwpred.weights.KernelRidgeWeights`;
