@@ -586,6 +586,25 @@ def _parse_float(cell: str) -> float | None:
         return None
 
 
+def _short(cell: str, limit: int = 60) -> str:
+    """A cell for a message: quoted, and cut when long (a whole row read as one cell)."""
+    return repr(cell) if len(cell) <= limit else f"{cell[:limit]!r}... ({len(cell):,} characters)"
+
+
+def _cell_hint(cell: str, column: int, header: list[str] | None, delimiter: str) -> str:
+    """What probably went wrong with a cell that is not a number."""
+    others = [d for d in (";", "\t", ",", "|") if d != delimiter and d in cell]
+    if others:
+        name = {";": "semicolons", "\t": "tabs", ",": "commas", "|": "bars"}[others[0]]
+        return (f"; the file seems separated by {name}, not {'tabs' if delimiter == chr(9) else 'commas'}: "
+                "save it as comma-separated .csv or tab-separated .tsv")
+    if column == 0:
+        head = f" (headed {header[0]!r})" if header else ""
+        return (f"; if the first column{head} holds sample ids, head it 'id' (ids are kept, not read as "
+                "features)")
+    return ""
+
+
 def _read_delimited(path: Path, delimiter: str) -> tuple[np.ndarray, list[str] | None]:
     where = repr(str(path))
     rows: list[list[str]] = []
@@ -630,7 +649,8 @@ def _read_delimited(path: Path, delimiter: str) -> tuple[np.ndarray, list[str] |
             value = _parse_float(row[j])
             if value is None:
                 raise ValueError(
-                    f"{where} line {lineno}, column {j + 1}: cell {row[j]!r} is not a number"
+                    f"{where} line {lineno}, column {j + 1}: cell {_short(row[j])} is not a number"
+                    + _cell_hint(row[j], j, first if has_header else None, delimiter)
                 )
             X[i, j - offset] = value
     data_lines = linenos[start:]

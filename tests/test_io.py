@@ -463,6 +463,12 @@ def test_missing_feature_file(tmp_path: Path) -> None:
         ("\n\n", r"is empty; it needs at least one data row"),
         ("id\nm1\n", r"has no feature columns"),
         ("a,b\n", r"has a header row but no data rows"),
+        # a first column of sample names under another heading than 'id'
+        ("sample,a,b\nmol1,1,2\n", r"line 2, column 1: cell 'mol1' is not a number; if the first column "
+                                    r"\(headed 'sample'\) holds sample ids, head it 'id'"),
+        # a semicolon-separated file: one long cell per row, cut in the message, and the separator named
+        ("a;b\n" + ";".join(["0.5"] * 400) + "\n", r"line 2, column 1: cell '0\.5;0\.5;.*'\.\.\. \(1,599 characters\) "
+                                                    r"is not a number; the file seems separated by semicolons, not commas"),
     ],
 )
 def test_bad_csv(tmp_path: Path, text: str, message: str) -> None:
