@@ -298,6 +298,8 @@ def cmd_demo(args: argparse.Namespace) -> int:
         raise UsageError(f"--test-size must be between 1 and {len(graphs) - 1}; got {args.test_size}.")
     if args.show < 1:
         raise UsageError(f"--show must be at least 1 (rows in the PNG grid); got {args.show}.")
+    if args.drawings < 0:
+        raise UsageError(f"--drawings must be at least 0; got {args.drawings}.")
     out.mkdir(exist_ok=True)  # only after the arguments passed: a refused run leaves no folder
     test, train = perm[: args.test_size], perm[args.test_size:]
     print(f"demo: spectrum -> heavy-atom skeleton, {len(train)} training and {len(test)} held-out "
@@ -350,8 +352,8 @@ def _demo_report(args: argparse.Namespace, out: Path, model: BarycenterGraphPred
     """Write the demo's report.html; barycenters only for the items drawn in full."""
     from .report import write_report
 
-    n_draw = min(_DEMO_DRAWINGS, len(pred))
-    soft = model.predict_barycenters(X_test[:n_draw])
+    n_draw = min(args.drawings, len(pred))
+    soft = model.predict_barycenters(X_test[:n_draw]) if n_draw else []
     notes = [(f"Spectrum -> heavy-atom skeleton: {len(train_graphs)} training and {len(pred)} held-out QM9 "
               f"molecules (seed {args.seed}). Baseline, the molecule of the most similar training spectrum: "
               f"mean GED {base['mean_ged']:.2f}, exact match {100 * base['exact_match_rate']:.1f}%.")]
@@ -525,6 +527,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--out", default="gwpred-demo", help="output folder (default: gwpred-demo)")
     p.add_argument("--test-size", type=int, default=300, help="held-out molecules (default: 300)")
     p.add_argument("--show", type=int, default=8, help="rows in the PNG grid (default: 8)")
+    p.add_argument("--drawings", type=int, default=_DEMO_DRAWINGS,
+                   help=f"items of report.html drawn in full, with heat maps (default: {_DEMO_DRAWINGS})")
     p.add_argument("--time-limit", type=float, default=2.0,
                    help="seconds per GED before settling for bounds (default: 2)")
     _add_model_options(p)

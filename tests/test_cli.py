@@ -458,6 +458,15 @@ def test_demo_rejects_bad_show(capsys, tmp_path):
                                 "--out", tmp_path / "d", "-q"], "--show")
 
 
+def test_demo_drawings_option(capsys, tmp_path):
+    # the report's own advice ("raise --drawings to draw more") works on the demo too
+    expect_usage_error(capsys, ["demo", "--drawings", "-1", "--out", tmp_path / "d", "-q"],
+                       "--drawings must be at least 0; got -1")
+    code, _, err = run(capsys, "demo", "--test-size", "3", "--show", "1", "--drawings", "0", "--out", tmp_path / "e", "-q")
+    assert code == 0, err
+    assert "No drawings: only the first 0 items are drawn" in (tmp_path / "e" / "report.html").read_text()
+
+
 # --------------------------------------------------------------------------
 # demo
 # --------------------------------------------------------------------------
