@@ -198,8 +198,8 @@ def _score_pair(
     n_pred = gp.number_of_nodes()
     item: dict[str, Any] = {
         "ged": r.value,
-        "exact": r.exact,
-        "match": bool(r.exact and r.value == 0.0),
+        "ged_proven": r.exact,  # the GED is proven optimal (else the best upper bound found)
+        "exact_match": bool(r.exact and r.value == 0.0),
         "n_pred": n_pred,
         "n_true": gt.number_of_nodes(),
         "connected": bool(n_pred > 0 and nx.is_connected(gp)),
@@ -285,7 +285,8 @@ def summarize(
         (predicted graphs that are connected; an empty graph is not), ``exact_share`` (share
         of edit distances proven exact), the means over pairs ``node_label_accuracy``,
         ``edge_precision``, ``edge_recall`` and ``edge_f1``, and ``items``: one dict per
-        pair with ``ged``, ``exact``, ``match``, ``n_pred``, ``n_true``, ``connected``,
+        pair with ``ged``, ``ged_proven`` (the value is proven optimal, not only the best
+        bound found), ``exact_match`` (same labeled graph), ``n_pred``, ``n_true``, ``connected``,
         ``node_label_accuracy``, ``edge_precision``, ``edge_recall`` and ``edge_f1``.
         With ``ranked``, also ``top_k_accuracy``, a dict ``{1: ..., 5: ..., 10: ...}``, and
         per pair ``hit_rank``: the 1-based position of the first of the first 10 candidates
@@ -303,7 +304,7 @@ def summarize(
     See Also
     --------
     edit_distance : the distance and node map behind each item.
-    exact_match : the label isomorphism test behind ``match`` and ``hit_rank``.
+    exact_match : the label isomorphism test behind the items' ``exact_match`` and ``hit_rank``.
 
     Notes
     -----
@@ -392,10 +393,10 @@ def summarize(
         "n": len(items),
         "mean_ged": float(np.mean(geds)),
         "median_ged": float(np.median(geds)),
-        "exact_match_rate": mean("match"),
+        "exact_match_rate": mean("exact_match"),
         "right_size_rate": float(np.mean([it["n_pred"] == it["n_true"] for it in items])),
         "connected_rate": mean("connected"),
-        "exact_share": mean("exact"),
+        "exact_share": mean("ged_proven"),
         "node_label_accuracy": mean("node_label_accuracy"),
         "edge_precision": mean("edge_precision"),
         "edge_recall": mean("edge_recall"),

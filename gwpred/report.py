@@ -522,12 +522,12 @@ def _table(items: list[_Item], opts: _Options, with_truth: bool) -> str:
         if with_truth:
             s = it.scores or {}
             ged = float(s["ged"])
-            ged_text = _fmt(ged) + ("" if s.get("exact", True) else " ≤")
+            ged_text = _fmt(ged) + ("" if s.get("ged_proven", True) else " ≤")
             cells += [
                 _cell(ged_text, ged),
                 _cell(str(s["n_pred"]), s["n_pred"]),
                 _cell(str(s["n_true"]), s["n_true"]),
-                _cell(_yes_no(bool(s["match"])), int(bool(s["match"]))),
+                _cell(_yes_no(bool(s["exact_match"])), int(bool(s["exact_match"]))),
                 _cell(_pct(s["node_label_accuracy"]), s["node_label_accuracy"]),
                 _cell(_pct(s["edge_f1"]), s["edge_f1"]),
             ]
@@ -776,10 +776,10 @@ def _panel(item: _Item, opts: _Options, svgs: _Svgs, draw: bool, drawings: int) 
     facts = []
     if item.scores is not None:
         s = item.scores
-        exact = "" if s.get("exact", True) else " (best found, not proven optimal)"
+        exact = "" if s.get("ged_proven", True) else " (best found, not proven optimal)"
         facts.append(f"GED {_fmt(float(s['ged']))}{exact}")
         facts.append(f"{s['n_pred']} predicted / {s['n_true']} true nodes")
-        facts.append("exact match" if s["match"] else "not an exact match")
+        facts.append("exact match" if s["exact_match"] else "not an exact match")
     else:
         facts.append(
             f"{item.predicted.number_of_nodes()} nodes, {item.predicted.number_of_edges()} edges"

@@ -46,7 +46,7 @@ TEST = list(range(25, 3000, 600))  # 5 others
 NODE_EDGE_SCORES = ["node_label_accuracy", "edge_precision", "edge_recall", "edge_f1"]
 SUMMARY_KEYS = {"n", "mean_ged", "median_ged", "exact_match_rate", "right_size_rate", "connected_rate", "exact_share",
                 *NODE_EDGE_SCORES}
-ITEM_COLUMNS = ["index", "ged", "exact", "match", "n_pred", "n_true", "connected", *NODE_EDGE_SCORES]
+ITEM_COLUMNS = ["index", "ged", "ged_proven", "exact_match", "n_pred", "n_true", "connected", *NODE_EDGE_SCORES]
 MODEL_OPTS = ["--top-k", "3", "--alpha", "0.5", "--seed", "0"]
 
 

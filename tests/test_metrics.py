@@ -795,7 +795,7 @@ def test_summarize_values():
     assert s["edge_f1"] == pytest.approx(1.8 / 4)
     assert "top_k_accuracy" not in s  # only with ranked candidates
     assert s["items"][2] == pytest.approx({
-        "ged": 3.0, "exact": True, "match": False, "n_pred": 2, "n_true": 3,
+        "ged": 3.0, "ged_proven": True, "exact_match": False, "n_pred": 2, "n_true": 3,
         "connected": False, "node_label_accuracy": 2 / 3, "edge_precision": 0.0,
         "edge_recall": 0.0, "edge_f1": 0.0,
     })
@@ -814,8 +814,8 @@ def test_summarize_with_time_limit_reports_exact_share():
     g1 = random_graph(rng, 14, 14)
     g2 = random_graph(rng, 14, 14)
     s = summarize([g1, g1], [g2, g1], time_limit=1e-3)
-    assert s["items"][1]["exact"] and s["items"][1]["match"]
-    assert s["exact_share"] == (1.0 if s["items"][0]["exact"] else 0.5)
+    assert s["items"][1]["ged_proven"] and s["items"][1]["exact_match"]
+    assert s["exact_share"] == (1.0 if s["items"][0]["ged_proven"] else 0.5)
 
 
 # --------------------------------------------------------------------------- bad input
@@ -1094,7 +1094,7 @@ def test_node_and_edge_scores_match_networkx_edit_paths():
     unique = 0
     for (pred, true), item in zip(pairs, s["items"]):
         node_path, cost = networkx_optimal_node_path(pred, true)
-        assert item["exact"] and cost == item["ged"]
+        assert item["ged_proven"] and cost == item["ged"]
         optima = optimal_mappings(pred, true)
         candidates = [scores_of_node_path(pred, true, list(m.items())) for m in optima]
         assert any(scores(item) == pytest.approx(c) for c in candidates)
@@ -1127,7 +1127,7 @@ def test_edge_f1_is_the_harmonic_mean(g1, g2):
     p, r, f1 = item["edge_precision"], item["edge_recall"], item["edge_f1"]
     assert f1 == pytest.approx(2 * p * r / (p + r) if p + r else 0.0)
     assert all(0.0 <= x <= 1.0 for x in scores(item))
-    if item["match"]:
+    if item["exact_match"]:
         assert scores(item) == (1.0, 1.0, 1.0, 1.0)
 
 
