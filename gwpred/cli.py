@@ -242,7 +242,7 @@ def cmd_predict(args: argparse.Namespace) -> int:
     graphs = model.predict(X, formulas=formulas)
     write_graphs(args.out, graphs)
     print(f"{len(graphs)} predicted graphs written to {args.out}")
-    print(CAUTION)
+    print(CAUTION, file=sys.stderr)  # with the results, not inside them (stdout may be a data pipe)
     return 0
 
 
@@ -339,7 +339,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     print(f"\nwrote {out}/predicted.jsonl, truth.jsonl, retrieved.jsonl, summary.json, predictions.png")
     print(f"report: {report}")
     print(f"total {time.perf_counter() - t_start:.0f} s")
-    print(CAUTION)
+    print(CAUTION, file=sys.stderr)  # with the results, not inside them (stdout may be a data pipe)
     return 0
 
 
@@ -392,7 +392,7 @@ def cmd_report(args: argparse.Namespace) -> int:
     n = len(pred) if args.limit is None else min(args.limit, len(pred))
     print(f"report on {n} items written to {path} in {time.perf_counter() - t0:.1f} s")
     if is_molecular(pred[:n] + (truth[:n] if truth else []), args.node_label):
-        print(CAUTION)
+        print(CAUTION, file=sys.stderr)  # with the results, not inside them (stdout may be a data pipe)
     return 0
 
 
@@ -420,7 +420,7 @@ def cmd_rank(args: argparse.Namespace) -> int:
     write_ranked(args.out, ranked, library)
     print(f"ranked {len(library)} candidates for {X.shape[0]} inputs ({args.scorer} scorer) in {secs:.1f} s; "
           f"top {args.k} per input written to {args.out}")
-    print(CAUTION)
+    print(CAUTION, file=sys.stderr)  # with the results, not inside them (stdout may be a data pipe)
     return 0
 
 
@@ -455,7 +455,7 @@ def cmd_compare(args: argparse.Namespace) -> int:
     atomic_write_text(out / "comparison.json", json.dumps(summary, indent=2, default=str))
     plot_comparison(result, str(out / "comparison.png"))
     print(f"\nwrote {out}/comparison.txt, comparison.json, comparison.png in {time.perf_counter() - t0:.0f} s")
-    print(CAUTION)
+    print(CAUTION, file=sys.stderr)  # with the results, not inside them (stdout may be a data pipe)
     return 0
 
 

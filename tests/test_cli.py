@@ -205,7 +205,8 @@ def test_fit_predict_evaluate(capsys, tmp_path, files, demo, ext):
     assert code == 0, err
     assert pred_path.is_file()
     assert f"{len(TEST)} predicted graphs written to {pred_path}" in out
-    assert "hypotheses" in out and "lab-safety" in out
+    # the caution goes with every molecular output, on stderr (stdout may be piped as data), also with -q
+    assert "hypotheses" in err and "lab-safety" in err and "hypotheses" not in out
     pred = read_any(pred_path)
     assert len(pred) == len(TEST)
     # the CLI predicts what the library predicts with the same options
@@ -474,13 +475,13 @@ def test_demo_small_run(capsys, tmp_path):
     out_dir = tmp_path / "demo"
     code, out, err = run(capsys, "demo", "--test-size", "10", "--show", "2", "--out", out_dir, "-q")
     assert code == 0, err
-    # table rows and the caution line
+    # table rows, and the caution line on stderr
     lines = out.splitlines()
     ours = [ln for ln in lines if ln.startswith("gwpred (FGW barycenter)")]
     base = [ln for ln in lines if ln.startswith("1-NN retrieval")]
     assert len(ours) == 1 and len(base) == 1
-    assert lines[-1] == gwpred.cli.CAUTION
-    assert "hypotheses" in lines[-1] and "lab-safety" in lines[-1]
+    assert err.splitlines()[-1] == gwpred.cli.CAUTION
+    assert "hypotheses" in err and "lab-safety" in err
     assert "2990 training and 10 held-out" in out
 
     pred = read_any(out_dir / "predicted.jsonl")
@@ -533,10 +534,10 @@ def test_predict_with_formula_column(capsys, tmp_path, files, demo):
         w.writerow(["id", "Formula"])
         w.writerows([f"mol{i}", f] for i, f in enumerate(formulas))
     out = tmp_path / "pred.jsonl"
-    code, stdout, _ = run(capsys, "predict", "--model", str(model), "--features", str(files["test_x"]),
-                          "--out", str(out), "--formulas", str(fpath), "-q")
+    code, stdout, stderr = run(capsys, "predict", "--model", str(model), "--features", str(files["test_x"]),
+                               "--out", str(out), "--formulas", str(fpath), "-q")
     assert code == 0
-    assert "hypotheses" in stdout  # the caution line
+    assert "hypotheses" in stderr  # the caution line
     pred = read_any(out)
     assert len(pred) == len(truth)
     for g, f in zip(pred, formulas):
@@ -554,10 +555,10 @@ def test_predict_to_smiles_file_decodes_valid_molecules(capsys, tmp_path, files)
     # Reference: RDKit parses and sanitises every written SMILES (MolFromSmiles)
     Chem = pytest.importorskip("rdkit.Chem")
     out = tmp_path / "pred.smi"
-    code, stdout, _ = run(capsys, "predict", "--model", str(files["model"]), "--features", str(files["test_x"]),
-                          "--out", str(out), "-q")
+    code, stdout, stderr = run(capsys, "predict", "--model", str(files["model"]), "--features", str(files["test_x"]),
+                               "--out", str(out), "-q")
     assert code == 0
-    assert "valence rules" in stdout and "hypotheses" in stdout
+    assert "valence rules" in stdout and "hypotheses" in stderr
     lines = [ln.split()[0] for ln in out.read_text(encoding="utf-8").splitlines() if ln.strip()]
     assert len(lines) == len(TEST)
     assert all(Chem.MolFromSmiles(s) is not None for s in lines)
