@@ -80,7 +80,7 @@ MOLECULE_EXTENSIONS = (".smi", ".sdf", ".mol")
 FEATURE_EXTENSIONS = (".npy", ".csv", ".tsv")
 
 _MANIFEST_KEY = "__manifest__"
-_RESERVED_MANIFEST_KEYS = ("format", "format_version", "gwpred_version", "checksums")
+_RESERVED_MANIFEST_KEYS = ("format", "format_version", "gwpred_version", "checksums", "manifest_sha256")
 _NODE_LINK_RESERVED = frozenset({"directed", "multigraph", "graph", "nodes", "edges", "links"})
 _INT_LITERAL = re.compile(r"-?(?:0|[1-9][0-9]*)")
 _ZIP_EPOCH = (1980, 1, 1, 0, 0, 0)
@@ -875,6 +875,16 @@ def write_features(path: StrPath, X: np.ndarray, ids: Sequence[str] | None = Non
 # --------------------------------------------------------------- model archives
 
 
+def _manifest_digest(manifest: Mapping[str, Any]) -> str:
+    """sha256 of the manifest's canonical JSON, without its own ``manifest_sha256`` entry.
+
+    It covers the array checksums too, so one digest seals the whole archive.
+    """
+    body = {k: v for k, v in manifest.items() if k != "manifest_sha256"}
+    text = json.dumps(body, allow_nan=False, ensure_ascii=False, sort_keys=True)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
 def _array_checksum(arr: np.ndarray) -> str:
     """sha256 over dtype, shape and C-order bytes of ``arr``."""
     h = hashlib.sha256()
@@ -925,8 +935,10 @@ def save_archive(path: StrPath, arrays: Mapping[str, np.ndarray], manifest: Mapp
     :func:`numpy.savez_compressed`, with one extra member ``__manifest__``: the
     UTF-8 JSON manifest as a ``uint8`` array. The stored manifest gets the
     entries ``format`` (:data:`ARCHIVE_FORMAT`), ``format_version``
-    (:data:`ARCHIVE_VERSION`), ``gwpred_version`` and ``checksums`` (array name
-    -> sha256 hex of dtype, shape and bytes); these four keys are always set
+    (:data:`ARCHIVE_VERSION`), ``gwpred_version``, ``checksums`` (array name
+    -> sha256 hex of dtype, shape and bytes) and ``manifest_sha256`` (sha256 of
+    the rest of the manifest as canonical JSON: an edited manifest is refused
+    at load); these five keys are always set
     by this function, replacing any values given in ``manifest``, so a
     manifest returned by :func:`load_archive` can be saved again. Members are
     written in name order with a fixed timestamp, so equal inputs give
@@ -969,7 +981,9 @@ def save_archive(path: StrPath, arrays: Mapping[str, np.ndarray], manifest: Mapp
         gwpred_version=_gwpred_version(),
         checksums=checksums,
     )
+    full.pop("manifest_sha256", None)
     try:
+        full["manifest_sha256"] = _manifest_digest(full)
         text = json.dumps(full, allow_nan=False, ensure_ascii=False, sort_keys=True)
     except TypeError as err:
         raise TypeError(f"manifest is not JSON-serialisable: {err}; use numbers, strings, lists and dicts") from err
@@ -1093,6 +1107,12 @@ def load_archive(path: StrPath) -> tuple[dict[str, np.ndarray], dict[str, Any]]:
                 f"{where} uses model format_version {version}, but this gwpred reads versions up to "
                 f"{ARCHIVE_VERSION}; upgrade gwpred to load it (written by gwpred "
                 f"{manifest.get('gwpred_version', 'unknown')})"
+            )
+        sealed = manifest.get("manifest_sha256")  # absent from files of gwpred before it: not checked
+        if sealed is not None and sealed != _manifest_digest(manifest):
+            raise ValueError(
+                f"{where}: the manifest does not match its checksum; the file was edited or corrupted "
+                "after it was saved: save the model again"
             )
         checksums = manifest.get("checksums")
         if not isinstance(checksums, dict) or not all(isinstance(v, str) for v in checksums.values()):

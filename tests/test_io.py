@@ -757,3 +757,21 @@ def test_read_formulas_errors(tmp_path):
     b.write_bytes(b"\xff\xfe\x00C")
     with pytest.raises(ValueError, match="not UTF-8"):
         read_formulas(b)
+
+
+def test_archive_manifest_edits_are_refused(tmp_path: Path) -> None:
+    # reordering labels (or any other hand edit of the JSON manifest) would silently change what a
+    # model predicts; the manifest's own sha256 (hashlib, over its canonical JSON) catches it
+    path = tmp_path / "m.npz"
+    save_archive(path, sample_arrays(), {"labels": ["C", "N", "O"]})
+    arrays, manifest = load_archive(path)
+    assert len(manifest["manifest_sha256"]) == 64
+    manifest["labels"] = ["N", "C", "O"]
+    write_npz(path, arrays, manifest)
+    with pytest.raises(ValueError, match=r"the manifest does not match its checksum; the file was edited or "
+                                         r"corrupted after it was saved"):
+        load_archive(path)
+    # files written before the seal existed (no manifest_sha256) still load
+    del manifest["manifest_sha256"]
+    write_npz(path, arrays, manifest)
+    assert load_archive(path)[1]["labels"] == ["N", "C", "O"]
