@@ -363,9 +363,27 @@ def _demo_report(args: argparse.Namespace, out: Path, model: BarycenterGraphPred
                         time_limit=args.time_limit, drawings=n_draw, progress=not args.quiet)
 
 
+class _TrainingGraphs:
+    """A model's training graphs as a sequence, each rebuilt only when the report asks for it."""
+
+    def __init__(self, training: Any) -> None:
+        self.training = training
+
+    def __len__(self) -> int:
+        return len(self.training)
+
+    def __getitem__(self, i: int) -> Any:
+        return self.training.graph(int(i))
+
+
 def cmd_report(args: argparse.Namespace) -> int:
-    from .io import read_graphs, read_ranked
+    from .io import read_features, read_graphs, read_ranked
+    from .model import load_model
     from .report import is_molecular, write_report
+
+    if bool(args.model) != bool(args.features):
+        raise UsageError("--model and --features go together: the model and the inputs the predictions were "
+                         "made from (for the barycenter heat maps and training neighbours)")
 
     out = Path(args.out)
     if out.suffix.lower() not in (".html", ".htm"):
@@ -383,12 +401,24 @@ def cmd_report(args: argparse.Namespace) -> int:
         )
     ranked = read_ranked(args.ranked) if args.ranked else None
     t0 = time.perf_counter()
+    extra: dict = {}
+    if args.model:  # the model and inputs behind the predictions: heat maps and training neighbours
+        X = read_features(args.features)
+        if len(X) != len(pred):
+            raise UsageError(f"{args.features} holds {len(X)} rows but {args.predictions} holds {len(pred)} "
+                             "graphs; give the inputs the predictions were made from, in the same order.")
+        model = load_model(args.model)
+        n_draw = min(args.drawings, len(pred) if args.limit is None else min(args.limit, len(pred)))
+        extra = dict(barycenters=model.predict_barycenters(X[:n_draw]) if n_draw else [],
+                     training_graphs=_TrainingGraphs(model.training_),
+                     label_names=list(model.labels_.node_labels_))
     notes = [f"predictions: {args.predictions}" + (f"; truth: {args.truth}" if args.truth else "")
-             + (f"; ranked candidates: {args.ranked}" if args.ranked else "")]
+             + (f"; ranked candidates: {args.ranked}" if args.ranked else "")
+             + (f"; model: {args.model}, inputs: {args.features}" if args.model else "")]
     path = write_report(out, pred, truth, ranked=ranked, title=args.title or f"gwpred report: {Path(args.predictions).name}",
                         notes=notes, time_limit=args.time_limit, limit=args.limit, drawings=args.drawings,
                         top=args.top, node_label=args.node_label, edge_label=_edge_label(args),
-                        progress=not args.quiet)
+                        progress=not args.quiet, **extra)
     n = len(pred) if args.limit is None else min(args.limit, len(pred))
     print(f"report on {n} items written to {path} in {time.perf_counter() - t0:.1f} s")
     if is_molecular(pred[:n] + (truth[:n] if truth else []), args.node_label):
@@ -553,6 +583,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--drawings", type=int, default=30,
                    help="items (the first ones) drawn in full; the others show scores only (default: 30)")
     p.add_argument("--top", type=int, default=5, help="ranked candidates drawn per item (default: 5)")
+    p.add_argument("--model", help="model file that made the predictions (with --features): adds the "
+                                   "barycenter heat maps and the training graphs each prediction leaned on")
+    p.add_argument("--features", help="inputs the predictions were made from, same order (with --model)")
     _add_label_options(p)
     common(p)
     p.set_defaults(func=cmd_report)

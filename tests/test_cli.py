@@ -690,3 +690,21 @@ def test_demo_and_compare_leave_no_folder_when_refused(capsys, tmp_path):
     expect_usage_error(capsys, ["compare", "--data", "demo", "--out", tmp_path / "c", "--fgw-rows", "-1", "-q"],
                        "--fgw-rows must be 0")
     assert not (tmp_path / "d").exists() and not (tmp_path / "c").exists()
+
+
+def test_report_with_the_model_shows_heat_maps_and_neighbours(capsys, tmp_path, files):
+    # `gwpred report` given the model and inputs behind the predictions draws what the demo's page
+    # draws: barycenter heat maps and the training graphs each prediction leaned on
+    pred = tmp_path / "pred.jsonl"
+    code, _, err = run(capsys, "predict", "--model", files["model"], "--features", files["test_x"], "--out", pred, "-q")
+    assert code == 0, err
+    plain, full = tmp_path / "plain.html", tmp_path / "full.html"
+    assert run(capsys, "report", pred, "--truth", files["truth"], "--out", plain, "--drawings", "2", "-q")[0] == 0
+    code, _, err = run(capsys, "report", pred, "--truth", files["truth"], "--out", full, "--drawings", "2",
+                       "--model", files["model"], "--features", files["test_x"], "-q")
+    assert code == 0, err
+    assert "training #" not in plain.read_text() and "training #" in full.read_text()
+    expect_usage_error(capsys, ["report", pred, "--out", tmp_path / "x.html", "--model", files["model"], "-q"],
+                       "--model and --features go together")
+    expect_usage_error(capsys, ["report", pred, "--out", tmp_path / "x.html", "--model", files["model"],
+                                "--features", files["train_x"], "-q"], "give the inputs the predictions were made from")
