@@ -506,7 +506,7 @@ def test_cli_report(capsys, files):
     )
     assert code == 0, err
     assert f"report on {N} items written to {out_file}" in out
-    assert out.strip().splitlines()[-1] == CAUTION
+    assert err.strip().splitlines()[-1] == CAUTION  # on stderr: stdout stays clean
     text = out_file.read_text(encoding="utf-8")
     assert (
         "<title>CLI page</title>" in text
