@@ -328,6 +328,9 @@ def _read_graphml(path: Path) -> list[nx.Graph]:
         root = ElementTree.parse(path).getroot()
     except ElementTree.ParseError as err:
         raise ValueError(f"{str(path)!r} is not well-formed XML: {err}") from err
+    except LookupError as err:  # the XML declaration names an encoding Python does not know
+        raise ValueError(f"{str(path)!r}: its XML declaration names an unknown text encoding ({err}); "
+                         "save the file as UTF-8") from err
     ns = GraphMLReader.NS_GRAPHML
     if root.tag != f"{{{ns}}}graphml":
         raise ValueError(
@@ -544,8 +547,31 @@ def _check_finite(X: np.ndarray, where: str, locate: Any) -> None:
         )
 
 
+def _npy_size_claim(path: Path) -> str | None:
+    """Why a .npy file cannot hold the array its header claims (None when it can, or is not a plain .npy)."""
+    try:
+        with open(path, "rb") as fh:
+            version = np.lib.format.read_magic(fh)
+            read_header = {(1, 0): np.lib.format.read_array_header_1_0,
+                           (2, 0): np.lib.format.read_array_header_2_0}.get(version)
+            if read_header is None:
+                return None
+            shape, _, dtype = read_header(fh)
+            data_bytes = os.fstat(fh.fileno()).st_size - fh.tell()
+    except (ValueError, OSError, EOFError, SyntaxError, tokenize.TokenError):
+        return None  # np.load reports these itself
+    claimed = int(np.prod(shape, dtype=object)) * dtype.itemsize
+    if not dtype.hasobject and claimed > data_bytes:
+        return (f"its header claims an array of shape {shape} ({claimed:,} bytes) but the file holds "
+                f"{data_bytes:,} bytes of data; the file is truncated or damaged")
+    return None
+
+
 def _read_npy(path: Path) -> np.ndarray:
     where = repr(str(path))
+    short = _npy_size_claim(path)  # before numpy allocates the claimed size
+    if short is not None:
+        raise ValueError(f"{where} could not be read as a .npy array: {short}")
     try:
         X = np.load(path, allow_pickle=False)
     except ValueError as err:
@@ -555,7 +581,7 @@ def _read_npy(path: Path) -> np.ndarray:
                 "save a numeric array instead"
             ) from err
         raise ValueError(f"{where} could not be read as a .npy array: {err}") from err
-    except (OSError, EOFError) as err:
+    except (OSError, EOFError, SyntaxError, tokenize.TokenError) as err:  # numpy's header parser, on damage
         raise ValueError(f"{where} could not be read as a .npy array: {err}") from err
     if not isinstance(X, np.ndarray):
         if hasattr(X, "close"):
