@@ -332,7 +332,8 @@ def _cg_batch(
         t = np.where(qa + qb < 0, 1.0, 0.0)
         convex = qa > 0
         if convex.any():
-            t[convex] = np.clip(-qb[convex] / (2.0 * qa[convex]), 0.0, 1.0)
+            with np.errstate(over="ignore"):  # a tiny curvature: the step is +-inf, clipped to [0, 1]
+                t[convex] = np.clip(-qb[convex] / (2.0 * qa[convex]), 0.0, 1.0)
         step = qa * t * t + qb * t
         new_cost = cost[sel] + step
         G[sel] = Ga + t[:, None, None] * dG
