@@ -213,7 +213,13 @@ def kernel_matrix(X: ArrayLike, Y: ArrayLike, kernel: str = "rbf", gamma: float 
     Y = np.asarray(Y, dtype=np.float64)
     _check_kernel_inputs(kernel, X)
     _check_kernel_inputs(kernel, Y)
-    return KERNELS[kernel](X, Y, gamma)
+    return _kernel(X, Y, kernel, gamma)
+
+
+def _kernel(X: ArrayLike, Y: ArrayLike, kernel: str, gamma: float) -> Array:
+    """:func:`kernel_matrix` without the input checks, for inputs the weight models checked once
+    (the training inputs at fit, the queries on entry), not again on every block."""
+    return KERNELS[kernel](np.asarray(X, dtype=np.float64), np.asarray(Y, dtype=np.float64), gamma)
 
 
 def _check_kernel_name(kernel: str, precomputed: bool = False) -> None:
@@ -454,7 +460,7 @@ class KernelRidgeWeights:
         self.memory_limit = memory_limit
 
     def _k(self, X: Array, Y: Array) -> Array:
-        return kernel_matrix(X, Y, self.kernel, self.gamma_)
+        return _kernel(X, Y, self.kernel, self.gamma_)
 
     def _check_memory(self, n: int) -> None:
         limit = default_memory_limit() if self.memory_limit is None else self.memory_limit
@@ -544,7 +550,9 @@ class KernelRidgeWeights:
                 )
             Kx = X
         else:
-            Kx = self._k(_check_queries(X, self.X_fit_.shape[1]), self.X_fit_)
+            Xq = _check_queries(X, self.X_fit_.shape[1])
+            _check_kernel_inputs(self.kernel, Xq)
+            Kx = self._k(Xq, self.X_fit_)
         if self.method == "knn":
             return Kx
         return cho_solve(self._factor, Kx.T, check_finite=False).T
@@ -739,7 +747,7 @@ class LocalRidgeWeights:
         if self._bits and _is_binary(Xq):  # the sparse side is the (larger) training set
             return _tanimoto_sparse(self._X_sparse, self._X_sums, Xq, Xq.sum(1)).T
         # X_fit_ is rebuilt dense only for non-binary queries against binary training inputs
-        return kernel_matrix(Xq, self.X_fit_, self.kernel, self.gamma_)
+        return _kernel(Xq, self.X_fit_, self.kernel, self.gamma_)
 
     def _train_kernel(self, sel: NDArray[np.int64]) -> Array:
         """Kernel among the training inputs ``sel``, shape (len(sel), len(sel))."""
@@ -748,7 +756,7 @@ class LocalRidgeWeights:
             inter = (rows @ rows.T).toarray()
             return _ratio_rows(inter, self._X_sums[sel], self._X_sums[sel])
         Xs = self._X[sel]
-        return kernel_matrix(Xs, Xs, self.kernel, self.gamma_)
+        return _kernel(Xs, Xs, self.kernel, self.gamma_)
 
     def _local_rows(self, Xq: Array) -> Array:
         """Local coefficients of a block of queries, zero outside each query's neighbourhood."""

@@ -30,12 +30,11 @@ from .steps import (
     Settings,
     SoftGraph,
     barycenter_batch,
-    barycenter_rows,
     neighbourhood,
+    on_rows,
     padded_graphs,
     parse_formulas,
     predict_batch,
-    predict_rows,
     valence_arrays,
 )
 
@@ -435,12 +434,11 @@ class BarycenterGraphPredictor(BaseEstimator):
             tasks = [(hoods[b], parsed[b]) for b in slices]
             shared: dict[str, Any] = {"settings": settings}
         else:
-            step = {predict_batch: predict_rows, barycenter_batch: barycenter_rows}[step]
-            tasks = [(idx[b], w[b], parsed[b]) for b in slices]
-            shared = {"settings": settings, "padded": padded}
+            tasks = [(step, idx[b], w[b], parsed[b]) for b in slices]
+            step, shared = on_rows, {"settings": settings, "padded": padded}
         done = parallel_map(
             step, tasks, n_jobs=self.n_jobs, progress=self.progress, desc="barycenters", unit="graph",
-            shared=shared, weights=[len(t[0]) for t in tasks],
+            shared=shared, weights=[b.stop - b.start for b in slices],
         )
         return [item for batch in done for item in batch]
 
@@ -556,11 +554,9 @@ class BarycenterGraphPredictor(BaseEstimator):
         float
         """
         graphs = [graphs] if isinstance(graphs, nx.Graph) else list(graphs)
-        if len(graphs) != len(check_inputs(X, compact=True)):
-            raise ValueError(
-                f"X has {len(check_inputs(X, compact=True))} rows but {len(graphs)} graphs were given; pass one "
-                "graph per row."
-            )
+        n_rows = len(check_inputs(X, compact=True))
+        if len(graphs) != n_rows:
+            raise ValueError(f"X has {n_rows} rows but {len(graphs)} graphs were given; pass one graph per row.")
         pred = self.predict(X)
         ged = [
             edit_distance(p, t, node_label=self.node_label, edge_label=self.edge_label,

@@ -50,7 +50,6 @@ __all__ = [
     "SoftGraph",
     "barycenter_batch",
     "barycenter_query",
-    "barycenter_rows",
     "gather",
     "bond_orders",
     "choose_size",
@@ -58,11 +57,11 @@ __all__ = [
     "decode_query",
     "formula_counts",
     "neighbourhood",
+    "on_rows",
     "padded_graphs",
     "parse_formulas",
     "predict_batch",
     "predict_query",
-    "predict_rows",
     "solve_barycenter",
     "solve_barycenters",
     "valence_arrays",
@@ -586,23 +585,14 @@ def predict_batch(
     return [decode_query(soft, hood, settings, f) for soft, hood, f in zip(softs, hoods, formulas)]
 
 
-def predict_rows(
+def on_rows(
+    step: Callable[..., list],
     indices: NDArray[np.int64],
     weights: NDArray[np.float64],
     formulas: Sequence[Formula | None],
     settings: Settings,
     padded: PaddedGraphs,
-) -> list[nx.Graph]:
-    """:func:`predict_batch` for rows of kept training indices and weights (a worker's task)."""
-    return predict_batch([gather(padded, i, w) for i, w in zip(indices, weights)], formulas, settings)
-
-
-def barycenter_rows(
-    indices: NDArray[np.int64],
-    weights: NDArray[np.float64],
-    formulas: Sequence[Formula | None],
-    settings: Settings,
-    padded: PaddedGraphs,
-) -> list[SoftGraph]:
-    """:func:`barycenter_batch` for rows of kept training indices and weights (a worker's task)."""
-    return barycenter_batch([gather(padded, i, w) for i, w in zip(indices, weights)], formulas, settings)
+) -> list:
+    """A batch step (:func:`predict_batch` or :func:`barycenter_batch`) on rows of kept training
+    indices and weights, gathered from the padded training graphs (a worker's task)."""
+    return step([gather(padded, i, w) for i, w in zip(indices, weights)], formulas, settings)
