@@ -82,7 +82,7 @@ def _model_params(args: argparse.Namespace) -> dict[str, Any]:
         "alpha": args.alpha,
         "decoding": args.decoding,
         "consensus": args.consensus,
-        "valence": args.valence,
+        "valence": {"auto": "auto", "on": True, "off": False}[args.valence],
         "node_label": args.node_label,
         "edge_label": _edge_label(args),
         "random_state": args.seed,
@@ -123,9 +123,11 @@ def _add_model_options(p: argparse.ArgumentParser) -> None:
                         "alone (free) (default: anchored)")
     g.add_argument("--consensus", type=float, default=0.8,
                    help="agreement needed to edit the start graph's edges, in [0.5, 1] (default: 0.8)")
-    g.add_argument("--valence", action="store_true",
+    g.add_argument("--valence", nargs="?", const="on", default="auto", choices=["auto", "on", "off"],
                    help="molecules: decode graphs that obey valences (C 4, N 3, O 2, F 1; node labels are "
-                        "element symbols, edge labels bond orders)")
+                        "element symbols, edge labels bond orders); auto: on when every training node label "
+                        "is an element symbol and every edge label a bond order, off for other graphs; a bare "
+                        "--valence means on (default: auto)")
     _add_label_options(g)
     g.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
 
@@ -235,10 +237,11 @@ def cmd_predict(args: argparse.Namespace) -> int:
         model.set_params(n_jobs=n_jobs)
     X = read_features(args.features)
     formulas = _formulas(args, X.shape[0])
-    if Path(args.out).suffix.lower() in MOLECULE_EXTENSIONS and not model.valence:
-        # molecule files hold valid molecules only: decode with valences
-        model.set_params(valence=True)
-        print(f"writing molecules ({Path(args.out).suffix}): decoding with valence rules (as fit --valence)")
+    if out.suffix.lower() in MOLECULE_EXTENSIONS and not model.valence_:
+        # the file format never changes the prediction: refuse rather than decode differently
+        raise UsageError(f"--out {args.out}: molecule files hold valid molecules only, but {args.model} decodes "
+                         "without valence rules (fitted with --valence off, or its labels are not element "
+                         "symbols and bond orders); write .jsonl or .graphml, or refit with --valence auto")
     graphs = model.predict(X, formulas=formulas)
     write_graphs(args.out, graphs)
     print(f"{len(graphs)} predicted graphs written to {args.out}")

@@ -38,7 +38,7 @@ import gwpred
 from gwpred import BarycenterGraphPredictor
 from gwpred.cli import main
 from gwpred.datasets import load_demo
-from gwpred.io import write_graphs
+from gwpred.io import read_graphs, write_graphs
 
 REPO = Path(__file__).resolve().parents[1]
 TRAIN = list(range(0, 3000, 50))  # 60 molecules spread over the demo file
@@ -551,17 +551,36 @@ def test_predict_with_formula_column(capsys, tmp_path, files, demo):
                                 str(out), "--formulas", str(fpath), "--formula-column", "mf"], "no 'mf' column")
 
 
-def test_predict_to_smiles_file_decodes_valid_molecules(capsys, tmp_path, files):
-    # Reference: RDKit parses and sanitises every written SMILES (MolFromSmiles)
+def test_output_format_never_changes_the_prediction(capsys, tmp_path, files):
+    # The default model (valence="auto", on for element labels) writes the same graphs to every
+    # format. References: networkx label-isomorphism between the files' graphs; RDKit parses and
+    # sanitises every written SMILES (MolFromSmiles).
     Chem = pytest.importorskip("rdkit.Chem")
-    out = tmp_path / "pred.smi"
-    code, stdout, stderr = run(capsys, "predict", "--model", str(files["model"]), "--features", str(files["test_x"]),
-                               "--out", str(out), "-q")
-    assert code == 0
-    assert "valence rules" in stdout and "hypotheses" in stderr
-    lines = [ln.split()[0] for ln in out.read_text(encoding="utf-8").splitlines() if ln.strip()]
-    assert len(lines) == len(TEST)
+    graphs = {}
+    for ext in (".jsonl", ".graphml", ".smi", ".sdf"):
+        out = tmp_path / f"pred{ext}"
+        code, stdout, stderr = run(capsys, "predict", "--model", str(files["model"]), "--features",
+                                   str(files["test_x"]), "--out", str(out), "-q")
+        assert code == 0, stderr
+        assert "hypotheses" in stderr
+        graphs[ext] = read_graphs(out)
+        assert len(graphs[ext]) == len(TEST)
+    for ext, gs in graphs.items():
+        assert all(same_labeled_graph(g, h) for g, h in zip(graphs[".jsonl"], gs)), ext
+    lines = [ln.split()[0] for ln in (tmp_path / "pred.smi").read_text(encoding="utf-8").splitlines() if ln.strip()]
     assert all(Chem.MolFromSmiles(s) is not None for s in lines)
+
+
+def test_molecule_output_refuses_a_model_without_valence_rules(capsys, tmp_path, files):
+    # a model fitted with --valence off keeps its (possibly invalid) decoding: the .smi writer
+    # refuses it before any work instead of decoding differently for that format
+    model = tmp_path / "novalence.npz"
+    code, _, err = run(capsys, "fit", "--features", str(files["train_x"]), "--graphs", str(files["train_gj"]),
+                       "--model", str(model), "--valence", "off", "-q", *MODEL_OPTS)
+    assert code == 0, err
+    expect_usage_error(capsys, ["predict", "--model", str(model), "--features", str(files["test_x"]),
+                                "--out", str(tmp_path / "p.smi")], "--valence off", ".jsonl")
+    assert not (tmp_path / "p.smi").exists()
 
 
 # --------------------------------------------------------------------------

@@ -31,3 +31,29 @@ def test_barycenter_predictor_beats_nearest_neighbour_retrieval():
     assert ours["mean_ged"] < base["mean_ged"] - 0.1, (ours["mean_ged"], base["mean_ged"])
     assert ours["right_size_rate"] >= base["right_size_rate"]
     assert ours["connected_rate"] == 1.0
+
+
+@pytest.mark.slow
+def test_demo_command_prints_the_readme_table_and_only_valid_molecules(tmp_path, capsys):
+    # The README's first set-up command, run as a user would (default settings): the table it
+    # prints is the README's, and every prediction is a valid molecule (reference: RDKit's
+    # sanitisation through MolFromSmiles of the written SMILES).
+    import re
+    from pathlib import Path
+
+    from gwpred.cli import main
+    from gwpred.io import read_graphs
+
+    Chem = pytest.importorskip("rdkit.Chem")
+    from gwpred.chem import graph_to_smiles
+
+    assert main(["demo", "--out", str(tmp_path / "demo"), "-q"]) == 0
+    out = capsys.readouterr().out
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    for prefix in ("gwpred (FGW barycenter)", "1-NN retrieval  "):
+        line = next(ln for ln in out.splitlines() if ln.startswith(prefix))
+        assert line in readme, line
+    assert re.search(r"GED solved exactly for 100\.0% of pairs", out)
+    predicted = read_graphs(tmp_path / "demo" / "predicted.jsonl")
+    assert len(predicted) == 300
+    assert all(Chem.MolFromSmiles(graph_to_smiles(g)) is not None for g in predicted)

@@ -314,7 +314,7 @@ def test_valence_needs_bond_orders_and_elements():
     # a table of one's own makes any label usable
     model.set_params(valence={"atom": 2})
     assert nx.is_connected(model.predict(X[:1])[0])
-    with pytest.raises(TypeError, match="valence must be True, False or a dict"):
+    with pytest.raises(TypeError, match="valence must be 'auto', True, False or a dict"):
         BarycenterGraphPredictor(valence="yes").fit(X, [h, h, h])
 
 
@@ -343,3 +343,30 @@ def test_formulas_far_larger_than_training_are_refused():
     with pytest.raises(ValueError, match=rf"formulas\[1\] \(C60H122\) has 60 heavy atoms, more than {limit} \(four "
                                          r"times the largest training graph\)"):
         model.predict(X[200:202], formulas=["C4H10", "C60H122"])
+
+
+def test_valence_auto_is_on_for_molecules_and_off_for_other_graphs():
+    # valence="auto" (the default): on when every node label is an element symbol (periodic table,
+    # common practice) and every edge label a bond order 1/2/3; off otherwise, without an error
+    X = np.arange(3.0).reshape(-1, 1)
+    path = nx.path_graph(3)
+    nx.set_node_attributes(path, "C", "label")
+    nx.set_edge_attributes(path, 1, "label")
+    assert BarycenterGraphPredictor(top_k=1).fit(X, [path] * 3).valence_ is True
+    aromatic = path.copy()
+    nx.set_edge_attributes(aromatic, "aromatic", "label")
+    model = BarycenterGraphPredictor(top_k=1).fit(X, [aromatic] * 3)
+    assert model.valence_ is False
+    assert len(model.predict(X[:1])[0]) == 3  # decodes without valence rules, no error
+    atoms = nx.path_graph(3)
+    nx.set_node_attributes(atoms, "atom", "label")
+    assert BarycenterGraphPredictor(top_k=1, edge_label=None).fit(X, [atoms] * 3).valence_ is False
+    assert BarycenterGraphPredictor(top_k=1, valence=False).fit(X, [path] * 3).valence_ is False
+    # the bundled demo molecules (QM9 heavy atoms): on, and every default prediction RDKit-valid
+    X, graphs = load_demo()
+    model = BarycenterGraphPredictor().fit(X[:500], graphs[:500])
+    assert model.valence_ is True
+    Chem = pytest.importorskip("rdkit.Chem")
+    from gwpred.chem import graph_to_smiles
+
+    assert all(Chem.MolFromSmiles(graph_to_smiles(g)) is not None for g in model.predict(X[500:560]))

@@ -30,6 +30,7 @@ from .steps import (
     Settings,
     SoftGraph,
     barycenter_batch,
+    molecular_labels,
     neighbourhood,
     on_rows,
     padded_graphs,
@@ -103,14 +104,17 @@ class BarycenterGraphPredictor(BaseEstimator):
         lower mean GED.
     consensus : float, default=0.8
         Agreement needed for ``anchored`` decoding to change an anchor edge.
-    valence : bool or dict, default=False
+    valence : "auto", bool or dict, default="auto"
         Molecules: decode graphs whose atoms keep their valences (node labels
         are element symbols, edge labels bond orders 1/2/3; neutral atoms:
         C 4, N 3, O 2, F 1, other elements from RDKit), connected, and as close
         as possible to the ordinary decoding (an integer program, see
         :func:`~gwpred.decode.decode_valence`): a valid decoding stays as it
         is, an invalid one is repaired with as few edits as possible.  A dict
-        maps labels to valences of your own.  Always on for inputs given a
+        maps labels to valences of your own.  ``"auto"`` turns the rules on
+        when every training node label is an element symbol and every edge
+        label a bond order (or edge labels are ignored), and off for other
+        graphs; :attr:`valence_` tells which.  Always on for inputs given a
         formula; those are decoded as the composition's graph that agrees
         best with the barycenter.
     node_label, edge_label : str, default="label"
@@ -197,7 +201,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         "connect": Rule(Options(("auto", True, False))),
         "decoding": Rule(Options(tuple(DECODERS))),
         "consensus": Rule(Interval(0.5, 1.0)),
-        "valence": Rule(Types((bool, dict)), what="True, False or a dict of label -> valence", error=TypeError),
+        "valence": Rule(Options(("auto",)), Types((bool, dict)),
+                        what="'auto', True, False or a dict of label -> valence", error=TypeError),
         "handle_unknown": Rule(Options(("error", "ignore"))),
         "progress": Rule(Types((bool,))),
         "n_jobs": N_JOBS_RULE,
@@ -219,7 +224,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         connect: str | bool = "auto",
         decoding: str = "anchored",
         consensus: float = 0.8,
-        valence: bool | dict = False,
+        valence: str | bool | dict = "auto",
         node_label: str = "label",
         edge_label: str | None = "label",
         handle_unknown: str = "error",
@@ -388,10 +393,23 @@ class BarycenterGraphPredictor(BaseEstimator):
             return self.weights_.top_weights(X, self.top_k, progress=self.progress, empty="error")
         return self.weights_.top_weights(X, self.top_k, empty="error")
 
+    @property
+    def valence_(self) -> bool:
+        """Whether predictions obey valence rules: ``valence`` resolved against the training labels.
+
+        ``valence="auto"`` is True when every training node label is an element
+        symbol with a known valence and every edge label a bond order 1, 2 or 3
+        (or edge labels are ignored).
+        """
+        check_is_fitted(self, "labels_")
+        if isinstance(self.valence, str):  # "auto"
+            return molecular_labels(self.labels_)
+        return bool(self.valence)
+
     def _settings(self, need_valences: bool) -> Settings:
         valences = orders = None
         if need_valences:
-            valences, orders = valence_arrays(self.labels_, self.valence)
+            valences, orders = valence_arrays(self.labels_, self.valence if self.valence_ else False)
         return Settings(
             alpha=self.alpha,
             max_outer=self.max_outer,
@@ -404,7 +422,7 @@ class BarycenterGraphPredictor(BaseEstimator):
             connect=self.connected_ if self.connect == "auto" else bool(self.connect),
             labels=self.labels_,
             max_degree=self.max_degree_,
-            valence=bool(self.valence),
+            valence=self.valence_,
             valences=valences,
             orders=orders,
         )
@@ -426,7 +444,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         """
         parsed = parse_formulas(formulas, len(idx), self.labels_.node_labels_, 4 * int(self.sizes_.max()))
         # valence tables are needed (and checked) only to decode molecules
-        settings = self._settings(decode and (bool(self.valence) or any(f is not None for f in parsed)))
+        settings = self._settings(decode and (self.valence_ or any(f is not None for f in parsed)))
         slices = batch_slices(len(idx), self.batch_size, self.n_jobs)
         padded = padded_graphs(self.training_) if len(slices) > 1 and self.n_jobs != 1 else None
         if padded is None:

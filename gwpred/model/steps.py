@@ -50,12 +50,13 @@ __all__ = [
     "SoftGraph",
     "barycenter_batch",
     "barycenter_query",
-    "gather",
     "bond_orders",
     "choose_size",
     "choose_start",
     "decode_query",
     "formula_counts",
+    "gather",
+    "molecular_labels",
     "neighbourhood",
     "on_rows",
     "padded_graphs",
@@ -345,6 +346,25 @@ def valence_arrays(labels: LabelSpace, valence: bool | dict) -> tuple[list[int],
     """Valence per node label and bond order per edge label of a fitted label space."""
     table = valence if isinstance(valence, dict) else None
     return valence_table(labels.node_labels_, table), bond_orders(labels.edge_labels_, labels.edge_label)
+
+
+def molecular_labels(labels: LabelSpace) -> bool:
+    """True when valence rules apply to a fitted label space (``valence="auto"``).
+
+    Every node label must be an element symbol with a known valence and every
+    edge label a bond order 1, 2 or 3 (``None``: edge labels ignored, single bonds).
+
+    Raises
+    ------
+    ImportError
+        When an element's valence needs RDKit and it is not installed.
+    """
+    try:
+        valence_table(labels.node_labels_)
+        bond_orders(labels.edge_labels_, labels.edge_label)
+    except ValueError:
+        return False
+    return True
 
 
 # --------------------------------------------------------------------------- size, start, barycenter
