@@ -2,15 +2,19 @@
 
 Every drawing function takes an optional ``ax`` (a new figure is made when it is
 None) and returns the Axes it drew into; nothing here changes matplotlib's global
-settings. Colours come from the Okabe-Ito palette (:data:`PALETTE`), which stays
-distinguishable with the common colour-vision deficiencies; every colour is paired
-with a second cue (the label text in a node, the number of strokes or the dash
-pattern of an edge, the shape of an edit mark).
+settings. Element symbols get the colours of RDKit's default depictions
+(:data:`ATOM_PALETTE`, read from RDKit when it is installed), so that a drawing and an
+RDKit depiction beside it agree; other labels get the Okabe-Ito palette
+(:data:`PALETTE`), which stays distinguishable with the common colour-vision
+deficiencies. Every colour is paired with a second cue (the label text in a node, the
+number of strokes or the dash pattern of an edge, the shape of an edit mark).
 
 The drawn elements carry ``gid`` tags so that they can be found again (tests, SVG
 post-processing): ``"gwpred-nodes"`` (one scatter per drawn graph, one point per
-node), ``"gwpred-edges"`` (line collections, one segment per edge) and
-``"gwpred-edit-<node|edge>-<kind>"`` for the edit marks of :func:`draw_alignment`.
+node), ``"gwpred-node-number"`` (the node numbers, one text each), ``"gwpred-edges"``
+(line collections, one segment per edge), ``"gwpred-edit-<node|edge>-<kind>"`` for the
+edit marks of :func:`draw_alignment`, and ``"gwpred-input"``,
+``"gwpred-neighbour-input"`` and ``"gwpred-bit-strip"`` in :func:`draw_inputs`.
 """
 
 from __future__ import annotations
@@ -24,17 +28,22 @@ from typing import Any
 import matplotlib.pyplot as plt
 import networkx as nx
 import numpy as np
+import scipy.sparse as sp
 from matplotlib import patheffects as pe
 from matplotlib.collections import LineCollection
+from matplotlib.colors import ListedColormap, to_rgb
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
-from matplotlib.patches import Rectangle
+from matplotlib.patches import Patch, Rectangle
 from numpy.typing import ArrayLike, NDArray
 
-from ._utils import atomic_open
+from ._utils import atomic_open, has_extra, require_extra
+from .formula import ELEMENTS, atomic_number
 from .ged import edit_distance
 
 __all__ = [
+    "ATOM_PALETTE",
+    "DELETED_EDGE_STYLE",
     "EDIT_COLOURS",
     "PALETTE",
     "AlignmentEdits",
@@ -42,11 +51,13 @@ __all__ = [
     "comparison_grid",
     "draw_alignment",
     "draw_graph",
+    "draw_inputs",
     "draw_neighbors",
     "draw_node_scores",
     "draw_structure",
     "edge_styles",
     "graph_layout",
+    "graph_thumbnail_svg",
     "label_colours",
 ]
 
@@ -66,10 +77,13 @@ PALETTE = [
 #: reddish purple); node labels get the other palette colours first.
 EDIT_COLOURS = {"deleted": "#D55E00", "inserted": "#0072B2", "substituted": "#CC79A7"}
 
-# Shapes of the edit marks: a second cue next to the colour.
+# Shapes of the edit marks: a second cue next to the colour. A deleted edge gets a cross
+# (and its own dash pattern, DELETED_EDGE_STYLE), never parallel strokes.
 _EDIT_MARKERS = {"substituted": "o", "deleted": "s", "inserted": "D"}
+_EDGE_EDIT_MARKERS = {"substituted": "o", "deleted": "X", "inserted": "D"}
 _EDIT_KINDS = ("substituted", "deleted", "inserted")
-# Node label colours, in the order they are handed out: the palette minus the edit colours.
+# Colours of labels that are not element symbols, in the order they are handed out: the
+# Okabe-Ito palette with the edit-mark colours last.
 _LABEL_ORDER = [
     "#999999",
     "#56B4E9",
@@ -80,15 +94,35 @@ _LABEL_ORDER = [
     "#CC79A7",
     "#D55E00",
 ]
-# Element symbols get fixed colours close to the usual ones (carbon grey, nitrogen blue,
-# oxygen orange instead of red, which marks deletions here).
-_ELEMENT_COLOURS = {
-    "C": "#999999",
-    "N": "#56B4E9",
-    "O": "#E69F00",
-    "F": "#009E73",
-    "S": "#F0E442",
+
+#: RDKit's default atom palette, as its depictions write it (atomic number -> hex colour;
+#: ``-1`` is the colour of every element not listed). A copy of
+#: ``rdkit.Chem.Draw.rdMolDraw2D.MolDrawOptions().getAtomPalette()``, each channel
+#: ``c`` written as ``int(255 * c)`` like RDKit's SVG output; :func:`label_colours`
+#: reads the palette from RDKit itself when RDKit is installed and uses this copy otherwise.
+ATOM_PALETTE: dict[int, str] = {
+    -1: "#000000",
+    1: "#000000",
+    6: "#000000",
+    7: "#0000FF",
+    8: "#FF0000",
+    9: "#33CCCC",
+    15: "#FF7F00",
+    16: "#CCCC00",
+    17: "#00CC00",
+    35: "#7F4C19",
+    53: "#A01EEF",
 }
+# RDKit writes carbon (and every element it does not list) in black letters on white. A
+# black disc would hide its black outline and crossing bonds, so node discs of those
+# elements are a dark grey with white text instead (contrast 7.5:1, WCAG AAA).
+_DARK_DISC = "#555555"
+
+#: Look of a deleted edge in :func:`draw_alignment`: one stroke with short even dashes
+#: (a dash pattern :func:`edge_styles` never hands out), drawn in the ``"deleted"`` edit
+#: colour with a cross at its middle, so that it cannot pass for a bond of any order.
+DELETED_EDGE_STYLE: tuple[int, tuple[float, tuple[float, float]]] = (1, (0.0, (2.0, 2.0)))
+
 _EDGE_COLOUR = "#404040"
 _MATCHED_EDGE = "#404040"
 # Edge looks handed to labels that are not bond orders 1, 2 or 3: (strokes, line style).
@@ -120,11 +154,43 @@ def _edge_value(data: Mapping, edge_label: Hashable | None) -> Any:
     return None if edge_label is None else data.get(edge_label)
 
 
+def _is_element(label: Any) -> bool:
+    return isinstance(label, str) and label in ELEMENTS
+
+
 # --------------------------------------------------------------------------- colours, styles
 
 
+def _rgb_hex(rgb: Sequence[float]) -> str:
+    """``#RRGGBB`` of an RGB(A) triple in [0, 1], each channel as ``int(255 * c)`` (RDKit's way)."""
+    return "#" + "".join(f"{min(max(int(255 * float(c)), 0), 255):02X}" for c in rgb[:3])
+
+
+def _atom_palette() -> dict[int, str]:
+    """RDKit's default atom palette (hex), read from RDKit when installed, else the copy."""
+    if has_extra("rdkit"):
+        try:
+            draw = require_extra("rdkit.Chem.Draw.rdMolDraw2D", "label_colours")
+            raw = draw.MolDrawOptions().getAtomPalette()
+            return {int(z): _rgb_hex(c) for z, c in raw.items()}
+        except (ImportError, AttributeError):  # an RDKit without it: the copy is the same
+            pass
+    return dict(ATOM_PALETTE)
+
+
+def _element_colour(symbol: str, palette: Mapping[int, str]) -> str:
+    return palette.get(atomic_number(symbol), palette.get(-1, "#000000"))
+
+
+def _text_colour(face: str) -> str:
+    """Black or white, whichever contrasts more with ``face`` (WCAG 2 relative luminance)."""
+    lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in to_rgb(face)]
+    lum = 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
+    return "white" if 1.05 / (lum + 0.05) > (lum + 0.05) / 0.05 else "black"
+
+
 def label_colours(labels: Sequence[Hashable]) -> dict[Hashable, str]:
-    """Colour per node label: element symbols get fixed colours, other labels the palette.
+    """Colour per node label: element symbols as RDKit depicts them, other labels Okabe-Ito.
 
     Parameters
     ----------
@@ -134,30 +200,34 @@ def label_colours(labels: Sequence[Hashable]) -> dict[Hashable, str]:
     Returns
     -------
     dict
-        Label -> hex colour. ``C``, ``N``, ``O``, ``F`` and ``S`` get grey, sky blue,
-        orange, bluish green and yellow; other labels, in sorted order, the first
-        palette colours not yet used (the edit-mark colours of :data:`EDIT_COLOURS`
-        come last). Colours repeat beyond eight labels; the label is written in each
-        node, so the drawing stays unambiguous.
+        Label -> hex colour of the node disc, in sorted label order. Element symbols
+        (``"C"``, ``"Cl"``, ...) get the colour of RDKit's default atom palette (read from
+        RDKit when it is installed, else :data:`ATOM_PALETTE`): N blue, O red, F cyan,
+        S yellow, Cl green, and so on. RDKit draws carbon, hydrogen and unlisted elements
+        in black; their discs get dark grey (``#555555``) so that white text, the disc
+        outline and the bonds stay visible. Other labels get, in sorted order, the
+        Okabe-Ito colours (:data:`PALETTE`, the edit-mark colours of
+        :data:`EDIT_COLOURS` last); they repeat beyond eight labels. The label is written
+        in each node, so the drawing stays unambiguous when colours repeat.
 
     Examples
     --------
     >>> label_colours(["C", "O", "C", "Cl"])
-    {'C': '#999999', 'Cl': '#56B4E9', 'O': '#E69F00'}
+    {'C': '#555555', 'Cl': '#00CC00', 'O': '#FF0000'}
+    >>> label_colours(["a", "b"])
+    {'a': '#999999', 'b': '#56B4E9'}
     """
     ordered = sorted(set(labels), key=_sort_key)
+    elements = [lab for lab in ordered if _is_element(lab)]
     out: dict[Hashable, str] = {}
-    for lab in ordered:
-        if (
-            isinstance(lab, str)
-            and lab in _ELEMENT_COLOURS
-            and _ELEMENT_COLOURS[lab] not in out.values()
-        ):
-            out[lab] = _ELEMENT_COLOURS[lab]
-    free = [c for c in _LABEL_ORDER if c not in out.values()] or _LABEL_ORDER
+    if elements:
+        palette = _atom_palette()
+        for lab in elements:
+            colour = _element_colour(str(lab), palette)
+            out[lab] = _DARK_DISC if colour == "#000000" else colour
     rest = [lab for lab in ordered if lab not in out]
     for k, lab in enumerate(rest):
-        out[lab] = free[k % len(free)]
+        out[lab] = _LABEL_ORDER[k % len(_LABEL_ORDER)]
     return {lab: out[lab] for lab in ordered}
 
 
@@ -411,36 +481,69 @@ def _make_style(
     return _Style(colours, styles, node_label, edge_label, diameter, fontsize, radius)
 
 
+def _clearance(path: NDArray[np.float64], others: NDArray[np.float64]) -> float:
+    """Smallest distance from the points ``others`` to the polyline ``path`` (exact)."""
+    if len(others) == 0:
+        return math.inf
+    p, q = path[:-1], path[1:]
+    seg = q - p  # (s, 2)
+    rel = others[:, None, :] - p[None, :, :]  # (k, s, 2)
+    length2 = np.maximum((seg**2).sum(-1), 1e-300)
+    t = np.clip((rel * seg[None]).sum(-1) / length2[None], 0.0, 1.0)
+    d = rel - t[..., None] * seg[None]
+    return float(np.sqrt((d**2).sum(-1)).min())
+
+
+# Bends tried for an edge that would cross a node: the control point of a quadratic curve
+# sits this many chord lengths off the middle (the curve's bulge is half of it).
+_BENDS = (0.15, 0.25, 0.35, 0.5, 0.65, 0.8, 1.0)
+
+
 def _edge_path(
     a: NDArray[np.float64],
     b: NDArray[np.float64],
     others: NDArray[np.float64],
     radius: float,
-) -> NDArray[np.float64]:
-    """Points of an edge from a to b: straight, or bent round nodes it would cross.
+) -> tuple[NDArray[np.float64], bool]:
+    """Points of an edge from a to b: straight, or bent round the nodes it would cross.
 
-    ``others`` holds the positions of the nodes other than the two ends. The edge is a
-    quadratic curve through a control point off the middle, the first of a few bends
-    (alternating sides, growing) that keeps clear of every other node's disc.
+    ``others`` holds the positions of the nodes other than the two ends, ``radius`` the
+    node disc radius (data units). A path is clear when every point of the drawn
+    polyline stays more than 1.5 radii from every other node (half a radius between
+    the disc and the middle of the line: room for a triple bond's band). A straight edge
+    that is not clear becomes a quadratic curve (33 points) through a control point off
+    its middle: the least bend of ``_BENDS`` that is clear, trying first the side with fewer
+    nodes near the edge.
+
+    Returns
+    -------
+    points : ndarray of shape (2, 2) or (33, 2)
+        The two ends (straight) or the sampled curve.
+    clear : bool
+        False when no tried path was clear: the edge is then drawn straight.
     """
-    t = np.linspace(0.0, 1.0, 17)[:, None]
-    straight = a + t * (b - a)
-    if radius <= 0 or len(others) == 0:
-        return np.array([a, b])
-
-    def clear(points: NDArray[np.float64]) -> bool:
-        d = np.sqrt(((points[:, None, :] - others[None, :, :]) ** 2).sum(-1))
-        return bool(d.min() > 1.2 * radius)
-
-    if clear(straight):
-        return np.array([a, b])
-    normal = np.array([-(b - a)[1], (b - a)[0]])
-    for h in (0.25, -0.25, 0.45, -0.45, 0.7, -0.7):
-        ctrl = (a + b) / 2 + h * normal
-        curve = (1 - t) ** 2 * a + 2 * (1 - t) * t * ctrl + t**2 * b
-        if clear(curve):
-            return curve
-    return np.array([a, b])
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    others = np.asarray(others, dtype=float).reshape(-1, 2)
+    straight = np.array([a, b])
+    gap = 1.5 * radius
+    if radius <= 0 or _clearance(straight, others) > gap:
+        return straight, True
+    chord = b - a
+    if float(np.hypot(*chord)) < 1e-12:
+        return straight, False
+    normal = np.array([-chord[1], chord[0]])
+    # the side of the edge with fewer nodes near it first (ties: the left side)
+    near = others[np.sqrt(((others - (a + b) / 2) ** 2).sum(1)) < np.hypot(*chord)]
+    side = -1.0 if ((near - a) @ normal > 0).sum() > ((near - a) @ normal < 0).sum() else 1.0
+    t = np.linspace(0.0, 1.0, 33)[:, None]
+    for h in _BENDS:
+        for sign in (side, -side):
+            ctrl = (a + b) / 2 + sign * h * normal
+            curve = (1 - t) ** 2 * a + 2 * (1 - t) * t * ctrl + t**2 * b
+            if _clearance(curve, others) > gap:
+                return curve, True
+    return straight, False
 
 
 def _edge_paths(
@@ -454,7 +557,7 @@ def _edge_paths(
     for u, v in graph.edges:
         keep = np.ones(len(nodes), dtype=bool)
         keep[[index[u], index[v]]] = False
-        path = _edge_path(xy[index[u]], xy[index[v]], xy[keep], radius)
+        path, _ = _edge_path(xy[index[u]], xy[index[v]], xy[keep], radius)
         out[(u, v)] = path
         out[(v, u)] = path[::-1]
     return out
@@ -466,16 +569,21 @@ def _draw_edges(
     pos: Mapping,
     st: _Style,
     colour_of: Mapping[tuple, str] | None = None,
+    look_of: Mapping[tuple, tuple[int, Any]] | None = None,
 ) -> dict[tuple, NDArray[np.float64]]:
     """One LineCollection per (look, colour); every edge is one (maybe bent) line.
 
-    Returns the drawn points of every edge, keyed both ways round.
+    ``colour_of`` and ``look_of`` override the colour and the ``(strokes, linestyle)`` of
+    some edges (keyed both ways round). Returns the drawn points of every edge, keyed both
+    ways round.
     """
 
     paths = _edge_paths(graph, pos, st.radius)
     groups: dict[tuple, list] = {}
     for u, v, d in graph.edges(data=True):
-        look = st.styles.get(_edge_value(d, st.edge_label), (1, "solid"))
+        look = (look_of or {}).get((u, v)) or st.styles.get(
+            _edge_value(d, st.edge_label), (1, "solid")
+        )
         colour = (colour_of or {}).get((u, v), _EDGE_COLOUR)
         groups.setdefault((look, colour), []).append(paths[(u, v)])
     background = ax.get_facecolor()
@@ -494,8 +602,34 @@ def _draw_edges(
     return paths
 
 
-def _draw_nodes(ax: Any, graph: nx.Graph, pos: Mapping, st: _Style) -> None:
-    """One scatter for all nodes, the label written inside each."""
+def _number_direction(
+    i: int, xy: NDArray[np.float64], neighbours: Sequence[int]
+) -> NDArray[np.float64]:
+    """Unit vector from node ``i`` into the widest angle left free by its edges."""
+    angles = sorted(
+        math.atan2(*(xy[j] - xy[i])[::-1])
+        for j in neighbours
+        if j != i and np.hypot(*(xy[j] - xy[i])) > 1e-12
+    )
+    if not angles:
+        return np.array([math.sqrt(0.5), math.sqrt(0.5)])  # up and to the right
+    gaps = [
+        (angles[(k + 1) % len(angles)] - angles[k]) % (2 * math.pi) or 2 * math.pi
+        for k in range(len(angles))
+    ]
+    k = int(np.argmax(gaps))
+    mid = angles[k] + gaps[k] / 2
+    return np.array([math.cos(mid), math.sin(mid)])
+
+
+def _draw_nodes(
+    ax: Any, graph: nx.Graph, pos: Mapping, st: _Style, numbers: bool = False
+) -> None:
+    """One scatter for all nodes, the label written inside each, the number beside it.
+
+    A node's number is its position in ``graph.nodes`` (0-based), written small just
+    outside its disc, in the widest gap between its edges, on a white halo.
+    """
     nodes = list(graph.nodes)
     if not nodes:
         return
@@ -512,10 +646,39 @@ def _draw_nodes(ax: Any, graph: nx.Graph, pos: Mapping, st: _Style) -> None:
         zorder=3,
     )
     coll.set_gid("gwpred-nodes")
-    for (x, y), lab in zip(xy, labels):
+    for (x, y), lab, face in zip(xy, labels, faces):
         ax.text(
-            x, y, str(lab), ha="center", va="center", fontsize=st.fontsize, zorder=5
+            x,
+            y,
+            str(lab),
+            ha="center",
+            va="center",
+            fontsize=st.fontsize,
+            color=_text_colour(face),
+            zorder=5,
         )
+    if not numbers:
+        return
+    index = {v: i for i, v in enumerate(nodes)}
+    size = max(0.8 * st.fontsize, 5.0)
+    halo = [pe.withStroke(linewidth=2.0, foreground="white")]
+    for i, v in enumerate(nodes):
+        direction = _number_direction(i, xy, [index[w] for w in graph.neighbors(v)])
+        # text centre: half a disc plus about half the number's width from the centre
+        offset = direction * (0.5 * st.diameter + 0.45 * size * len(str(i)) + 1.5)
+        text = ax.annotate(
+            str(i),
+            xy=xy[i],
+            xytext=(float(offset[0]), float(offset[1])),
+            textcoords="offset points",
+            ha="center",
+            va="center",
+            fontsize=size,
+            color="#202020",
+            zorder=6,
+        )
+        text.set_path_effects(halo)
+        text.set_gid("gwpred-node-number")
 
 
 def _limits(
@@ -623,6 +786,7 @@ def draw_graph(
     pos: Mapping[Hashable, ArrayLike] | None = None,
     legend: bool = True,
     edge_name: str = "edge",
+    numbers: bool = False,
 ) -> Any:
     """Draw a labeled graph: node colour and text by label, edge strokes by edge label.
 
@@ -646,6 +810,11 @@ def draw_graph(
         Add a legend (node labels, then edge labels) under the drawing.
     edge_name : str, default="edge"
         Word before each edge label in the legend (for example ``"bond order"``).
+    numbers : bool, default=False
+        Write each node's number, its position in ``graph.nodes`` (0-based), small beside
+        its disc (texts with gid ``"gwpred-node-number"``). For a graph predicted by
+        gwpred, node ``i`` is row ``i`` of the barycenter's heat maps
+        (:func:`draw_structure`, :func:`draw_node_scores`).
 
     Returns
     -------
@@ -683,7 +852,7 @@ def draw_graph(
     _frame(ax, xlim, ylim)
     st = _make_style(ax, colours, styles, node_label, edge_label, [layout], xlim, ylim)
     _draw_edges(ax, graph, layout, st)
-    _draw_nodes(ax, graph, layout, st)
+    _draw_nodes(ax, graph, layout, st, numbers=numbers)
     if title:
         ax.set_title(title, fontsize=9)
     if legend:
@@ -963,11 +1132,12 @@ def _edit_marks(
             zorder=4,
         )
     else:
+        scale = 1.3 if kind == "deleted" else 1.0  # the cross is thin: a little larger
         coll = ax.scatter(
             xy[:, 0],
             xy[:, 1],
-            s=size**2,
-            marker=_EDIT_MARKERS[kind],
+            s=(scale * size) ** 2,
+            marker=_EDGE_EDIT_MARKERS[kind],
             facecolors=colour,
             edgecolors="white",
             linewidths=0.6,
@@ -991,6 +1161,7 @@ def draw_alignment(
     edge_name: str = "edge",
     seed: int = 0,
     time_limit: float | None = None,
+    numbers: bool = False,
 ) -> Any:
     """Draw a predicted graph beside the true one with the edit path between them marked.
 
@@ -998,9 +1169,12 @@ def draw_alignment(
     the same place in its panel, so the two drawings look alike where they agree. Edits
     are marked with colour and shape (see :data:`EDIT_COLOURS`): a substituted node gets
     a circle on both sides, a deleted (predicted only) node a square, an inserted (true
-    only) node a diamond; edited edges are drawn in the edit colour with a mark of the
-    same shape at their middle, deleted edges in the predicted panel and inserted edges
-    in the true panel. Matched nodes and edges are drawn plainly.
+    only) node a diamond. A deleted edge (predicted panel) is one dashed stroke in the
+    deletion colour with a cross at its middle (:data:`DELETED_EDGE_STYLE`, whatever its
+    bond order, so that it never passes for a double bond); substituted and inserted
+    edges keep the look of their label in their edit colour, with a circle or a diamond
+    at their middle, inserted edges in the true panel. Matched nodes and edges are drawn
+    plainly.
 
     Parameters
     ----------
@@ -1025,6 +1199,10 @@ def draw_alignment(
     seed : int, default=0
     time_limit : float, default=None
         Seconds for :func:`gwpred.metrics.edit_distance` when ``mapping`` is None.
+    numbers : bool, default=False
+        Number the predicted nodes as :func:`draw_graph` does (position in
+        ``predicted.nodes``: the barycenter row for a gwpred prediction). The true panel is
+        not numbered: a mapped true node is drawn where its predicted node is.
 
     Returns
     -------
@@ -1088,8 +1266,11 @@ def draw_alignment(
     edge_colour_p |= {
         e: EDIT_COLOURS["substituted"] for e, _ in edits.edges_substituted
     }
-    paths_p = _draw_edges(ax, predicted, pos_p, st, _both_ways(edge_colour_p))
-    _draw_nodes(ax, predicted, pos_p, st)
+    look_p = {e: DELETED_EDGE_STYLE for e in edits.edges_deleted}
+    paths_p = _draw_edges(
+        ax, predicted, pos_p, st, _both_ways(edge_colour_p), _both_ways(look_p)
+    )
+    _draw_nodes(ax, predicted, pos_p, st, numbers=numbers)
     edge_colour_t = {e: EDIT_COLOURS["inserted"] for e in edits.edges_inserted}
     edge_colour_t |= {
         f: EDIT_COLOURS["substituted"] for _, f in edits.edges_substituted
@@ -1146,7 +1327,7 @@ def _free_point(
     return path[int(mid)]
 
 
-def _both_ways(colour_of: Mapping[tuple, str]) -> dict[tuple, str]:
+def _both_ways(colour_of: Mapping[tuple, Any]) -> dict[tuple, Any]:
     out = dict(colour_of)
     out.update({(b, a): c for (a, b), c in colour_of.items()})
     return out
@@ -1173,13 +1354,15 @@ def _edit_handles(edits: AlignmentEdits) -> list:
                 label=f"{key} ({k})",
             )
         else:
+            # a deleted edge's sample shows its dashes and cross, the others a solid line
             h = Line2D(
                 [],
                 [],
                 color=colour,
                 linewidth=_BASE_WIDTH,
-                marker=_EDIT_MARKERS[kind],
-                markersize=5,
+                linestyle=DELETED_EDGE_STYLE[1] if kind == "deleted" else "solid",
+                marker=_EDGE_EDIT_MARKERS[kind],
+                markersize=6.5 if kind == "deleted" else 5,
                 markerfacecolor=colour,
                 markeredgecolor="white",
                 label=f"{key} ({k})",
@@ -1529,3 +1712,458 @@ def comparison_grid(
     target = Path(path)
     with atomic_open(target, binary=True) as fh:  # a killed run never leaves half a PNG
         fig.savefig(fh, dpi=110, format=target.suffix.lstrip(".").lower() or "png")
+
+
+# --------------------------------------------------------------------------- inputs
+
+
+def _dense(values: Any, name: str) -> NDArray[np.float64]:
+    """A float array of a dense array-like, a scipy sparse matrix or a list of sparse rows."""
+    if sp.issparse(values):
+        values = values.toarray()
+    elif (
+        isinstance(values, (list, tuple))
+        and values
+        and any(sp.issparse(r) for r in values)
+    ):
+        try:
+            values = sp.vstack([sp.csr_matrix(r) for r in values]).toarray()
+        except ValueError as err:
+            raise ValueError(
+                f"{name} holds sparse rows that cannot be stacked ({err}); give rows of one length"
+            ) from None
+    try:
+        arr = np.asarray(values, dtype=float)
+    except (TypeError, ValueError):
+        raise TypeError(
+            f"{name} must be numeric (a NumPy array, a list of numbers or a scipy sparse "
+            f"matrix), got {type(values).__name__}"
+        ) from None
+    bad = np.flatnonzero(~np.isfinite(arr.ravel()))
+    if len(bad):
+        where = np.unravel_index(bad[0], arr.shape) if arr.ndim > 1 else (int(bad[0]),)
+        raise ValueError(
+            f"{name} holds {len(bad)} NaN or infinite value(s), the first at index "
+            f"{tuple(int(i) for i in where)}; drop or impute them before drawing"
+        )
+    return arr
+
+
+def _check_inputs(
+    x: Any, neighbour_inputs: Any, weights: Any, grid: Any, labels: Any
+) -> tuple[NDArray, NDArray, NDArray, NDArray | None, list[str]]:
+    vec = _dense(x, "x")
+    if vec.ndim == 2 and vec.shape[0] == 1:
+        vec = vec[0]  # one row of a matrix, as X[i] of a scipy sparse matrix gives it
+    if vec.ndim != 1 or vec.size == 0:
+        raise ValueError(
+            f"x must be one input vector of shape (d,), got shape {vec.shape}; pass X[i]"
+        )
+    rows = _dense(neighbour_inputs, "neighbour_inputs")
+    d = vec.size
+    if rows.ndim == 1 and rows.size == 0:  # no neighbours at all
+        rows = rows.reshape(0, d)
+    if rows.ndim != 2:
+        raise ValueError(
+            f"neighbour_inputs must be a 2-D array (m, d), got shape {rows.shape}; for one "
+            "neighbour pass X[[j]] or row.reshape(1, -1)"
+        )
+    m = rows.shape[0]
+    if rows.shape[1] != d:
+        raise ValueError(
+            f"neighbour_inputs has {rows.shape[1]} columns but x has {d} values; give the "
+            "neighbours' inputs in the same columns as x"
+        )
+    w = _dense(weights, "weights")
+    if w.ndim != 1 or w.size != m:
+        raise ValueError(
+            f"weights must be 1-D with one value per neighbour ({m}), got shape {w.shape}"
+        )
+    g = None
+    if grid is not None:
+        g = _dense(grid, "grid")
+        if g.ndim != 1 or g.size != d:
+            raise ValueError(
+                f"grid must be 1-D with one x value per column of x ({d}), got shape "
+                f"{g.shape}; pass grid=None to use column indices"
+            )
+    if labels is None:
+        names = [f"neighbour {k}" for k in range(m)]
+    else:
+        if isinstance(labels, str) or len(labels) != m:
+            got = "a str" if isinstance(labels, str) else f"{len(labels)} entries"
+            raise ValueError(
+                f"labels has {got} for {m} neighbours; give one name per row of neighbour_inputs"
+            )
+        names = [str(lab) for lab in labels]
+    return vec, rows, w, g, names
+
+
+def _is_binary(*arrays: NDArray) -> bool:
+    return all(bool(np.isin(a, (0.0, 1.0)).all()) for a in arrays)
+
+
+def draw_inputs(
+    x: ArrayLike,
+    neighbour_inputs: ArrayLike,
+    weights: ArrayLike,
+    grid: ArrayLike | None = None,
+    labels: Sequence[str] | None = None,
+    ax: Any = None,
+    *,
+    kind: str = "auto",
+    title: str | None = None,
+) -> Any:
+    """Draw an input vector against the inputs of the training neighbours it leaned on.
+
+    Continuous data (spectra) are drawn as lines: the neighbours thin, one Okabe-Ito
+    colour each, more opaque the larger their weight's magnitude, and the input bold
+    black on top. 0/1 data (fingerprint bits) are drawn as a compact bit strip: one row
+    per vector (the input first, then the neighbours by decreasing weight), only the
+    columns set in some row, each cell coloured by how it agrees with the input.
+
+    Parameters
+    ----------
+    x : array-like of shape (d,)
+        The input vector (a dense array, a list, or a 1 x d scipy sparse row; bool,
+        integer (for example uint8) or float).
+    neighbour_inputs : array-like of shape (m, d)
+        The neighbours' inputs, one row each: a dense array, a scipy sparse matrix, or a
+        list of 1 x d sparse rows. With ``m = 0`` (and empty ``weights``) only the input
+        is drawn.
+    weights : array-like of shape (m,)
+        The neighbours' weights (for example ``SoftGraph.weights``), shown in the legend
+        (line drawing) or in the row names (bit strip). Finite; negative values are
+        allowed and shaded by their magnitude.
+    grid : array-like of shape (d,), default=None
+        x value of each column (for example wavenumbers in cm^-1); None uses the column
+        index. In a bit strip it names the shown columns.
+    labels : sequence of str of length m, default=None
+        Names of the neighbours (for example ``"training #12"``); by default
+        ``"neighbour k"``.
+    ax : matplotlib Axes, default=None
+    kind : {"auto", "lines", "bits"}, default="auto"
+        ``"auto"`` draws a bit strip when every value of ``x`` and ``neighbour_inputs``
+        is 0 or 1, lines otherwise.
+    title : str, default=None
+
+    Returns
+    -------
+    matplotlib Axes
+        Lines have gids ``"gwpred-input"`` and ``"gwpred-neighbour-input"``; the bit strip
+        is an image with gid ``"gwpred-bit-strip"`` whose cells hold 0 (unset), 1 (set in
+        the input), 2 (set here and in the input), 3 (set here only) or 4 (set in the input
+        only).
+
+    Raises
+    ------
+    ValueError
+        If a shape or length does not match (``neighbour_inputs`` columns, ``weights``,
+        ``grid``, ``labels``), a value is NaN or infinite, ``kind`` is unknown, or
+        ``kind="bits"`` is asked for data that are not 0/1.
+    TypeError
+        If an input is not numeric.
+
+    Examples
+    --------
+    >>> import matplotlib; matplotlib.use("Agg")
+    >>> ax = draw_inputs([0.1, 0.5, 0.2], [[0.1, 0.4, 0.3], [0.0, 0.6, 0.1]], [0.7, 0.3])
+    >>> [t.get_text() for t in ax.get_legend().get_texts()]
+    ['input', 'neighbour 0 (w = 0.70)', 'neighbour 1 (w = 0.30)']
+    """
+    if kind not in ("auto", "lines", "bits"):
+        raise ValueError(f"kind must be 'auto', 'lines' or 'bits', got {kind!r}")
+    vec, rows, w, grid_arr, names = _check_inputs(
+        x, neighbour_inputs, weights, grid, labels
+    )
+    binary = _is_binary(vec, rows)
+    if kind == "bits" and not binary:
+        raise ValueError(
+            "kind='bits' draws 0/1 data, but x or neighbour_inputs holds other values; "
+            "use kind='lines' (or 'auto')"
+        )
+    order = sorted(range(len(w)), key=lambda k: -abs(w[k]))  # largest weights first
+    if kind == "bits" or (kind == "auto" and binary):
+        ax = _bit_strip(vec, rows, w, grid_arr, names, order, ax)
+    else:
+        ax = _input_lines(vec, rows, w, grid_arr, names, order, ax)
+    if title:
+        ax.set_title(title, fontsize=9)
+    return ax
+
+
+# Okabe-Ito colours for neighbour lines, the ones that read best as thin lines on white
+# first (yellow and grey last).
+_LINE_ORDER = [
+    "#0072B2",
+    "#D55E00",
+    "#009E73",
+    "#CC79A7",
+    "#E69F00",
+    "#56B4E9",
+    "#999999",
+    "#F0E442",
+]
+
+
+def _input_lines(
+    vec: NDArray,
+    rows: NDArray,
+    w: NDArray,
+    grid: NDArray | None,
+    names: list[str],
+    order: list[int],
+    ax: Any,
+) -> Any:
+    ax = _new_axes(ax, (6.0, 3.0))
+    xs = np.arange(vec.size) if grid is None else grid
+    wmax = (float(np.abs(w).max()) if len(w) else 0.0) or 1.0
+    handles = []
+    rank_of = {k: r for r, k in enumerate(order)}
+    for k in order[::-1]:  # the heaviest neighbour is drawn last, on top
+        rank = rank_of[k]
+        (line,) = ax.plot(
+            xs,
+            rows[k],
+            color=_LINE_ORDER[rank % len(_LINE_ORDER)],
+            linewidth=1.0,
+            alpha=0.35 + 0.65 * abs(float(w[k])) / wmax,
+            zorder=2,
+            label=f"{names[k]} (w = {w[k]:.2f})",
+        )
+        line.set_gid("gwpred-neighbour-input")
+        handles.append(line)
+    (main,) = ax.plot(xs, vec, color="black", linewidth=2.0, zorder=3, label="input")
+    main.set_gid("gwpred-input")
+    ax.legend(handles=[main] + handles[::-1], fontsize=7, frameon=False)
+    ax.set_xlabel("column" if grid is None else "")
+    ax.tick_params(labelsize=7)
+    return ax
+
+
+# Bit strip cell codes and colours: unset, set in the input (black), set here and in the
+# input (Okabe-Ito blue), set here only (Okabe-Ito orange), set in the input but not here
+# (light grey).
+_BIT_COLOURS = ["#FFFFFF", "#000000", "#0072B2", "#E69F00", "#D0D0D0"]
+_BIT_NAMES = [
+    "",
+    "set in the input",
+    "set here and in the input",
+    "set here, not in the input",
+    "set in the input, not here",
+]
+
+
+def _tanimoto(a: NDArray, b: NDArray) -> float:
+    """|a and b| / |a or b| of two 0/1 vectors (Tanimoto / Jaccard; nan when both are 0)."""
+    union = int(np.logical_or(a, b).sum())
+    return float(np.logical_and(a, b).sum()) / union if union else math.nan
+
+
+def _bit_strip(
+    vec: NDArray,
+    rows: NDArray,
+    w: NDArray,
+    grid: NDArray | None,
+    names: list[str],
+    order: list[int],
+    ax: Any,
+) -> Any:
+    cols = np.flatnonzero((vec != 0) | (rows != 0).any(0))
+    ax = _new_axes(ax, (max(3.0, 1.6 + 0.09 * len(cols)), 0.9 + 0.28 * (len(order) + 1)))
+    a = vec[cols] != 0
+    strip = np.zeros((len(order) + 1, len(cols)), dtype=float)
+    strip[0] = np.where(a, 1, 0)
+    for r, k in enumerate(order, start=1):
+        b = rows[k, cols] != 0
+        strip[r] = np.select([b & a, b & ~a, ~b & a], [2, 3, 4], 0)
+    ticks = ["input"] + [
+        f"{names[k]} (w = {w[k]:.2f}, Tanimoto {_tanimoto(vec != 0, rows[k] != 0):.2f})"
+        for k in order
+    ]
+    if not len(cols):
+        ax.set_axis_off()
+        ax.text(0.5, 0.5, "no bit is set in any vector", ha="center", va="center")
+        return ax
+    image = ax.imshow(
+        strip,
+        cmap=ListedColormap(_BIT_COLOURS),
+        vmin=-0.5,
+        vmax=4.5,
+        aspect="auto",
+        interpolation="nearest",
+    )
+    image.set_gid("gwpred-bit-strip")
+    ax.set_yticks(range(len(ticks)), ticks, fontsize=7)
+    step = max(1, -(-len(cols) // 40))  # at most about 40 column names
+    shown = list(range(0, len(cols), step))
+    names_x = cols if grid is None else grid[cols]
+    ax.set_xticks(shown, [f"{names_x[j]:g}" for j in shown], rotation=90, fontsize=6)
+    ax.set_xlabel(
+        f"{len(cols)} of {vec.size} columns ({'bit' if grid is None else 'grid value'})",
+        fontsize=7,
+    )
+    # thin white lines between the cells
+    ax.set_xticks(np.arange(-0.5, len(cols)), minor=True)
+    ax.set_yticks(np.arange(-0.5, len(ticks)), minor=True)
+    ax.grid(which="minor", color="white", linewidth=0.6)
+    ax.tick_params(which="minor", length=0)
+    present = sorted({int(v) for v in np.unique(strip)} - {0})
+    ax.legend(
+        handles=[
+            Patch(facecolor=_BIT_COLOURS[c], edgecolor="#808080", label=_BIT_NAMES[c])
+            for c in present
+        ],
+        loc="center left",
+        bbox_to_anchor=(1.01, 0.5),
+        fontsize=7,
+        frameon=False,
+    )
+    return ax
+
+
+# --------------------------------------------------------------------------- thumbnails
+
+# SVG dash patterns of the edge looks (in viewBox units, two per pixel).
+_SVG_DASHES = {"solid": None, "dashed": "6 3", "dotted": "2 3", "dashdot": "6 3 2 3"}
+
+
+def _short_hex(colour: str) -> str:
+    """``#RGB`` for a colour ``#RRGGBB`` whose channels are doubled digits, else as is."""
+    c = colour.upper()
+    if len(c) == 7 and c[1] == c[2] and c[3] == c[4] and c[5] == c[6]:
+        return "#" + c[1] + c[3] + c[5]
+    return c
+
+
+def graph_thumbnail_svg(
+    G: nx.Graph,
+    node_label: Hashable = "label",
+    edge_label: Hashable | None = "label",
+    size: int = 56,
+) -> str:
+    """A tiny self-contained SVG drawing of a graph, for thumbnails in tables.
+
+    Molecules (every node label an element symbol) are drawn as skeletal formulas, as
+    RDKit depicts them: carbon atoms are the unlabeled corners (a carbon without bonds is
+    written ``C``), other atoms are their symbol in RDKit's default atom colour
+    (:data:`ATOM_PALETTE`), bonds stop short of the symbols, and double and triple bonds
+    are two and three parallel lines. No hydrogens are written (the heavy-atom
+    skeleton). Other graphs get a small disc per node in its :func:`label_colours`
+    colour. The layout is :func:`graph_layout` (the same drawing with or without RDKit,
+    and for molecules RDKit would not accept), y pointing up as in the other drawings.
+
+    Parameters
+    ----------
+    G : networkx.Graph
+    node_label : hashable, default="label"
+    edge_label : hashable or None, default="label"
+        Bond orders 1, 2, 3 give 1, 2, 3 lines; other labels the strokes and dashes of
+        :func:`edge_styles`; None draws single lines.
+    size : int, default=56
+        Width and height in pixels (16 to 1024).
+
+    Returns
+    -------
+    str
+        One ``<svg>`` element: no XML prolog, no ids, no external references, integer
+        coordinates in a viewBox of ``2 * size`` units (half pixels); a few hundred bytes
+        for a 9-atom molecule.
+
+    Raises
+    ------
+    TypeError
+        If ``G`` is not a simple undirected networkx graph or ``size`` not an int.
+    ValueError
+        If ``size`` is outside 16..1024.
+
+    Examples
+    --------
+    >>> g = nx.Graph([(0, 1), (1, 2)]); nx.set_node_attributes(g, {0: "C", 1: "C", 2: "O"}, "label")
+    >>> g.edges[1, 2]["label"] = 2; g.edges[0, 1]["label"] = 1
+    >>> svg = graph_thumbnail_svg(g)
+    >>> svg.startswith('<svg xmlns="http://www.w3.org/2000/svg" width="56"'), "#F00" in svg
+    (True, True)
+    """
+    _check_graph(G, "G")
+    if isinstance(size, bool) or not isinstance(size, (int, np.integer)):
+        raise TypeError(f"size must be an int (pixels), got {type(size).__name__}")
+    if not 16 <= size <= 1024:
+        raise ValueError(f"size must be between 16 and 1024 pixels, got {size}")
+    box = 2 * int(size)  # viewBox units: half pixels, so that integers are precise enough
+    head = (
+        f'<svg xmlns="http://www.w3.org/2000/svg" width="{size}" height="{size}" '
+        f'viewBox="0 0 {box} {box}">'
+    )
+    nodes = list(G.nodes)
+    if not nodes:
+        return head + "</svg>"
+    labels = [G.nodes[v].get(node_label, "?") for v in nodes]
+    molecule = all(_is_element(lab) for lab in labels)
+    font = round(0.18 * box)
+    margin = 0.75 * font if molecule else 0.09 * box
+    layout = graph_layout(G)
+    # fill the box, but keep bonds at most 0.3 of its side (small molecules stay small)
+    lengths = [float(np.hypot(*(layout[u] - layout[v]))) for u, v in G.edges if u != v]
+    scale = box - 2 * margin
+    if lengths and np.median(lengths) > 0:
+        scale = min(scale, 0.3 * box / float(np.median(lengths)))
+    xy = {
+        v: np.array([box / 2 + (p[0] - 0.5) * scale, box / 2 - (p[1] - 0.5) * scale])
+        for v, p in layout.items()
+    }
+    lettered = {
+        v
+        for v, lab in zip(nodes, labels)
+        if molecule and (lab != "C" or G.degree(v) == 0)
+    }
+    styles = edge_styles(_edge_labels_of([G], edge_label))
+    spacing = max(2.0, round(0.035 * box))  # between the lines of a double bond
+    paths: dict[str | None, list[str]] = {}
+    for u, v, d in G.edges(data=True):
+        if u == v:
+            continue
+        a, b = xy[u], xy[v]
+        length = float(np.hypot(*(b - a)))
+        if length < 1e-9:
+            continue
+        unit = (b - a) / length
+        cut = 0.45 * font
+        a = a + unit * (cut if u in lettered else 0.0)
+        b = b - unit * (cut if v in lettered else 0.0)
+        strokes, linestyle = styles.get(_edge_value(d, edge_label), (1, "solid"))
+        dash = _SVG_DASHES.get(linestyle) if isinstance(linestyle, str) else "6 3"
+        normal = np.array([-unit[1], unit[0]])
+        for k in range(strokes):
+            off = (k - (strokes - 1) / 2) * spacing * normal
+            p, q = np.rint(a + off).astype(int), np.rint(b + off).astype(int)
+            paths.setdefault(dash, []).append(f"M{p[0]} {p[1]} {q[0]} {q[1]}")
+    parts = [head]
+    for dash, segments in paths.items():
+        extra = f' stroke-dasharray="{dash}"' if dash else ""
+        parts.append(
+            f'<path fill="none" stroke="#000" stroke-width="2"{extra} d="{"".join(segments)}"/>'
+        )
+    if molecule:
+        palette = _atom_palette()
+        texts = []
+        for v, lab in zip(nodes, labels):
+            if v in lettered:
+                x, y = np.rint(xy[v] + np.array([0.0, 0.35 * font])).astype(int)
+                colour = _short_hex(_element_colour(lab, palette))
+                texts.append(f'<text x="{x}" y="{y}" fill="{colour}">{lab}</text>')
+        if texts:
+            parts.append(
+                f'<g font-family="sans-serif" font-size="{font}" text-anchor="middle">'
+                + "".join(texts)
+                + "</g>"
+            )
+    else:
+        colours = label_colours(labels)
+        r = max(2, round(0.05 * box))
+        for v, lab in zip(nodes, labels):
+            x, y = np.rint(xy[v]).astype(int)
+            parts.append(
+                f'<circle cx="{x}" cy="{y}" r="{r}" fill="{_short_hex(colours[lab])}"/>'
+            )
+    return "".join(parts) + "</svg>"
