@@ -8,24 +8,32 @@ Outside references used here:
   absent on a developer machine; a failure on CI (``CI`` set), where ``.ci/run``
   installs them.
 - Python's ``html.parser`` reads the page without a browser (ids, links, scripts).
-- RDKit (``Chem.MolFromSmiles``) parses the SMILES shown in the table.
+- RDKit (``Chem.MolFromSmiles``) parses the SMILES shown in the table; RDKit's
+  ``CalcMolFormula`` gives the formulas; RDKit's SDF reader reads the SDF download.
+- Python's ``csv`` module reads the CSV download.
+- networkx's ``weisfeiler_lehman_subgraph_hashes`` gives the Weisfeiler-Lehman features
+  behind the confidence column; SciPy's ``spearmanr`` relates confidence and GED.
 - matplotlib's ``imread`` decodes the browser's PNG screenshot.
 - QM9 heavy-atom graphs and SMILES from ``gwpred.datasets.load_demo`` (built from the QM9
   data of the PyPI package qm9pack). The predictions here are other QM9 graphs (and for
-  one item a copy of the truth), so exact matches and ranks are known by construction.
+  one item a copy of the truth), so exact matches and ranks are known by construction;
+  the 300-item page holds a model's predictions for the last 300 demo molecules.
 """
 
 from __future__ import annotations
 
+import csv
 import html
 import io
 import json
 import os
+import re
 import shutil
 import tempfile
 from collections import Counter
 from html.parser import HTMLParser
 from pathlib import Path
+from types import SimpleNamespace
 
 import networkx as nx
 import numpy as np
@@ -34,7 +42,7 @@ import pytest
 from gwpred import BarycenterGraphPredictor
 from gwpred._utils import CAUTION
 from gwpred.cli import main
-from gwpred.datasets import load_demo
+from gwpred.datasets import load_demo, wavenumber_grid
 from gwpred.io import write_graphs
 from gwpred.metrics import summarize
 from gwpred.report import (
@@ -98,9 +106,28 @@ def summary(pairs):
     return summarize(pred, truth)
 
 
+TRAIN = slice(1000, 1040)  # the small pages' "training" graphs: 40 other QM9 molecules
+
+
+def leaned(i: int) -> tuple[np.ndarray, np.ndarray]:
+    """Item i leaned on training graphs i, i + 10, i + 20 (of TRAIN) with weights 0.6, 0.3, 0.1."""
+    return np.array([i, i + 10, i + 20]), np.array([0.6, 0.3, 0.1])
+
+
 @pytest.fixture(scope="module")
-def report_file(tmp_path_factory, pairs, ranked, summary):
+def training(qm9):
+    X, graphs, smiles = qm9
+    train = [g.copy() for g in graphs[TRAIN]]
+    for g, s in zip(train[::2], smiles[TRAIN][::2]):  # half of them with their SMILES
+        g.graph["smiles"] = s
+    return X[TRAIN], train
+
+
+@pytest.fixture(scope="module")
+def report_file(tmp_path_factory, qm9, pairs, ranked, summary, training):
+    X, _, _ = qm9
     pred, truth = pairs
+    X_train, train = training
     path = tmp_path_factory.mktemp("report") / "report.html"
     write_report(
         path,
@@ -108,8 +135,14 @@ def report_file(tmp_path_factory, pairs, ranked, summary):
         truth,
         ranked=ranked,
         summary=summary,
+        training_graphs=train,
+        leaned_on=[leaned(i) for i in range(N)],
+        inputs=X[:N],
+        training_inputs=X_train,
+        input_grid=wavenumber_grid(),
+        input_name="IR spectrum",
         drawings=4,
-        top=3,
+        top_k=3,
         title="test report",
     )
     return path
@@ -123,8 +156,9 @@ class Page(HTMLParser):
         self.tags: list[tuple[str, dict]] = []
         self.text: list[str] = []
         self.headings: list[str] = []  # of the items table
-        self.rows: list[list] = []  # data-value of each cell of each item row
+        self.rows: list[list] = []  # value of each cell of each item row (data-v, else its text)
         self._in_th = False
+        self._cell: list | None = None  # [data-v or None, text] of the open cell
         self.feed(text)
 
     def handle_starttag(self, tag, attrs):
@@ -136,16 +170,22 @@ class Page(HTMLParser):
         elif tag == "tr" and "data-index" in attrs:
             self.rows.append([])
         elif tag == "td" and self.rows:
-            self.rows[-1].append(attrs.get("data-value"))
+            self._cell = [attrs.get("data-v"), ""]
 
     def handle_endtag(self, tag):
         if tag == "th":
             self._in_th = False
+        elif tag == "td" and self._cell is not None:
+            value, text = self._cell
+            self.rows[-1].append(text.strip() if value is None else value)
+            self._cell = None
 
     def handle_data(self, data):
         self.text.append(data)
         if self._in_th:
             self.headings[-1] += data.strip()
+        if self._cell is not None:
+            self._cell[1] += data
 
     def column(self, name: str) -> list:
         k = self.headings.index(name)
@@ -186,15 +226,17 @@ def test_page_table_and_caution(report_file, pairs, summary):
     rows = [a for t, a in page.tags if t == "tr" and "data-index" in a]
     assert [int(a["data-index"]) for a in rows] == list(range(N))
     assert CAUTION in "".join(page.text)  # node labels are element symbols
-    assert page.count("section", **{"class": "item"}) == N
-    assert text.count("No drawings: only the first 4 items are drawn") == N - 4
+    # only the drawn items get a panel (the others are table rows: a small page)
+    assert page.count("section", **{"class": "item"}) == 4
+    assert [a["id"] for t, a in page.tags if t == "section"] == [f"item-{i}" for i in range(4)]
+    assert text.count("No drawings: only the first 4 items are drawn") == 1  # said once
+    links = [a["href"] for t, a in page.tags if t == "a" and a.get("href", "").startswith("#item-")]
+    assert links == [f"#item-{i}" for i in range(4)]  # no link to a panel that does not exist
     # the GED column holds the summary's values
     assert [float(v) for v in page.column("GED")] == [
         it["ged"] for it in summary["items"]
     ]
-    assert [int(v) for v in page.column("exact match")] == [
-        int(i == EXACT) for i in range(N)
-    ]
+    assert page.column("exact match") == ["yes" if i == EXACT else "no" for i in range(N)]
     assert [int(v) for v in page.column("true nodes")] == [
         g.number_of_nodes() for g in truth
     ]
@@ -219,7 +261,7 @@ def test_page_ranks_are_known(report_file):
     text = report_file.read_text(encoding="utf-8")
     page = Page(text)
     assert page.column("truth at rank") == [
-        "2.0" if i % 2 == 0 else "inf" for i in range(N)
+        "2" if i % 2 == 0 else "inf" for i in range(N)
     ]
     assert "truth in top 1 (4 lists)" in text and "truth in top 5 (4 lists)" in text
     assert "= truth" in text  # the second candidate of a drawn item is marked
@@ -252,6 +294,12 @@ def test_molecules_without_rdkit_or_without_bond_orders(pairs, monkeypatch):
     assert (
         "END OF HEADER" not in text and "valid molecule" not in text
     )  # no RDKit output
+    # heavy-atom formulas only (Hill order: C first, then alphabetical; for C, F, N, O that
+    # is alphabetical), and no SDF (no bond orders)
+    counts = [sorted(Counter(lab for _, lab in g.nodes(data="label")).items()) for g in truth[:2]]
+    hill = ["".join(s + (str(n) if n > 1 else "") for s, n in c) for c in counts]
+    assert Page(text).column("true formula") == hill
+    assert 'id="download-sdf"' not in text and 'id="download-csv"' in text
     monkeypatch.setattr(report, "has_extra", lambda name: False)
     text = build_report(pred[:2], truth[:2], drawings=1)
     assert (
@@ -261,12 +309,24 @@ def test_molecules_without_rdkit_or_without_bond_orders(pairs, monkeypatch):
     assert (
         "END OF HEADER" not in text and Page(text).count("svg") >= 2
     )  # matplotlib drawings
+    # formulas with hydrogens need no RDKit (RDKit's own formula of the SMILES agrees);
+    # the SDF download is there, its atoms at 0, 0 (no 2D layout without RDKit)
+    rdMolDescriptors = pytest.importorskip("rdkit.Chem.rdMolDescriptors")
+    Chem = pytest.importorskip("rdkit.Chem")
+    page = Page(text)
+    assert "true SMILES" not in page.headings
+    assert page.column("true formula") == [
+        rdMolDescriptors.CalcMolFormula(Chem.MolFromSmiles(g.graph["smiles"])) for g in truth[:2]
+    ]
+    data = json.loads(text.split('id="gwpred-data">')[1].split("</script>")[0])
+    assert [m[0] for m in data["mols"]] == [0, 1] and all(m[3] == "" for m in data["mols"])
+    assert 'id="download-sdf"' in text
 
 
 def test_report_with_barycenters(qm9):
     X, graphs, _ = qm9
     train = list(range(0, 3000, 50))
-    model = BarycenterGraphPredictor(top_k=3, alpha=0.5, random_state=0).fit(
+    model = BarycenterGraphPredictor(n_neighbors=3, alpha=0.5, random_state=0).fit(
         X[train], [graphs[i] for i in train]
     )
     test = [25, 625]
@@ -284,6 +344,168 @@ def test_report_with_barycenters(qm9):
     for s in soft:  # the captions name the training graphs with the largest weights
         j = int(s.neighbors[np.argmax(s.weights)])
         assert f"training #{j}" in text
+
+
+def wl_features(g: nx.Graph) -> Counter:
+    """Weisfeiler-Lehman subtree features (round, colour) with counts, from networkx's hashes:
+    node labels and the multiset of (edge label, neighbour colour), 3 rounds."""
+    per_node = nx.weisfeiler_lehman_subgraph_hashes(
+        g, edge_attr="label", node_attr="label", iterations=3, include_initial_labels=True
+    )
+    return Counter((t, h) for hashes in per_node.values() for t, h in enumerate(hashes))
+
+
+def wl_cosine(a: Counter, b: Counter) -> float:
+    dot = sum(a[f] * b[f] for f in a.keys() & b.keys())
+    return dot / np.sqrt(sum(v * v for v in a.values()) * sum(v * v for v in b.values()))
+
+
+def test_page_ids_formulas_and_confidence(report_file, pairs, training):
+    Chem = pytest.importorskip("rdkit.Chem")
+    rdMolDescriptors = pytest.importorskip("rdkit.Chem.rdMolDescriptors")
+    pred, truth = pairs
+    _, train = training
+    page = Page(report_file.read_text(encoding="utf-8"))
+    # the id of each item: its predicted graph's, else its true graph's (load_demo names them)
+    assert page.column("id") == [p.graph.get("id") or t.graph["id"] for p, t in zip(pred, truth)]
+    # formulas with implicit hydrogens: RDKit's for the SMILES shown
+    for name, smiles in (("true formula", "true SMILES"), ("predicted formula", "predicted SMILES")):
+        assert page.column(name) == [
+            rdMolDescriptors.CalcMolFormula(Chem.MolFromSmiles(s)) for s in page.column(smiles)
+        ]
+    # confidence: sum_j w_j k(prediction, training graph j), k the cosine of the WL feature
+    # counts (networkx's WL hashes)
+    shown = [float(v) for v in page.column("confidence")]
+    for i, value in enumerate(shown):
+        idx, w = leaned(i)
+        ref = float(np.dot(w, [wl_cosine(wl_features(pred[i]), wl_features(train[j])) for j in idx]))
+        assert value == pytest.approx(ref, abs=5e-4)
+        assert 0 <= value <= 1
+    text = report_file.read_text(encoding="utf-8")
+    assert "not a calibrated probability" in text  # the key says what the column is
+
+
+def test_confidence_of_a_prediction_all_neighbours_share(pairs, training):
+    pred, truth = pairs
+    _, train = training
+    # every neighbour is the predicted molecule (renumbered): full agreement
+    same = [nx.relabel_nodes(pred[0], {v: 10 + k for k, v in enumerate(pred[0])}) for _ in range(3)]
+    # model.neighbors(X) as returned (2-D arrays, zero weights where fewer were kept) works too
+    idx, w = np.array([[0, 1, 2, 0]]), np.array([[0.5, 0.25, 0.25, 0.0]])
+    page = Page(build_report(pred[:1], truth[:1], training_graphs=same, leaned_on=(idx, w), drawings=0))
+    assert page.column("confidence") == ["1.000"]
+    # without leaned_on, the barycenters' neighbours and weights are used: same column
+    soft = SimpleNamespace(structure=np.eye(2), node_scores=np.eye(2), neighbors=idx[0, :3], weights=w[0, :3])
+    page = Page(build_report(pred[:1], truth[:1], training_graphs=same, barycenters=[soft], drawings=0))
+    assert page.column("confidence") == ["1.000"]
+    # and no confidence column without the training graphs
+    page = Page(build_report(pred[:1], truth[:1], leaned_on=(idx, w), drawings=0))
+    assert "confidence" not in page.headings
+
+
+def test_panels_show_inputs_and_named_neighbours(report_file, training):
+    _, train = training
+    text = report_file.read_text(encoding="utf-8")
+    page = Page(text)
+    # a spectrum overlay per drawn item, naming the 3 training items with the largest weights
+    assert text.count("The IR spectrum of item") == 4
+    for i in range(4):
+        idx, _ = leaned(i)
+        for j in idx:
+            assert f"training #{j} · {train[j].graph['id']}" in text
+    # neighbours: id and SMILES under each drawing (given or from RDKit), with the index
+    assert text.count("The training graphs this prediction leaned on") == 4
+    names = [d for d in page.text if d.startswith("training #")]
+    assert "training #0" in names and train[0].graph["smiles"] in page.text
+    assert train[0].graph["id"] in page.text
+
+
+def test_overlay_of_sparse_bits(qm9, pairs, training):
+    # fingerprint-like inputs: uint8 0/1 rows, the training inputs a scipy sparse matrix
+    sparse = pytest.importorskip("scipy.sparse")
+    X, _, _ = qm9
+    pred, truth = pairs
+    _, train = training
+    bits = (X[:40] > 0.05).astype(np.uint8)
+    text = build_report(
+        pred[:1], truth[:1], training_graphs=train, leaned_on=[leaned(0)], inputs=bits[:1],
+        training_inputs=sparse.csr_matrix(bits), input_name="fingerprint", drawings=1,
+    )
+    assert "The fingerprint of item 0 over those of the 3 training items" in text
+
+
+def test_candidate_names(pairs, ranked):
+    # names of ranked candidates: graph["id"] (as SDF titles are read), else graph["name"]
+    pred, truth = pairs
+    named = {}
+    for row, cands in ranked.items():
+        first = cands[0].graph.copy()
+        first.graph.clear()
+        first.graph["id" if row % 4 == 0 else "name"] = f"cand-{row}"
+        named[row] = [RankedCandidate(first, 17, 0.9), *cands[1:]]
+    text = build_report(pred, truth, ranked=named, drawings=N, top_k=1)
+    page = Page(text)
+    assert page.column("top candidate") == [f"cand-{i}" if i % 2 == 0 else "" for i in range(N)]
+    for row in named:
+        assert f"candidate #1 cand-{row}, score 0.9" in text
+
+
+# --------------------------------------------------------------------------- the demo page
+
+
+@pytest.fixture(scope="module")
+def demo_page(qm9):
+    """The demo's page for a model fitted on the first 2700 demo molecules, predicting the last 300.
+
+    Built as ``gwpred demo`` builds it: 8 items drawn in full with their barycenters, every
+    item with the training graphs it leaned on and its spectrum.
+    """
+    X, graphs, smiles = qm9
+    train, test = slice(0, 2700), slice(2700, 3000)
+    model = BarycenterGraphPredictor(random_state=0).fit(X[train], graphs[train])
+    pred = model.predict(X[test])
+    truth = [g.copy() for g in graphs[test]]
+    for g, s in zip(truth, smiles[test]):
+        g.graph["smiles"] = s
+    summary = summarize(pred, truth)
+    idx, w = model.neighbors(X[test])
+    page = build_report(
+        pred,
+        truth,
+        summary=summary,
+        barycenters=model.predict_barycenters(X[test][:8]),
+        training_graphs=graphs[train],
+        label_names=list(model.labels_.node_labels_),
+        leaned_on=list(zip(idx, w)),
+        inputs=X[test],
+        training_inputs=X[train],
+        input_grid=wavenumber_grid(),
+        input_name="IR spectrum (computed)",
+        drawings=8,
+    )
+    return page, summary
+
+
+def test_demo_page_size(demo_page):
+    page, _ = demo_page
+    parsed = Page(page)
+    assert len(parsed.rows) == 300
+    assert page.count("Soft barycenter before decoding") == 8
+    assert page.count("The IR spectrum (computed) of item") == 8
+    # 300 items, 8 of them drawn in full: well under the 1.4 MB of full panels for all
+    assert len(page.encode("utf-8")) < 600_000
+
+
+def test_confidence_follows_ged_on_demo(demo_page):
+    # on the bundled QM9 subset (real data), items whose neighbours agree with the
+    # prediction are predicted better: confidence and GED are negatively rank-correlated
+    spearmanr = pytest.importorskip("scipy.stats").spearmanr
+    page, summary = demo_page
+    parsed = Page(page)
+    confidence = [float(v) for v in parsed.column("confidence")]
+    geds = [it["ged"] for it in summary["items"]]
+    assert [float(v) for v in parsed.column("GED")] == geds
+    assert spearmanr(confidence, geds).statistic < 0
 
 
 # --------------------------------------------------------------------------- errors
@@ -306,8 +528,8 @@ def test_build_report_errors(pairs, summary):
         build_report([g], limit=0)
     with pytest.raises(ValueError, match="drawings must be an int >= 0, got -1"):
         build_report([g], drawings=-1)
-    with pytest.raises(ValueError, match="top must be an int >= 0"):
-        build_report([g], top=-2)
+    with pytest.raises(ValueError, match="top_k must be an int >= 0"):
+        build_report([g], top_k=-2)
     with pytest.raises(
         ValueError, match="ranked has a list for row 5, but there are 2 predictions"
     ):
@@ -331,9 +553,43 @@ def test_build_report_errors(pairs, summary):
         build_report([g], barycenters=[np.eye(2)])
 
 
+@pytest.mark.parametrize(
+    "kwargs, error, message",
+    [
+        ({"leaned_on": "neighbours.npy"}, TypeError, "leaned_on must be a list of (indices, weights) pairs"),
+        ({"leaned_on": np.zeros((1, 2))}, TypeError, "leaned_on must be a list of (indices, weights) pairs"),
+        ({"leaned_on": [None, None]}, ValueError, "leaned_on has 2 entries for 1 predictions"),
+        ({"leaned_on": [([0],)]}, ValueError, "leaned_on[0] must be a pair (indices, weights) of 1-D arrays, got"),
+        ({"leaned_on": [([0, 1], [1.0])]}, ValueError, "of the same length, got shapes (2,) and (1,)"),
+        ({"leaned_on": [([0.0], [1.0])]}, ValueError, "leaned_on[0] holds indices of dtype float64"),
+        ({"leaned_on": [([0], [np.nan])]}, ValueError, "weights that are not finite non-negative numbers"),
+        ({"leaned_on": [([0], [-1.0])]}, ValueError, "weights that are not finite non-negative numbers"),
+        ({"leaned_on": [([5], [1.0])]}, ValueError, "leaned_on[0] points to training graph 5, but training_graphs has 2"),
+        ({"input_name": 3}, TypeError, "input_name must be a str"),
+        ({"inputs": np.zeros(3)}, ValueError, "inputs must be a 2-D array of shape (n_items, n_features), got shape (3,)"),
+        ({"inputs": np.zeros((3, 2))}, ValueError, "inputs has 3 rows for 1 predictions"),
+        ({"inputs": np.zeros((1, 2)), "training_inputs": 7}, TypeError, "training_inputs must be indexable"),
+        ({"inputs": np.zeros((1, 2)), "input_grid": [1.0]}, ValueError, "input_grid must hold 2 finite numbers"),
+        ({"inputs": np.zeros((1, 2)), "input_grid": ["a", "b"]}, ValueError, "input_grid must hold 2 finite numbers"),
+        ({"inputs": [["a", "b"]]}, ValueError, "inputs[0] is not a vector of numbers"),
+        ({"inputs": [[np.inf, 0]]}, ValueError, "inputs[0] must hold 2 finite numbers"),
+        ({"inputs": np.zeros((1, 2)), "training_inputs": np.zeros((1, 2))}, ValueError, "training_inputs has no row 1"),
+        ({"inputs": np.zeros((1, 2)), "training_inputs": np.zeros((2, 3))}, ValueError,
+         "training_inputs[1] must hold 2 finite numbers (as many as the inputs have columns), got 3 values"),
+    ],
+)
+def test_leaned_on_and_inputs_errors(pairs, kwargs, error, message):
+    pred, _ = pairs
+    kwargs = {"training_graphs": pred[:2], **kwargs}
+    if "inputs" in kwargs and "leaned_on" not in kwargs:
+        kwargs["leaned_on"] = [([1, 0], [0.7, 0.3])]
+    with pytest.raises(error, match=re.escape(message)):
+        build_report(pred[:1], drawings=1, **kwargs)
+
+
 def test_barycenter_pointing_outside_the_training_graphs(qm9):
     X, graphs, _ = qm9
-    model = BarycenterGraphPredictor(top_k=2, random_state=0).fit(X[:20], graphs[:20])
+    model = BarycenterGraphPredictor(n_neighbors=2, random_state=0).fit(X[:20], graphs[:20])
     soft = model.predict_barycenters(X[30:31])
     with pytest.raises(
         ValueError, match="points to training graph .* but training_graphs has 1"
@@ -498,7 +754,7 @@ def test_cli_report(capsys, files):
         out_file,
         "--drawings",
         "2",
-        "--top",
+        "--top-k",
         "2",
         "--title",
         "CLI page",
@@ -541,7 +797,7 @@ def test_cli_report_help(capsys):
         "--time-limit",
         "--limit",
         "--drawings",
-        "--top",
+        "--top-k",
         "--node-label",
         "--quiet",
     ):
@@ -621,13 +877,15 @@ def browser():
 
 
 def column(driver, name: str) -> list[float]:
+    """The column's numbers in the order shown: data-v, else the text (yes 1, no 0)."""
     return driver.execute_script(
         """
         var heads = Array.from(document.querySelectorAll('#items thead th'));
-        var col = heads.findIndex(function (h) { return h.textContent.trim() === arguments[0]; }, null);
-        col = heads.map(function (h) { return h.textContent.trim(); }).indexOf(arguments[0]);
+        var col = heads.map(function (h) { return h.textContent.trim(); }).indexOf(arguments[0]);
         return Array.from(document.querySelectorAll('#items tbody tr')).map(function (r) {
-            return parseFloat(r.cells[col].getAttribute('data-value')); });
+            var c = r.cells[col], v = c.getAttribute('data-v');
+            if (v === null) v = c.textContent.trim();
+            return v === 'yes' ? 1 : v === 'no' ? 0 : parseFloat(v); });
         """,
         name,
     )
@@ -691,16 +949,193 @@ def test_report_in_browser(browser, report_file, summary):
     assert colours > 50 and non_white > 0.05
 
 
+def shown_rows(driver) -> list[int]:
+    """Item numbers of the rows the table shows, in their order."""
+    return driver.execute_script(
+        "return Array.from(document.querySelectorAll('#items tbody tr'))"
+        ".filter(function (r) { return r.getClientRects().length > 0; })"
+        ".map(function (r) { return parseInt(r.dataset.index, 10); });"
+    )
+
+
+def download(driver, button: str) -> str:
+    """Click a download button; the text of the file it makes (the Blob handed to the link)."""
+    from selenium.webdriver.common.by import By
+
+    driver.execute_cdp_cmd("Browser.setDownloadBehavior", {"behavior": "deny"})  # no file on disk
+    driver.execute_script(
+        "window.gwBlobs = []; if (!window.gwMake) { window.gwMake = URL.createObjectURL; }"
+        "URL.createObjectURL = function (b) { window.gwBlobs.push(b); return window.gwMake.call(URL, b); };"
+    )
+    driver.find_element(By.ID, button).click()
+    return driver.execute_async_script(
+        "var done = arguments[arguments.length - 1];"
+        "if (window.gwBlobs.length !== 1) { done(null); } else { window.gwBlobs[0].text().then(done); }"
+    )
+
+
+@pytest.fixture(scope="module")
+def filter_page(tmp_path_factory, pairs, training):
+    """The small page, with an odd id (comma, quotes) and one invalid prediction; its summary."""
+    pred, truth = pairs
+    _, train = training
+    pred = [g.copy() for g in pred]
+    pred[1].graph["id"] = 'sample "1", batch 2'
+    star = nx.star_graph(5)  # a carbon with five carbon neighbours: not a molecule
+    nx.set_node_attributes(star, "C", "label")
+    nx.set_edge_attributes(star, 1, "label")
+    pred[5] = star
+    path = tmp_path_factory.mktemp("filter") / "filter.html"
+    summary = summarize(pred, truth)
+    write_report(
+        path, pred, truth, summary=summary, training_graphs=train, leaned_on=[leaned(i) for i in range(N)],
+        drawings=0,
+    )
+    return path, pred, summary
+
+
+def test_filter_in_browser(browser, filter_page):
+    from selenium.webdriver.common.by import By
+
+    path, _, summary = filter_page
+    page = Page(path.read_text(encoding="utf-8"))
+    browser.get(path.as_uri())
+    count = browser.find_element(By.ID, "filter-count")
+    assert shown_rows(browser) == list(range(N)) and count.text == f"{N} of {N} items shown"
+    # words: every one must occur in the item number, id, formula or SMILES
+    box = browser.find_element(By.ID, "filter-text")
+    searched = [
+        " ".join(page.column(c)[i] for c in ("#", "id", "predicted formula", "true formula",
+                                             "predicted SMILES", "true SMILES")).lower()
+        for i in range(N)
+    ]
+    smiles = page.column("true SMILES")[2]
+    box.send_keys(smiles)
+    expected = [i for i in range(N) if smiles.lower() in searched[i]]
+    assert 2 in expected and shown_rows(browser) == expected
+    assert count.text == f"{len(expected)} of {N} items shown"
+    box.clear()
+    box.send_keys("batch 2")  # the id of item 1
+    assert shown_rows(browser) == [1]
+    box.clear()
+    box.send_keys(" ")
+    assert shown_rows(browser) == list(range(N))
+    # largest GED
+    geds = [it["ged"] for it in summary["items"]]
+    limit = sorted(geds)[N // 2]
+    browser.find_element(By.ID, "filter-ged").send_keys(str(int(limit)))
+    assert shown_rows(browser) == [i for i in range(N) if geds[i] <= limit]
+    browser.find_element(By.ID, "filter-ged").clear()
+    # invalid molecules only: the five-valent carbon
+    browser.find_element(By.ID, "filter-invalid").click()
+    assert shown_rows(browser) == [5] and page.column("valid molecule")[5] == "no"
+    browser.find_element(By.ID, "filter-invalid").click()
+    assert shown_rows(browser) == list(range(N))
+
+
+def test_csv_download_in_browser(browser, filter_page):
+    from selenium.webdriver.common.by import By
+
+    path, pred, summary = filter_page
+    page = Page(path.read_text(encoding="utf-8"))
+    browser.get(path.as_uri())
+    text = download(browser, "download-csv")
+    rows = list(csv.reader(io.StringIO(text)))  # Python's csv module reads what the page wrote
+    head, body = rows[0], rows[1:]
+    assert head == ["index", "id", "confidence", "ged", "exact_match", "valid", "formula", "true_formula",
+                    "smiles", "true_smiles", "n_pred", "n_true", "node_label_accuracy", "edge_f1"]
+    col = {k: [r[head.index(k)] for r in body] for k in head}
+    assert col["index"] == [str(i) for i in range(N)]
+    assert col["id"][1] == 'sample "1", batch 2'  # quoted, comma and quotes kept
+    assert [float(v) for v in col["ged"]] == [it["ged"] for it in summary["items"]]
+    assert col["exact_match"] == [str(int(i == EXACT)) for i in range(N)]
+    assert col["valid"] == ["0" if i == 5 else "1" for i in range(N)]
+    for key, name in (("smiles", "predicted SMILES"), ("true_smiles", "true SMILES"),
+                      ("formula", "predicted formula"), ("confidence", "confidence")):
+        assert col[key] == page.column(name)
+    # the rows shown, in the order shown: sorted by GED (largest first), GED <= 10 only
+    click_heading(browser, "GED")
+    click_heading(browser, "GED")
+    browser.find_element(By.ID, "filter-ged").send_keys("10")
+    order = shown_rows(browser)
+    text = download(browser, "download-csv")
+    body = list(csv.reader(io.StringIO(text)))[1:]
+    assert [int(r[0]) for r in body] == order
+    assert order == sorted((i for i in range(N) if summary["items"][i]["ged"] <= 10),
+                           key=lambda i: (-summary["items"][i]["ged"], i))
+
+
+def test_sdf_download_in_browser(browser, filter_page):
+    Chem = pytest.importorskip("rdkit.Chem")
+    path, pred, summary = filter_page
+    page = Page(path.read_text(encoding="utf-8"))
+    browser.get(path.as_uri())
+    text = download(browser, "download-sdf")
+    assert text.count("$$$$") == N
+    # RDKit's SDF reader: one record per row, the id as title, the table's values as properties
+    supplier = Chem.ForwardSDMolSupplier(io.BytesIO(text.encode()), sanitize=False)
+    mols = list(supplier)
+    assert len(mols) == N
+    ids, smiles = page.column("id"), page.column("predicted SMILES")
+    for i, (mol, g) in enumerate(zip(mols, pred)):
+        assert mol.GetProp("_Name") == ids[i] and mol.GetProp("id") == ids[i]
+        assert int(mol.GetProp("index")) == i
+        assert float(mol.GetProp("ged")) == summary["items"][i]["ged"]
+        assert mol.GetProp("confidence") == page.column("confidence")[i]
+        assert Counter(a.GetSymbol() for a in mol.GetAtoms()) == Counter(lab for _, lab in g.nodes(data="label"))
+        assert mol.GetNumBonds() == g.number_of_edges()
+        assert mol.GetConformer().GetPositions().any()  # RDKit's 2D layout, not all at 0, 0
+        if i == 5:
+            continue  # the five-valent carbon: RDKit rejects it, as the table says
+        clean = Chem.Mol(mol)
+        Chem.SanitizeMol(clean)
+        assert Chem.MolToSmiles(clean) == Chem.MolToSmiles(Chem.MolFromSmiles(smiles[i]))
+        assert mol.GetProp("smiles") == smiles[i]
+
+
+@pytest.mark.parametrize("width", [1400, 800])
+def test_demo_page_fits_the_window(browser, demo_page, tmp_path, width):
+    page, _ = demo_page
+    path = tmp_path / "demo.html"
+    path.write_text(page, encoding="utf-8")
+    browser.set_window_size(width, 1000)
+    try:
+        browser.get(path.as_uri())
+        sizes = browser.execute_script(
+            """
+            var heads = Array.from(document.querySelectorAll('#items thead th'));
+            var row = document.querySelector('#items tbody tr'), wrap = document.querySelector('.tablewrap');
+            var cells = {};
+            heads.forEach(function (h, k) { cells[h.textContent.trim()] = row.cells[k].getBoundingClientRect().width; });
+            var right = Math.max.apply(null, Array.from(document.querySelectorAll('figure, .cards, .tools, p'))
+                .map(function (e) { return e.getBoundingClientRect().right; }));
+            return {page: document.documentElement.scrollWidth, window: window.innerWidth, cells: cells,
+                    wrap: wrap.getBoundingClientRect().right, right: right,
+                    scrolls: wrap.scrollWidth > wrap.clientWidth};
+            """
+        )
+        # the page never scrolls sideways: wide content scrolls inside the table's box
+        assert sizes["page"] <= sizes["window"] == width
+        assert sizes["wrap"] <= width and sizes["right"] <= width
+        if width < 1000:
+            assert sizes["scrolls"]  # the table's own box scrolls sideways instead
+        for name in ("id", "predicted SMILES", "true SMILES", "predicted formula"):
+            assert sizes["cells"][name] >= 80, (name, sizes["cells"][name])
+        assert sizes["cells"]["predicted"] >= 56 and sizes["cells"]["true"] >= 56  # depictions
+    finally:
+        browser.set_window_size(1280, 1600)
+
+
 def test_demo_report_in_browser(browser, capsys, tmp_path):
     out_dir = tmp_path / "demo"
     code, out, err = run(
         capsys,
         "demo",
-        "--test-size",
+        "--n-test",
         "6",
-        "--show",
-        "2",
-        "--top-k",
+        "--drawings",
+        "6",
+        "--n-neighbors",
         "3",
         "--out",
         out_dir,
