@@ -21,6 +21,7 @@ import numbers
 import os
 import secrets
 import sys
+import warnings
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -29,6 +30,7 @@ from types import ModuleType
 from typing import IO, Any, Union
 
 import numpy as np
+import scipy.sparse as sp
 from numpy.typing import ArrayLike, NDArray
 from tqdm.auto import tqdm
 
@@ -172,7 +174,11 @@ def check_inputs(X: ArrayLike, name: str = "X", *, compact: bool = False) -> NDA
     Raises
     ------
     ValueError
-        If ``X`` is not numeric, not 2-D, has no rows, or holds NaN or infinite values.
+        If ``X`` is not numeric, not 2-D, has no rows or no columns, or holds
+        NaN or infinite values.
+    TypeError
+        If ``X`` is a scipy sparse matrix, or holds objects that are neither
+        numbers nor strings.
 
     Examples
     --------
@@ -181,6 +187,11 @@ def check_inputs(X: ArrayLike, name: str = "X", *, compact: bool = False) -> NDA
     >>> check_inputs(np.array([[0, 1]], dtype=np.uint8), compact=True).dtype
     dtype('uint8')
     """
+    if sp.issparse(X):  # np.asarray would wrap it in a 0-d object array
+        raise TypeError(
+            f"{name} is a scipy sparse matrix ({type(X).__name__}); sparse input is not supported: "
+            f"pass a dense array, e.g. {name}.toarray()."
+        )
     try:
         arr = np.asarray(X)
         if np.iscomplexobj(arr):
@@ -190,10 +201,12 @@ def check_inputs(X: ArrayLike, name: str = "X", *, compact: bool = False) -> NDA
             arr = np.asarray(arr, dtype=np.float64)
     except _ComplexInput:
         raise ValueError(
-            f"{name} holds complex numbers; pass real features (e.g. magnitudes with np.abs, or real "
-            "and imaginary parts as separate columns)."
+            f"Complex data not supported: {name} holds complex numbers; pass real features (e.g. "
+            "magnitudes with np.abs, or real and imaginary parts as separate columns)."
         ) from None
-    except (TypeError, ValueError):
+    except TypeError as err:  # an element that is neither a number nor a string: numpy's message
+        raise TypeError(f"{name} must be a numeric array of shape (n_samples, n_features); {err}.") from None
+    except ValueError:
         raise ValueError(f"{name} must be a numeric array of shape (n_samples, n_features).") from None
     if arr.ndim != 2:
         raise ValueError(
@@ -202,6 +215,11 @@ def check_inputs(X: ArrayLike, name: str = "X", *, compact: bool = False) -> NDA
         )
     if arr.shape[0] == 0:
         raise ValueError(f"{name} has no rows; pass at least one sample.")
+    if arr.shape[1] == 0:
+        raise ValueError(
+            f"{name} has 0 feature(s) (shape={arr.shape}) while a minimum of 1 is required; "
+            "pass at least one column."
+        )
     if keep:
         return arr
     bad = ~np.isfinite(arr)
@@ -373,3 +391,34 @@ def atomic_write_bytes(path: StrPath, data: bytes) -> None:
     with atomic_open(Path(path), binary=True) as fh:
         fh.write(data)
 
+
+
+def renamed_keyword(old: str, new: str, old_value: Any, new_value: Any, default: Any) -> Any:
+    """The value of a renamed keyword argument; the old spelling works for one more release.
+
+    Parameters
+    ----------
+    old, new : str
+        The old and the new keyword names.
+    old_value : Any
+        What was passed under the old name (None when not passed).
+    new_value, default : Any
+        What was passed under the new name, and its default.
+
+    Returns
+    -------
+    Any
+        ``new_value``, or ``old_value`` (with a FutureWarning) when the old name was used.
+
+    Raises
+    ------
+    TypeError
+        When both names were given.
+    """
+    if old_value is None:
+        return new_value
+    if new_value != default:
+        raise TypeError(f"{old}= and {new}= are the same option ({old}= is its old name); pass {new}= only")
+    warnings.warn(f"{old}= is now called {new}=; the old name will be removed in the next release",
+                  FutureWarning, stacklevel=3)
+    return old_value
