@@ -56,7 +56,7 @@ def main() -> None:
     perm = np.random.default_rng(0).permutation(len(graphs))  # the split of `gwpred demo --seed 0`
     test, train = perm[: args.test_size], perm[args.test_size :]
     truth = [graphs[i] for i in test]
-    params = dict(kernel="rbf", top_k=10, alpha=0.9, random_state=0)
+    params = dict(kernel="rbf", n_neighbors=10, alpha=0.9, random_state=0)
 
     model = BarycenterGraphPredictor(**params).fit(X[train], [graphs[i] for i in train])
     pred = model.predict(X[test])
@@ -83,7 +83,7 @@ def main() -> None:
 
     q = X[test[: args.rank_rows]]
     for scorer in ("kernel", "fgw"):
-        ranked = model.rank(q, truth, k=10, scorer=scorer)
+        ranked = model.rank(q, truth, top_k=10, scorer=scorer)
         _dump(out / f"ranked_{scorer}.jsonl", [[[int(j), round(float(s), 10)] for j, s in row] for row in ranked])
 
     for f in sorted(out.iterdir()):

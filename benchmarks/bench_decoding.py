@@ -13,7 +13,7 @@ same split as ``gwpred demo``:
 
 Run::
 
-    python benchmarks/bench_decoding.py --test-size 200 --seed 0
+    python benchmarks/bench_decoding.py --n-test 200 --seed 0
 
 Every line is scored by exact graph edit distance (uniform costs).
 """
@@ -33,19 +33,19 @@ from gwpred.weights import kernel_matrix
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--test-size", type=int, default=200)
+    ap.add_argument("--n-test", type=int, default=200)
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--alpha", type=float, default=0.9)
-    ap.add_argument("--top-k", type=int, default=10)
+    ap.add_argument("--n-neighbors", type=int, default=10)
     ap.add_argument("--consensus", type=float, nargs="+", default=[0.6, 0.8, 1.0])
     ap.add_argument("--time-limit", type=float, default=None, help="seconds per GED (default: exact)")
     args = ap.parse_args()
 
     X, graphs = load_demo()
     perm = np.random.default_rng(args.seed).permutation(len(graphs))
-    test, train = perm[: args.test_size], perm[args.test_size :]
+    test, train = perm[: args.n_test], perm[args.n_test :]
     truth = [graphs[i] for i in test]
-    params = dict(alpha=args.alpha, top_k=args.top_k, random_state=args.seed)
+    params = dict(alpha=args.alpha, n_neighbors=args.n_neighbors, random_state=args.seed)
     model = BarycenterGraphPredictor(**params).fit(X[train], [graphs[i] for i in train])
     t0 = time.perf_counter()
     soft = model.predict_barycenters(X[test])
@@ -62,8 +62,8 @@ def main() -> None:
         model.set_params(consensus=c)
         rows.append((f"anchored, consensus {c:g}", [model._decode(s) for s in soft]))
 
-    print(f"# python benchmarks/bench_decoding.py --test-size {args.test_size} --seed {args.seed} "
-          f"--alpha {args.alpha} --top-k {args.top_k}")
+    print(f"# python benchmarks/bench_decoding.py --n-test {args.n_test} --seed {args.seed} "
+          f"--alpha {args.alpha} --n-neighbors {args.n_neighbors}")
     print(f"# {len(train)} training / {len(test)} test molecules; barycenters: "
           f"{1000 * t_bary / len(test):.1f} ms per input")
     print(f"{'prediction':<28}{'mean GED':>9}{'exact match':>13}{'right size':>12}{'connected':>11}"

@@ -59,7 +59,7 @@ def rates(model, X, library, rows, fgw_queries: int) -> None:
         total = sum(len(r) for r in sub)
         t0 = time.perf_counter()
         rank_candidates(
-            model, X[:n], lib, k=10, scorer=scorer, filter=sub, output_kernel=kernel, progress=False
+            model, X[:n], lib, top_k=10, scorer=scorer, filter=sub, output_kernel=kernel, progress=False
         )
         rate = total / (time.perf_counter() - t0)
         base = base or rate

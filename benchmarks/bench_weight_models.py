@@ -118,7 +118,7 @@ def main() -> None:
             t0 = time.perf_counter()
             pred = model.predict(Xte)
             predict_s = time.perf_counter() - t0
-            fit_mib, query_mib = weight_peak(model.weights_, Xtr, Xte, model.top_k)
+            fit_mib, query_mib = weight_peak(model.weights_, Xtr, Xte, model.n_neighbors)
             ged, exact, per = scores(pred, truth, args)
             if dense_idx is None:
                 dense_idx, dense_ged = idx, per

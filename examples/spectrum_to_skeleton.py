@@ -16,7 +16,7 @@ X, graphs, smiles = load_demo(return_smiles=True)
 order = np.random.default_rng(1).permutation(len(graphs))
 train, test = order[:2900], order[2900:2910]
 
-model = BarycenterGraphPredictor(top_k=10, alpha=0.9, random_state=0)
+model = BarycenterGraphPredictor(n_neighbors=10, alpha=0.9, random_state=0)
 model.fit(X[train], [graphs[i] for i in train])
 
 for i, soft, pred in zip(test, model.predict_barycenters(X[test]), model.predict(X[test])):

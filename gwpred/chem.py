@@ -622,7 +622,7 @@ def read_smiles_file(
     -------
     list of networkx.Graph
         One graph per molecule line, as :func:`graph_from_smiles` builds it,
-        with ``graph.graph["name"]`` set when the line has a name.
+        with ``graph.graph["id"]`` set to the line's name when it has one.
 
     Raises
     ------
@@ -657,24 +657,27 @@ def read_smiles_file(
             )
             G.graph["smiles"] = fields[0]
             if len(fields) == 2:
-                G.graph["name"] = fields[1]
+                G.graph["id"] = fields[1]
             graphs.append(G)
     return graphs
 
 
 def _record_name(G: nx.Graph, index: int) -> str | None:
-    """The ``name`` graph attribute, checked to fit on one line of a file; None if absent."""
-    if "name" not in G.graph:
+    """The graph's id (or, from older code, its ``name``), checked to fit on one line; None if absent."""
+    key = "id" if "id" in G.graph else "name"
+    if key not in G.graph:
         return None
-    name = G.graph["name"]
+    name = G.graph[key]
+    if isinstance(name, numbers.Integral) and not isinstance(name, bool):
+        name = str(name)  # GraphML and JSON ids may be numbers; names are text
     if not isinstance(name, str):
         raise TypeError(
-            f"graphs[{index}] has name={name!r} of type {type(name).__name__}; molecule names "
+            f"graphs[{index}] has {key}={name!r} of type {type(name).__name__}; molecule names "
             "are text in SMILES and SDF files: convert it with str() first"
         )
     if not name or name != name.strip() or "\n" in name or "\r" in name:
         raise ValueError(
-            f"graphs[{index}] has name={name!r}; a molecule name must be non-empty, on one line "
+            f"graphs[{index}] has {key}={name!r}; a molecule name must be non-empty, on one line "
             "and without leading or trailing whitespace (it would not read back unchanged)"
         )
     return name
@@ -711,8 +714,8 @@ def write_smiles_file(
     path : str or os.PathLike
         Target file (replaced if it exists).
     graphs : iterable of networkx.Graph
-        Heavy-atom graphs. ``graph.graph["name"]``, when present, is written
-        after the SMILES, separated by a space.
+        Heavy-atom graphs. ``graph.graph["id"]`` (or else ``graph.graph["name"]``),
+        when present, is written after the SMILES, separated by a space.
     node_label, edge_label, charge : str
         As in :func:`graph_to_smiles`.
 
@@ -763,14 +766,14 @@ def _graph_from_record(
     G = _graph_from_parsed(clean, where, node_label, edge_label, check_hydrogens)
     fields = _sd_fields(mol)
     title = mol.GetProp("_Name").strip() if mol.HasProp("_Name") else ""
-    if title and "name" in fields and fields["name"] != title:
+    if title and "id" in fields and fields["id"] != title:
         raise ValueError(
-            f"{where}: has the title {title!r} and a data field 'name' = {fields['name']!r}; both "
-            "would become graph.graph['name']: rename the data field"
+            f"{where}: has the title {title!r} and a data field 'id' = {fields['id']!r}; both "
+            "would become graph.graph['id']: rename the data field"
         )
     G.graph.update(fields)
     if title:
-        G.graph["name"] = title
+        G.graph["id"] = title
     return G
 
 
@@ -796,7 +799,7 @@ def read_sdf(
         One heavy-atom graph per record, nodes ``0 .. n - 1`` in the file's
         atom order (hydrogen atoms folded into their neighbours), bond orders
         as written in the file (aromatic bonds, type 4, are kekulized), the
-        record title as ``graph.graph["name"]`` when not blank and each SD
+        record title as ``graph.graph["id"]`` when not blank and each SD
         data field as a str graph attribute.
 
     Raises
@@ -874,8 +877,9 @@ def _sdf_block(G: Any, index: int, node_label: str, edge_label: str, charge: str
 
     rdDepictor.Compute2DCoords(mol)
     lines = [Chem.MolToMolBlock(mol, kekulize=False)]
+    title_key = "id" if "id" in G.graph else "name"
     for key, value in G.graph.items():
-        if key == "name":
+        if key == title_key:
             continue
         lines.append(f">  <{key}>\n{_sd_value(G, index, key, value)}\n\n")
     lines.append("$$$$\n")
@@ -897,8 +901,8 @@ def write_sdf(
     path : str or os.PathLike
         Target file (replaced if it exists).
     graphs : iterable of networkx.Graph
-        Heavy-atom graphs. ``graph.graph["name"]`` becomes the record title;
-        every other graph attribute (str, int or float) becomes an SD data
+        Heavy-atom graphs. ``graph.graph["id"]`` (or else ``graph.graph["name"]``)
+        becomes the record title; every other graph attribute (str, int or float) becomes an SD data
         field.
     node_label, edge_label, charge : str
         As in :func:`graph_to_mol`.

@@ -70,6 +70,18 @@ class UsageError(Exception):
     """Bad input from the user; printed without a traceback, exit code 2."""
 
 
+def _renamed(new: str) -> type[argparse.Action]:
+    """An argparse action for an option's old spelling: it still works, with a note naming the new one."""
+
+    class Renamed(argparse.Action):
+        def __call__(self, parser: Any, namespace: argparse.Namespace, values: Any, option: str | None = None) -> None:
+            print(f"gwpred: {option} is now called {new}; the old name will be removed in the next release",
+                  file=sys.stderr)
+            setattr(namespace, self.dest, values)
+
+    return Renamed
+
+
 def _model_params(args: argparse.Namespace) -> dict[str, Any]:
     return {
         "kernel": args.kernel,
@@ -78,7 +90,7 @@ def _model_params(args: argparse.Namespace) -> dict[str, Any]:
         "weighting": args.weighting,
         "weight_model": args.weight_model,
         "local_size": args.local_size,
-        "top_k": args.top_k,
+        "n_neighbors": args.n_neighbors,
         "alpha": args.alpha,
         "decoding": args.decoding,
         "consensus": args.consensus,
@@ -100,8 +112,11 @@ def _edge_label(args: argparse.Namespace) -> str | None:
     return None if args.edge_label.lower() == "none" else args.edge_label
 
 
-def _add_model_options(p: argparse.ArgumentParser) -> None:
+def _add_model_options(p: argparse.ArgumentParser, old_top_k: bool = True) -> None:
     g = p.add_argument_group("model")
+    if old_top_k:  # before 0.2, --top-k was the number of training graphs per prediction
+        g.add_argument("--top-k", dest="n_neighbors", type=int, action=_renamed("--n-neighbors"), default=argparse.SUPPRESS,
+                       help=argparse.SUPPRESS)
     g.add_argument("--kernel", default="rbf", choices=_KERNELS, metavar="KERNEL",
                    help="input kernel: %(choices)s (default: rbf)")
     g.add_argument("--gamma", type=float, default=None,
@@ -115,7 +130,8 @@ def _add_model_options(p: argparse.ArgumentParser) -> None:
                         "inputs (for large training sets), auto: dense up to 5,000 training inputs (default: auto)")
     g.add_argument("--local-size", type=int, default=500,
                    help="training inputs per local solve (default: 500)")
-    g.add_argument("--top-k", type=int, default=10, help="training graphs per prediction (default: 10)")
+    g.add_argument("--n-neighbors", type=int, default=10,
+                   help="training graphs per prediction, the largest weights (default: 10)")
     g.add_argument("--alpha", type=float, default=0.9,
                    help="FGW trade-off: 0 labels only, 1 structure only (default: 0.9)")
     g.add_argument("--decoding", default="anchored", choices=_DECODERS, metavar="DECODER",
@@ -130,6 +146,15 @@ def _add_model_options(p: argparse.ArgumentParser) -> None:
                         "--valence means on (default: auto)")
     _add_label_options(g)
     g.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
+
+
+#: Seconds per graph edit distance before settling for bounds, in every command.
+TIME_LIMIT = 10.0
+
+
+def _add_time_limit(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--time-limit", type=float, default=TIME_LIMIT, metavar="SECONDS",
+                   help=f"seconds per graph edit distance before settling for bounds (default: {TIME_LIMIT:g})")
 
 
 def _table(rows: list[tuple[str, dict]]) -> str:
@@ -156,6 +181,48 @@ def _formulas(args: argparse.Namespace, n_rows: int) -> list[str | None] | None:
             "rows; give one formula (or an empty cell) per input row"
         )
     return formulas
+
+
+def _add_id_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("sample ids (kept with every result)")
+    g.add_argument("--id-column", metavar="COLUMN",
+                   help="column of --features holding sample ids: its header, or its number counting from 1 "
+                        "(default: the first column when it is headed 'id')")
+    g.add_argument("--ids", metavar="FILE",
+                   help="sample ids, one per input row: .txt with one per line, or .csv/.tsv with an 'id' "
+                        "column (for .npy features, or to override the features file's ids)")
+
+
+def _read_inputs(args: argparse.Namespace) -> tuple[np.ndarray, list[str] | None]:
+    """--features with its sample ids (from --id-column, an 'id' column, or --ids)."""
+    from .io import read_features, read_ids
+
+    X, ids = read_features(args.features, return_ids=True, id_column=getattr(args, "id_column", None))
+    if getattr(args, "ids", None):
+        given = read_ids(args.ids)
+        if len(given) != X.shape[0]:
+            raise UsageError(f"{args.ids} holds {len(given)} ids but {args.features} has {X.shape[0]} rows; "
+                             "give one id per input row, in the same order")
+        ids = given
+    return X, ids
+
+
+def _check_same_ids(ours: list | None, theirs: list, what: str, where: str) -> str | None:
+    """Ids of two files read row by row must agree: a mismatch means the rows are out of order.
+
+    Two naming schemes that share no id at all (sample codes against compound names, say) are
+    not a mismatch: the ids of ``where`` are kept, and a note saying so is returned.
+    """
+    if ours is None or any(t is None for t in (*ours, *theirs)):
+        return None
+    a, b = [str(v) for v in ours], [str(v) for v in theirs]
+    if a == b:
+        return None
+    if not set(a) & set(b):
+        return f"note: the ids in {where} and {what} share no name; the results carry those of {where}"
+    r = next(r for r, (x, y) in enumerate(zip(a, b)) if x != y)
+    raise UsageError(f"row {r}: id {a[r]!r} in {where} but {b[r]!r} in {what}; the files must list the same "
+                     "samples in the same order")
 
 
 def _n_jobs(args: argparse.Namespace) -> int | None:
@@ -207,23 +274,30 @@ def _output_path(value: str, option: str, folder: bool = False) -> Path:
 
 # ----------------------------------------------------------------- commands
 def cmd_fit(args: argparse.Namespace) -> int:
-    from .io import read_features, read_graphs
+    from .io import read_graphs
     from .model import BarycenterGraphPredictor, save_model
 
     _output_path(args.model, "--model")
-    X = read_features(args.features)
+    X, ids = _read_inputs(args)
     graphs = read_graphs(args.graphs)
+    note = None
+    if ids is not None and len(ids) == len(graphs):
+        note = _check_same_ids(ids, [g.graph.get("id") for g in graphs], args.graphs, args.ids or args.features)
+        for g, i in zip(graphs, ids):
+            g.graph["id"] = i  # kept by the model: reports name the training graphs by them
     t0 = time.perf_counter()
     model = BarycenterGraphPredictor(**_model_params(args)).fit(X, graphs)
     save_model(model, args.model)
     print(f"fitted on {len(graphs)} graphs in {time.perf_counter() - t0:.1f} s; "
           f"node labels {model.labels_.node_labels_}, edge labels {model.labels_.edge_labels_}")
     print(f"model written to {args.model}")
+    if note:
+        print(note)
     return 0
 
 
 def cmd_predict(args: argparse.Namespace) -> int:
-    from .io import GRAPH_EXTENSIONS, MOLECULE_EXTENSIONS, read_features, write_graphs
+    from .io import GRAPH_EXTENSIONS, MOLECULE_EXTENSIONS, write_graphs
     from .model import load_model
 
     n_jobs = _n_jobs(args)
@@ -235,7 +309,7 @@ def cmd_predict(args: argparse.Namespace) -> int:
     model.set_params(progress=not args.quiet)
     if n_jobs is not None:
         model.set_params(n_jobs=n_jobs)
-    X = read_features(args.features)
+    X, ids = _read_inputs(args)
     formulas = _formulas(args, X.shape[0])
     if out.suffix.lower() in MOLECULE_EXTENSIONS and not model.valence_:
         # the file format never changes the prediction: refuse rather than decode differently
@@ -243,6 +317,11 @@ def cmd_predict(args: argparse.Namespace) -> int:
                          "without valence rules (fitted with --valence off, or its labels are not element "
                          "symbols and bond orders); write .jsonl or .graphml, or refit with --valence auto")
     graphs = model.predict(X, formulas=formulas)
+    for r, g in enumerate(graphs):
+        if ids is not None:
+            g.graph["id"] = ids[r]  # the sample id goes with its prediction into every format
+        if formulas is not None and formulas[r] is not None:
+            g.graph["formula_given"] = formulas[r]
     write_graphs(args.out, graphs)
     print(f"{len(graphs)} predicted graphs written to {args.out}")
     print(CAUTION, file=sys.stderr)  # with the results, not inside them (stdout may be a data pipe)
@@ -257,6 +336,14 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
     for option, value in (("--summary", args.summary), ("--items", args.items)):
         if value:
             _output_path(value, option)
+    if args.truth_old is not None:
+        if args.truth:
+            raise UsageError("give the true graphs once, with --truth")
+        print("gwpred: the true graphs as a second argument of evaluate are now given with --truth; the old "
+              "form will be removed in the next release", file=sys.stderr)
+        args.truth = args.truth_old
+    if not args.truth:
+        raise UsageError("give the true graphs to score against with --truth FILE")
     pred = read_graphs(args.predicted)
     true = read_graphs(args.truth)
     if len(pred) != len(true):
@@ -264,6 +351,8 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
             f"{args.predicted} holds {len(pred)} graphs but {args.truth} holds {len(true)}; "
             "they must be in the same order, one prediction per true graph."
         )
+    note = _check_same_ids([g.graph.get("id") for g in pred], [g.graph.get("id") for g in true], args.truth,
+                           args.predicted)
     summary = summarize(pred, true, node_label=args.node_label, edge_label=_edge_label(args),
                         time_limit=args.time_limit, progress=not args.quiet, n_jobs=n_jobs)
     print(_table([(Path(args.predicted).name, summary)]))
@@ -271,16 +360,47 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
           f"precision {100 * summary['edge_precision']:.1f}%, recall {100 * summary['edge_recall']:.1f}%, "
           f"F1 {100 * summary['edge_f1']:.1f}% (means over pairs)")
     print(f"GED solved exactly for {100 * summary['exact_share']:.1f}% of pairs")
+    if note:
+        print(note)
     if args.summary:
         out = {k: v for k, v in summary.items() if k != "items"}
         atomic_write_text(args.summary, json.dumps(out, indent=2))
     if args.items:
+        extra = _item_columns(pred, true, args.node_label, _edge_label(args))
         with atomic_open(Path(args.items), binary=False) as fh:
-            w = csv.DictWriter(fh, fieldnames=["index", *summary["items"][0].keys()])
+            w = csv.DictWriter(fh, fieldnames=["index", *extra[0].keys(), *summary["items"][0].keys()])
             w.writeheader()
             for i, item in enumerate(summary["items"]):
-                w.writerow({"index": i, **item})
+                w.writerow({"index": i, **extra[i], **item})
     return 0
+
+
+def _item_columns(pred: list, true: list, node_label: str, edge_label: str | None) -> list[dict[str, str]]:
+    """Per pair: the sample id, and for molecules the formulas and SMILES of both graphs."""
+    from ._utils import has_extra
+    from .formula import ELEMENTS, graph_formula
+
+    molecular = edge_label is not None and all(
+        d.get(node_label) in ELEMENTS for g in (*pred, *true) for _, d in g.nodes(data=True))
+    smiles = molecular and has_extra("rdkit")
+    rows = []
+    for p, t in zip(pred, true):
+        row = {"id": str(p.graph.get("id", t.graph.get("id", "")))}
+        for name, g in (("predicted", p), ("true", t)) if molecular else ():
+            try:
+                row[f"formula_{name}"] = graph_formula(g, node_label=node_label, edge_label=edge_label)
+            except ValueError:  # an atom beyond its valence: no hydrogen count exists
+                row[f"formula_{name}"] = graph_formula(g, node_label=node_label, edge_label=edge_label,
+                                                       hydrogens=False) + " (invalid)"
+        for name, g in (("predicted", p), ("true", t)) if smiles else ():
+            from .chem import graph_to_smiles
+
+            try:
+                row[f"smiles_{name}"] = graph_to_smiles(g, node_label=node_label, edge_label=edge_label)
+            except (ValueError, TypeError):
+                row[f"smiles_{name}"] = ""  # not a valid molecule
+        rows.append(row)
+    return rows
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
@@ -297,14 +417,12 @@ def cmd_demo(args: argparse.Namespace) -> int:
     X, graphs, smiles = load_demo(return_smiles=True)
     rng = np.random.default_rng(args.seed)
     perm = rng.permutation(len(graphs))
-    if not 1 <= args.test_size < len(graphs):
-        raise UsageError(f"--test-size must be between 1 and {len(graphs) - 1}; got {args.test_size}.")
-    if args.show < 1:
-        raise UsageError(f"--show must be at least 1 (rows in the PNG grid); got {args.show}.")
+    if not 1 <= args.n_test < len(graphs):
+        raise UsageError(f"--n-test must be between 1 and {len(graphs) - 1}; got {args.n_test}.")
     if args.drawings < 0:
         raise UsageError(f"--drawings must be at least 0; got {args.drawings}.")
     out.mkdir(exist_ok=True)  # only after the arguments passed: a refused run leaves no folder
-    test, train = perm[: args.test_size], perm[args.test_size:]
+    test, train = perm[: args.n_test], perm[args.n_test:]
     print(f"demo: spectrum -> heavy-atom skeleton, {len(train)} training and {len(test)} held-out "
           f"QM9 molecules (seed {args.seed})")
     model = BarycenterGraphPredictor(**_model_params(args), n_jobs=n_jobs)
@@ -314,8 +432,14 @@ def cmd_demo(args: argparse.Namespace) -> int:
     t_pred = time.perf_counter() - t0
     # baseline: the most similar training spectrum's molecule (same kernel and bandwidth)
     nearest = kernel_matrix(X[test], X[train], model.kernel, model.weights_.gamma_).argmax(1)
-    retrieved = [graphs[train[j]] for j in nearest]
     truth = [graphs[i] for i in test]
+    retrieved = []
+    for t, j in zip(truth, nearest):  # a retrieved graph answers for its test row: it takes the row's id
+        r = graphs[train[j]].copy()
+        r.graph.update(id=t.graph["id"], retrieved_from=graphs[train[j]].graph["id"])
+        retrieved.append(r)
+    for g, t in zip(pred, truth):
+        g.graph["id"] = t.graph["id"]
     print(f"predicted {len(test)} graphs in {t_pred:.1f} s; scoring with exact graph edit distance ...")
     ours = summarize(pred, truth, time_limit=args.time_limit, progress=not args.quiet, n_jobs=n_jobs)
     base = summarize(retrieved, truth, time_limit=args.time_limit, progress=not args.quiet, n_jobs=n_jobs)
@@ -333,7 +457,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
                "train_size": len(train), "test_size": len(test), "seed": args.seed,
                "params": model.get_params()}
     atomic_write_text(out / "summary.json", json.dumps(summary, indent=2, default=str))
-    show = list(range(min(args.show, len(test))))
+    show = list(range(min(max(args.drawings, 1), len(test))))  # the items drawn in full (at least one row)
     comparison_grid(
         [pred[i] for i in show], [truth[i] for i in show], str(out / "predictions.png"),
         titles=[f"GED {ours['items'][i]['ged']:g}" for i in show], caption=CAUTION,
@@ -353,15 +477,20 @@ _DEMO_DRAWINGS = 8
 def _demo_report(args: argparse.Namespace, out: Path, model: BarycenterGraphPredictor, X_test: np.ndarray, pred: list, truth: list,
                  train_graphs: list, ours: dict, base: dict) -> Path:
     """Write the demo's report.html; barycenters only for the items drawn in full."""
+    from .datasets import wavenumber_grid
     from .report import write_report
 
+    grid = wavenumber_grid()  # load_demo's default grid (cm-1), one value per feature
     n_draw = min(args.drawings, len(pred))
     soft = model.predict_barycenters(X_test[:n_draw]) if n_draw else []
     notes = [(f"Spectrum -> heavy-atom skeleton: {len(train_graphs)} training and {len(pred)} held-out QM9 "
               f"molecules (seed {args.seed}). Baseline, the molecule of the most similar training spectrum: "
               f"mean GED {base['mean_ged']:.2f}, exact match {100 * base['exact_match_rate']:.1f}%.")]
+    idx, w = model.neighbors(X_test)
     return write_report(out / "report.html", pred, truth, summary=ours, barycenters=soft,
                         training_graphs=train_graphs, label_names=list(model.labels_.node_labels_),
+                        leaned_on=list(zip(idx, w)), inputs=X_test, training_inputs=model.weights_.X_fit_,
+                        input_grid=grid, input_name="IR spectrum (computed)",
                         title="gwpred demo: predicted molecular skeletons", notes=notes,
                         time_limit=args.time_limit, drawings=n_draw, progress=not args.quiet)
 
@@ -369,18 +498,22 @@ def _demo_report(args: argparse.Namespace, out: Path, model: BarycenterGraphPred
 class _TrainingGraphs:
     """A model's training graphs as a sequence, each rebuilt only when the report asks for it."""
 
-    def __init__(self, training: Any) -> None:
+    def __init__(self, training: Any, ids: list[str] | None = None) -> None:
         self.training = training
+        self.ids = ids
 
     def __len__(self) -> int:
         return len(self.training)
 
     def __getitem__(self, i: int) -> Any:
-        return self.training.graph(int(i))
+        g = self.training.graph(int(i))
+        if self.ids is not None:
+            g.graph["id"] = self.ids[int(i)]
+        return g
 
 
 def cmd_report(args: argparse.Namespace) -> int:
-    from .io import read_features, read_graphs, read_ranked
+    from .io import read_graphs, read_ranked
     from .model import load_model
     from .report import is_molecular, write_report
 
@@ -392,7 +525,7 @@ def cmd_report(args: argparse.Namespace) -> int:
     if out.suffix.lower() not in (".html", ".htm"):
         raise UsageError(f"--out must name an HTML file ending in .html; got {args.out}")
     _output_path(args.out, "--out")
-    for name, value, least in (("--limit", args.limit, 1), ("--drawings", args.drawings, 0), ("--top", args.top, 0)):
+    for name, value, least in (("--limit", args.limit, 1), ("--drawings", args.drawings, 0), ("--top-k", args.top_k, 0)):
         if value is not None and value < least:
             raise UsageError(f"{name} must be at least {least}; got {value}")
     pred = read_graphs(args.predictions)
@@ -405,22 +538,49 @@ def cmd_report(args: argparse.Namespace) -> int:
     ranked = read_ranked(args.ranked) if args.ranked else None
     t0 = time.perf_counter()
     extra: dict = {}
+    notes: list[str] = []
+    if truth is not None:
+        note = _check_same_ids([g.graph.get("id") for g in pred], [g.graph.get("id") for g in truth], args.truth,
+                               args.predictions)
+        notes += [note] if note else []
+    if args.id_column and not args.model:
+        raise UsageError("--id-column names a column of --features: give it with --model and --features, or "
+                         "give the ids with --ids FILE")
+    if args.ids and not args.model:
+        from .io import read_ids
+
+        ids = read_ids(args.ids)
+        if len(ids) != len(pred):
+            raise UsageError(f"{args.ids} holds {len(ids)} ids but {args.predictions} holds {len(pred)} graphs; "
+                             "give one id per prediction, in the same order")
+        for g, i in zip(pred, ids):
+            g.graph["id"] = i
     if args.model:  # the model and inputs behind the predictions: heat maps and training neighbours
-        X = read_features(args.features)
+        X, ids = _read_inputs(args)
         if len(X) != len(pred):
             raise UsageError(f"{args.features} holds {len(X)} rows but {args.predictions} holds {len(pred)} "
                              "graphs; give the inputs the predictions were made from, in the same order.")
+        if ids is not None:
+            note = _check_same_ids(ids, [g.graph.get("id") for g in pred], args.predictions, args.ids or args.features)
+            if note:
+                notes.append(note)
+            for g, i in zip(pred, ids):
+                g.graph["id"] = i
         model = load_model(args.model)
-        n_draw = min(args.drawings, len(pred) if args.limit is None else min(args.limit, len(pred)))
+        n = len(pred) if args.limit is None else min(args.limit, len(pred))
+        n_draw = min(args.drawings, n)
+        idx, w = model.neighbors(X[:n])
         extra = dict(barycenters=model.predict_barycenters(X[:n_draw]) if n_draw else [],
-                     training_graphs=_TrainingGraphs(model.training_),
-                     label_names=list(model.labels_.node_labels_))
-    notes = [f"predictions: {args.predictions}" + (f"; truth: {args.truth}" if args.truth else "")
+                     training_graphs=_TrainingGraphs(model.training_, model.training_ids_),
+                     label_names=list(model.labels_.node_labels_), leaned_on=list(zip(idx, w)))
+        if model.kernel != "precomputed":  # the inputs beside those of the training graphs leaned on
+            extra.update(inputs=X[:n], training_inputs=model.weights_.X_fit_)
+    notes += [f"predictions: {args.predictions}" + (f"; truth: {args.truth}" if args.truth else "")
              + (f"; ranked candidates: {args.ranked}" if args.ranked else "")
              + (f"; model: {args.model}, inputs: {args.features}" if args.model else "")]
     path = write_report(out, pred, truth, ranked=ranked, title=args.title or f"gwpred report: {Path(args.predictions).name}",
                         notes=notes, time_limit=args.time_limit, limit=args.limit, drawings=args.drawings,
-                        top=args.top, node_label=args.node_label, edge_label=_edge_label(args),
+                        top_k=args.top_k, node_label=args.node_label, edge_label=_edge_label(args),
                         progress=not args.quiet, **extra)
     n = len(pred) if args.limit is None else min(args.limit, len(pred))
     print(f"report on {n} items written to {path} in {time.perf_counter() - t0:.1f} s")
@@ -430,12 +590,12 @@ def cmd_report(args: argparse.Namespace) -> int:
 
 
 def cmd_rank(args: argparse.Namespace) -> int:
-    from .io import read_features, read_graphs, write_ranked
+    from .io import read_graphs, write_ranked
     from .model import load_model
-    from .ranking import CandidateLibrary, rank_candidates
+    from .ranking import CandidateLibrary, count_candidates, rank_candidates
 
-    if args.k < 1:
-        raise UsageError(f"--k must be at least 1; got {args.k}.")
+    if args.top_k < 1:
+        raise UsageError(f"--top-k must be at least 1; got {args.top_k}.")
     if Path(args.out).suffix.lower() != ".jsonl":
         raise UsageError(f"--out must name a JSON Lines file ending in .jsonl; got {args.out}")
     _output_path(args.out, "--out")
@@ -443,16 +603,23 @@ def cmd_rank(args: argparse.Namespace) -> int:
     model = load_model(args.model)
     if n_jobs is not None:
         model.set_params(n_jobs=n_jobs)
-    X = read_features(args.features)
+    X, ids = _read_inputs(args)
     library = CandidateLibrary(read_graphs(args.candidates))
     formulas = _formulas(args, X.shape[0])
     t0 = time.perf_counter()
-    ranked = rank_candidates(model, X, library, k=args.k, scorer=args.scorer, filter=formulas,
+    ranked = rank_candidates(model, X, library, top_k=args.top_k, scorer=args.scorer, filter=formulas,
                              output_kernel=args.output_kernel, progress=not args.quiet)
     secs = time.perf_counter() - t0
-    write_ranked(args.out, ranked, library)
-    print(f"ranked {len(library)} candidates for {X.shape[0]} inputs ({args.scorer} scorer) in {secs:.1f} s; "
-          f"top {args.k} per input written to {args.out}")
+    write_ranked(args.out, ranked, library, ids=ids)
+    if formulas is None:
+        ranked_what = f"{len(library)} candidates"
+    else:  # the formula filter leaves each row its own number of candidates
+        counts = count_candidates(library, X.shape[0], formulas, model.labels_.node_label)
+        lo, hi = int(counts.min()), int(counts.max())
+        span = f"{lo}" if lo == hi else f"{lo} to {hi}"
+        ranked_what = f"{span} candidates per input (of {len(library)}; formula filter)"
+    print(f"ranked {ranked_what} for {X.shape[0]} inputs ({args.scorer} scorer) in {secs:.1f} s; "
+          f"the best {args.top_k} per input written to {args.out}")
     print(CAUTION, file=sys.stderr)  # with the results, not inside them (stdout may be a data pipe)
     return 0
 
@@ -475,8 +642,8 @@ def cmd_compare(args: argparse.Namespace) -> int:
     params["kernel"] = args.kernel or kernel
     params["progress"] = False
     t0 = time.perf_counter()
-    result = compare_methods(X, graphs, train, test, params=params, scorers=args.scorers or list(_SCORERS),
-                             output_kernels=args.output_kernels, k=args.k, fgw_rows=args.fgw_rows or None,
+    result = compare_methods(X, graphs, train, test, params=params, scorers=args.scorer or list(_SCORERS),
+                             output_kernels=args.output_kernel, top_k=args.top_k, fgw_rows=args.fgw_rows or None,
                              time_limit=args.time_limit, n_jobs=args.n_jobs, random_state=args.seed,
                              progress=not args.quiet, data=args.data)
     table = comparison_table(result)
@@ -523,6 +690,7 @@ def build_parser() -> argparse.ArgumentParser:
                    "molecules as .smi, .sdf or .mol (needs RDKit: pip install 'gwpred[chem]')")
     p.add_argument("--model", required=True, help="model file to write (.npz)")
     _add_model_options(p)
+    _add_id_options(p)
     common(p)
     p.set_defaults(func=cmd_fit)
 
@@ -537,6 +705,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--formula-column", default="formula",
                    help="header of the formula column in --formulas (default: formula)")
     parallel(p, "the per-input predictions", "the model's own, 1 unless set")
+    _add_id_options(p)
     common(p)
     p.set_defaults(func=cmd_predict)
 
@@ -544,9 +713,9 @@ def build_parser() -> argparse.ArgumentParser:
                        description="Graph edit distance (uniform costs), exact match, right size, connectivity, "
                                    "node label accuracy and edge precision/recall/F1 under the GED node map.")
     p.add_argument("predicted", help="predicted graphs (.jsonl/.graphml/.smi/.sdf/.mol)")
-    p.add_argument("truth", help="true graphs, same order (.jsonl/.graphml/.smi/.sdf/.mol)")
-    p.add_argument("--time-limit", type=float, default=10.0,
-                   help="seconds per GED before settling for bounds (default: 10)")
+    p.add_argument("--truth", help="true graphs, same order (.jsonl/.graphml/.smi/.sdf/.mol)")
+    p.add_argument("truth_old", nargs="?", metavar="TRUTH", help=argparse.SUPPRESS)  # before 0.2: positional
+    _add_time_limit(p)
     p.add_argument("--summary", help="write the summary as JSON here")
     p.add_argument("--items", help="write per-pair scores as CSV here")
     parallel(p, "the edit distances of the pairs", "1")
@@ -558,12 +727,13 @@ def build_parser() -> argparse.ArgumentParser:
                        description="Propose heavy-atom skeletons of small molecules from computed vibrational "
                                    "spectra (bundled QM9 subset), scored against 1-nearest-neighbour retrieval.")
     p.add_argument("--out", default="gwpred-demo", help="output folder (default: gwpred-demo)")
-    p.add_argument("--test-size", type=int, default=300, help="held-out molecules (default: 300)")
-    p.add_argument("--show", type=int, default=8, help="rows in the PNG grid (default: 8)")
+    p.add_argument("--n-test", type=int, default=300, help="held-out molecules (default: 300)")
+    p.add_argument("--test-size", dest="n_test", type=int, action=_renamed("--n-test"), default=argparse.SUPPRESS, help=argparse.SUPPRESS)
     p.add_argument("--drawings", type=int, default=_DEMO_DRAWINGS,
-                   help=f"items of report.html drawn in full, with heat maps (default: {_DEMO_DRAWINGS})")
-    p.add_argument("--time-limit", type=float, default=2.0,
-                   help="seconds per GED before settling for bounds (default: 2)")
+                   help=f"items drawn in full: rows of predictions.png and items of report.html with heat maps "
+                        f"(default: {_DEMO_DRAWINGS})")
+    p.add_argument("--show", dest="drawings", type=int, action=_renamed("--drawings"), default=argparse.SUPPRESS, help=argparse.SUPPRESS)
+    _add_time_limit(p)
     _add_model_options(p)
     parallel(p, "the predictions and edit distances", "1")
     common(p)
@@ -580,16 +750,17 @@ def build_parser() -> argparse.ArgumentParser:
                    help='ranked candidate lists: one JSON object per line, {"row": i, "ranked": [{"candidate": j, '
                         '"score": s, "graph": <node-link record>}, ...]}, best first')
     p.add_argument("--title", help="page title (default: from the predictions file name)")
-    p.add_argument("--time-limit", type=float, default=10.0,
-                   help="seconds per GED before settling for bounds (default: 10)")
+    _add_time_limit(p)
     p.add_argument("--limit", type=int, help="report only the first N items")
     p.add_argument("--drawings", type=int, default=30,
                    help="items (the first ones) drawn in full; the others show scores only (default: 30)")
-    p.add_argument("--top", type=int, default=5, help="ranked candidates drawn per item (default: 5)")
+    p.add_argument("--top-k", type=int, default=5, help="ranked candidates drawn per item (default: 5)")
+    p.add_argument("--top", dest="top_k", type=int, action=_renamed("--top-k"), default=argparse.SUPPRESS, help=argparse.SUPPRESS)
     p.add_argument("--model", help="model file that made the predictions (with --features): adds the "
                                    "barycenter heat maps and the training graphs each prediction leaned on")
     p.add_argument("--features", help="inputs the predictions were made from, same order (with --model)")
     _add_label_options(p)
+    _add_id_options(p)
     common(p)
     p.set_defaults(func=cmd_report)
 
@@ -608,7 +779,8 @@ def build_parser() -> argparse.ArgumentParser:
                         "an empty cell ranks all candidates")
     p.add_argument("--formula-column", default="formula",
                    help="header of the formula column in --formulas (default: formula)")
-    p.add_argument("--k", type=int, default=10, help="candidates kept per input (default: 10)")
+    p.add_argument("--top-k", type=int, default=10, help="candidates kept per input (default: 10)")
+    p.add_argument("--k", dest="top_k", type=int, action=_renamed("--top-k"), default=argparse.SUPPRESS, help=argparse.SUPPRESS)
     p.add_argument("--scorer", default="kernel", choices=_SCORERS, metavar="SCORER",
                    help="%(choices)s. kernel: weighted output-kernel similarity to the training graphs (higher is better); "
                         "fgw: FGW distance to the predicted barycenter; objective: weighted FGW distances to "
@@ -617,6 +789,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="%(choices)s. kernel scorer: Weisfeiler-Lehman subtree kernel, or Tanimoto on Morgan fingerprints "
                         "(molecules, needs gwpred[chem]) (default: wl)")
     parallel(p, "the barycenters and FGW values of the fgw scorer", "the model's own, 1 unless set")
+    _add_id_options(p)
     common(p)
     p.set_defaults(func=cmd_rank)
 
@@ -631,18 +804,23 @@ def build_parser() -> argparse.ArgumentParser:
                         "(default: demo)")
     p.add_argument("--n-train", type=int, default=2700, help="training inputs (default: 2700)")
     p.add_argument("--n-test", type=int, default=300, help="test inputs (default: 300)")
-    p.add_argument("--k", type=int, default=10, help="length of the ranked lists (default: 10)")
-    p.add_argument("--scorers", nargs="+", default=None,
-                   choices=_SCORERS, metavar="SCORER", help="scorers to run: %(choices)s (default: all)")
-    p.add_argument("--output-kernels", nargs="+", default=["wl"], choices=_OUTPUT_KERNELS, metavar="KERNEL",
-                   help="output kernels of the kernel scorer: %(choices)s (default: wl)")
+    p.add_argument("--top-k", type=int, default=10, help="length of the ranked lists (default: 10); training "
+                                                          "graphs per prediction are --n-neighbors")
+    p.add_argument("--k", dest="top_k", type=int, action=_renamed("--top-k"), default=argparse.SUPPRESS, help=argparse.SUPPRESS)
+    p.add_argument("--scorer", nargs="+", default=None,
+                   choices=_SCORERS, metavar="SCORER", help="scorers to run, one or more: %(choices)s (default: all)")
+    p.add_argument("--scorers", dest="scorer", nargs="+", choices=_SCORERS, action=_renamed("--scorer"), default=argparse.SUPPRESS,
+                   help=argparse.SUPPRESS)
+    p.add_argument("--output-kernel", nargs="+", default=["wl"], choices=_OUTPUT_KERNELS, metavar="KERNEL",
+                   help="output kernels of the kernel scorer, one or more: %(choices)s (default: wl)")
+    p.add_argument("--output-kernels", dest="output_kernel", nargs="+", choices=_OUTPUT_KERNELS,
+                   action=_renamed("--output-kernel"), default=argparse.SUPPRESS, help=argparse.SUPPRESS)
     p.add_argument("--fgw-rows", type=int, default=50,
                    help="test inputs (drawn at random) the FGW scorers run on; 0 runs them on all (default: 50)")
-    p.add_argument("--time-limit", type=float, default=2.0,
-                   help="seconds per GED before settling for bounds (default: 2)")
+    _add_time_limit(p)
     p.add_argument("--n-jobs", type=int, default=1, help="worker processes for the edit distances (default: 1)")
     p.add_argument("--out", default="gwpred-compare", help="output folder (default: gwpred-compare)")
-    _add_model_options(p)
+    _add_model_options(p, old_top_k=False)
     p.set_defaults(kernel=None)
     common(p)
     p.set_defaults(func=cmd_compare)

@@ -37,7 +37,7 @@ import networkx as nx
 import numpy as np
 from numpy.typing import NDArray
 
-from ._utils import atomic_open
+from ._utils import atomic_open, renamed_keyword
 from .datasets import load_demo, load_qm9
 from .formula import graph_formula
 from .metrics import exact_match, summarize
@@ -338,13 +338,14 @@ def compare_methods(
     params: dict[str, Any] | None = None,
     scorers: Sequence[str] = ("kernel", "fgw", "objective"),
     output_kernels: Sequence[str] = ("wl",),
-    k: int = 10,
+    top_k: int = 10,
     fgw_rows: int | None = None,
-    time_limit: float = 2.0,
+    time_limit: float = 10.0,
     n_jobs: int = 1,
     random_state: int = 0,
     progress: bool = True,
     data: str = "",
+    k: int | None = None,
 ) -> Comparison:
     """Run and score every method on one split (see the module notes).
 
@@ -361,13 +362,14 @@ def compare_methods(
     scorers : sequence of {"kernel", "fgw", "objective"}
     output_kernels : sequence of {"wl", "fingerprint"}, default=("wl",)
         Output kernels of the ``kernel`` scorer to run.
-    k : int, default=10
-        Length of the ranked lists (top-k is read up to 10).
+    top_k : int, default=10
+        Length of the ranked lists (top-k is read up to 10; the old name
+        ``k`` works for one more release, with a FutureWarning).
     fgw_rows : int or None, default=None
         Run the FGW scorers (``fgw``, ``objective``: thousands of FGW
         problems per input) on this many test inputs, drawn at random with
         ``random_state``; None runs them on all.
-    time_limit : float, default=2.0
+    time_limit : float, default=10.0
         Seconds per edit distance before settling for the best bound.
     n_jobs : int, default=1
         Worker processes for the edit distances.
@@ -376,11 +378,14 @@ def compare_methods(
         Progress bars.
     data : str, default=""
         Name of the data set, for the report.
+    k : int, optional
+        Old name of ``top_k``.
 
     Returns
     -------
     Comparison
     """
+    top_k = renamed_keyword("k", "top_k", k, top_k, 10)
     train = np.asarray(train, dtype=np.int64)
     test = np.asarray(test, dtype=np.int64)
     if train.size == 0 or test.size == 0:
@@ -484,7 +489,7 @@ def compare_methods(
                 model,
                 X[test[rows]],
                 library,
-                k=k,
+                top_k=top_k,
                 scorer=scorer,
                 filter=[cand[r] for r in rows],
                 output_kernel=ok,

@@ -31,6 +31,7 @@ import math
 import os
 import re
 import tokenize
+import warnings
 import zipfile
 import zlib
 from collections.abc import Iterable, Mapping, Sequence
@@ -57,6 +58,7 @@ __all__ = [
     "read_features",
     "write_features",
     "read_formulas",
+    "read_ids",
     "save_archive",
     "load_archive",
     "graph_from_record",
@@ -626,12 +628,43 @@ def _cell_hint(cell: str, column: int, header: list[str] | None, delimiter: str)
                 "save it as comma-separated .csv or tab-separated .tsv")
     if column == 0:
         head = f" (headed {header[0]!r})" if header else ""
-        return (f"; if the first column{head} holds sample ids, head it 'id' (ids are kept, not read as "
-                "features)")
+        name = header[0] if header else "1"
+        return (f"; if the first column{head} holds sample ids, head it 'id' or name it with --id-column {name} "
+                f"(id_column={name!r}): ids are kept, not read as features")
     return ""
 
 
-def _read_delimited(path: Path, delimiter: str) -> tuple[np.ndarray, list[str] | None]:
+def _id_column(first: list[str], has_header: bool, id_column: str | None, where: str) -> int | None:
+    """0-based index of the id column, or None: the header's ``id`` column, or the one named."""
+    if id_column is None:
+        return 0 if has_header and first[0].lower() == "id" else None
+    name = str(id_column).strip()
+    if has_header:
+        header = [c.lower() for c in first]
+        if name.lower() in header:
+            return header.index(name.lower())
+        if not name.isdigit():
+            raise ValueError(f"{where} has no column headed {name!r} for the ids (header: "
+                             f"{_short(', '.join(first), 200)}); name one of its columns")
+    if name.isdigit() and 1 <= int(name) <= len(first):
+        return int(name) - 1
+    if has_header:
+        raise ValueError(f"{where} has {len(first)} columns; id column {name} does not exist")
+    raise ValueError(f"{where} has no header row, so the id column cannot be found by the name {name!r}; "
+                     f"give its number (1 for the first column) or add a header row")
+
+
+def _looks_like_ids(X: np.ndarray) -> bool:
+    """A first column of distinct integers counting up, e.g. 1, 2, 3, ... (more likely row ids than a feature)."""
+    col = X[:, 0]
+    if len(col) < 3 or not np.all(col == np.round(col)):
+        return False
+    return bool(np.all(np.diff(col) > 0)) and X.shape[1] > 1
+
+
+def _read_delimited(
+    path: Path, delimiter: str, id_column: str | None = None
+) -> tuple[np.ndarray, list[str] | None]:
     where = repr(str(path))
     rows: list[list[str]] = []
     linenos: list[int] = []
@@ -653,16 +686,20 @@ def _read_delimited(path: Path, delimiter: str) -> tuple[np.ndarray, list[str] |
         raise ValueError(f"{where} is empty; it needs at least one data row")
     first = rows[0]
     has_header = any(_parse_float(cell) is None for cell in first)
-    has_ids = has_header and first[0].lower() == "id"
+    if has_header and len(first) == 1:
+        other = next((d for d in (";", "\t", ",", "|") if d != delimiter and d in first[0]), None)
+        if other is not None:
+            raise ValueError(f"{where} has one column on line {linenos[0]}" + _cell_hint(first[0], 1, None, delimiter))
+    id_at = _id_column(first, has_header, id_column, where)
     ncols = len(first)
     start = 1 if has_header else 0
-    offset = 1 if has_ids else 0
-    if ncols - offset == 0:
+    if ncols - (id_at is not None) == 0:
         raise ValueError(f"{where} has no feature columns (only an id column)")
     if start >= len(rows):
         raise ValueError(f"{where} has a header row but no data rows")
-    X = np.empty((len(rows) - start, ncols - offset), dtype=np.float64)
-    ids: list[str] | None = [] if has_ids else None
+    features = [j for j in range(ncols) if j != id_at]
+    X = np.empty((len(rows) - start, len(features)), dtype=np.float64)
+    ids: list[str] | None = [] if id_at is not None else None
     for i, (row, lineno) in enumerate(zip(rows[start:], linenos[start:])):
         if len(row) != ncols:
             raise ValueError(
@@ -670,32 +707,45 @@ def _read_delimited(path: Path, delimiter: str) -> tuple[np.ndarray, list[str] |
                 f"(as on line {linenos[0]}); every row needs the same number of columns"
             )
         if ids is not None:
-            ids.append(row[0])
-        for j in range(offset, ncols):
+            if not row[id_at]:
+                raise ValueError(f"{where} line {lineno}: the id cell (column {id_at + 1}) is empty; give "
+                                 "every row an id")
+            ids.append(row[id_at])
+        for k, j in enumerate(features):
             value = _parse_float(row[j])
             if value is None:
                 raise ValueError(
                     f"{where} line {lineno}, column {j + 1}: cell {_short(row[j])} is not a number"
                     + _cell_hint(row[j], j, first if has_header else None, delimiter)
                 )
-            X[i, j - offset] = value
+            X[i, k] = value
     data_lines = linenos[start:]
-    _check_finite(X, where, lambda r, c: f"line {data_lines[r]}, column {c + offset + 1}")
+    _check_finite(X, where, lambda r, c: f"line {data_lines[r]}, column {features[c] + 1}")
+    if ids is None and not has_header and _looks_like_ids(X):
+        warnings.warn(
+            f"{where}: the first column counts up ({X[0, 0]:g}, {X[1, 0]:g}, {X[2, 0]:g}, ...) like row ids, "
+            "and it is read as a feature; if it holds ids, head it 'id' or pass --id-column 1 "
+            "(id_column='1')",
+            UserWarning,
+            stacklevel=3,
+        )
     return X, ids
 
 
 @overload
-def read_features(path: StrPath, return_ids: Literal[False] = ...) -> np.ndarray: ...
+def read_features(
+    path: StrPath, return_ids: Literal[False] = ..., id_column: str | None = ...
+) -> np.ndarray: ...
 
 
 @overload
 def read_features(
-    path: StrPath, return_ids: Literal[True]
+    path: StrPath, return_ids: Literal[True], id_column: str | None = ...
 ) -> tuple[np.ndarray, list[str] | None]: ...
 
 
 def read_features(
-    path: StrPath, return_ids: bool = False
+    path: StrPath, return_ids: bool = False, id_column: str | None = None
 ) -> np.ndarray | tuple[np.ndarray, list[str] | None]:
     """Read a 2-D feature matrix (samples x features) from ``.npy``, ``.csv`` or ``.tsv``.
 
@@ -705,8 +755,12 @@ def read_features(
         File to read. ``.npy`` is loaded with ``allow_pickle=False``. ``.csv``
         (comma) and ``.tsv`` (tab) are delimited UTF-8 text, one sample a row.
     return_ids : bool, default False
-        Also return the sample ids of the ``id`` column (``None`` when the file
-        has none, and always for ``.npy``).
+        Also return the sample ids (``None`` when the file has none, and
+        always for ``.npy``: give ids in a file of their own, :func:`read_ids`).
+    id_column : str, default=None
+        The column holding sample ids: its header (any case), or its number
+        counting from 1 (for files without a header). None: the first column
+        when its header is ``id``. Ids are kept as text, never read as features.
 
     Returns
     -------
@@ -754,10 +808,81 @@ def read_features(
     ext = _extension(p, FEATURE_EXTENSIONS, "feature")
     _require_file(p, "feature")
     if ext == ".npy":
+        if id_column is not None:
+            raise ValueError(f"{str(p)!r} is a .npy array and has no columns of text; give the ids in a "
+                             "file of their own (gwpred: --ids FILE) instead of an id column")
         X, ids = _read_npy(p), None
     else:
-        X, ids = _read_delimited(p, "," if ext == ".csv" else "\t")
+        X, ids = _read_delimited(p, "," if ext == ".csv" else "\t", id_column)
     return (X, ids) if return_ids else X
+
+
+def read_ids(path: StrPath, column: str = "id") -> list[str]:
+    """Read sample ids, one per input row, from a file of their own.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        ``.txt`` with one id per line, or ``.csv`` / ``.tsv`` with a header
+        row holding ``column`` (other columns are ignored).
+    column : str, default="id"
+        Header of the id column in ``.csv`` / ``.tsv`` files (any case).
+
+    Returns
+    -------
+    list of str
+
+    Raises
+    ------
+    ValueError
+        For an empty id (names the line), a missing column, ragged rows, or a
+        file that is not UTF-8.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     p = os.path.join(d, "ids.txt")
+    ...     _ = open(p, "w").write("mol-a\\nmol-b\\n")
+    ...     read_ids(p)
+    ['mol-a', 'mol-b']
+    """
+    p = Path(path)
+    ext = _extension(p, (".txt", ".csv", ".tsv"), "id")
+    _require_file(p, "id")
+    where = repr(str(p))
+    try:
+        text = p.read_text(encoding="utf-8")
+    except UnicodeDecodeError as err:
+        raise ValueError(f"{where} is not UTF-8 text ({err}); save the file as UTF-8") from err
+    lines = text.splitlines()
+    while lines and not lines[-1].strip():
+        lines.pop()  # a trailing blank line is not an id
+    if ext == ".txt":
+        pairs = list(enumerate(lines, start=1))
+    else:
+        rows = list(csv.reader(lines, delimiter="," if ext == ".csv" else "\t"))
+        if not rows:
+            raise ValueError(f"{where} is empty; it needs a header row with a {column!r} column")
+        header = [h.strip().lower() for h in rows[0]]
+        if column.lower() not in header:
+            raise ValueError(f"{where} has no {column!r} column (header: {rows[0]}); name the column "
+                             "or pass its header")
+        j = header.index(column.lower())
+        pairs = []
+        for k, r in enumerate(rows[1:], start=2):
+            if len(r) != len(header):
+                raise ValueError(f"{where} line {k} has {len(r)} columns, expected {len(header)}")
+            pairs.append((k, r[j]))
+    ids = []
+    for lineno, value in pairs:
+        value = value.strip()
+        if not value:
+            raise ValueError(f"{where} line {lineno}: empty id; give every input row an id")
+        ids.append(value)
+    if not ids:
+        raise ValueError(f"{where} holds no ids")
+    return ids
 
 
 def read_formulas(path: StrPath, column: str = "formula") -> list[str | None]:
@@ -847,7 +972,7 @@ def write_features(path: StrPath, X: np.ndarray, ids: Sequence[str] | None = Non
     ValueError
         If the extension is not supported, ``X`` is not a non-empty 2-D
         numeric array, ``X`` holds NaN or infinity, ``ids`` has the wrong
-        length, or ``ids`` is given for ``.npy``.
+        length or a blank id, or ``ids`` is given for ``.npy``.
     FileNotFoundError
         If the target directory does not exist.
 
@@ -885,6 +1010,9 @@ def write_features(path: StrPath, X: np.ndarray, ids: Sequence[str] | None = Non
         id_list = [str(v) for v in ids]
         if len(id_list) != arr.shape[0]:
             raise ValueError(f"ids has {len(id_list)} entries but X has {arr.shape[0]} rows; give one id per row")
+        blank = [r for r, v in enumerate(id_list) if not v.strip()]
+        if blank:
+            raise ValueError(f"ids[{blank[0]}] is blank ({len(blank)} blank in all); give every row an id")
     if ext == ".npy":
         with atomic_open(p, binary=True) as fh:
             np.save(fh, arr, allow_pickle=False)
@@ -1202,13 +1330,20 @@ class RankedCandidate:
     score: float | None = None
 
 
-def write_ranked(path: StrPath, ranked: Sequence[Sequence[tuple[int, float]]], candidates: Any) -> None:
+def write_ranked(
+    path: StrPath,
+    ranked: Sequence[Sequence[tuple[int, float]]],
+    candidates: Any,
+    ids: Sequence[str] | None = None,
+) -> None:
     """Write ranked lists as JSON Lines, one object per input row.
 
-    Each line is ``{"row": i, "ranked": [{"candidate": j, "score": s,
-    "graph": <node-link record>}, ...]}``, best first; the graph is the
-    candidate in networkx's node-link form with the edge list under
-    ``"edges"``.  The file is replaced atomically.
+    Each line is ``{"row": i, "id": ..., "ranked": [{"candidate": j, "id": ...,
+    "score": s, "graph": <node-link record>}, ...]}``, best first; the graph is
+    the candidate in networkx's node-link form with the edge list under
+    ``"edges"``.  The row's ``id`` (from ``ids``) and a candidate's ``id`` (its
+    ``graph["id"]``, e.g. an SDF title) appear when known.  The file is
+    replaced atomically.
 
     Parameters
     ----------
@@ -1220,26 +1355,37 @@ def write_ranked(path: StrPath, ranked: Sequence[Sequence[tuple[int, float]]], c
         The candidates that were ranked (indices refer to them): one list
         shared by all rows, an object holding such a list as ``graphs``
         (:class:`gwpred.ranking.CandidateLibrary`), or one list per row.
+    ids : sequence of str, optional
+        The input rows' sample ids.
 
     Raises
     ------
     ValueError
-        For a path that does not end in ``.jsonl``, or a graph whose
-        attributes JSON cannot hold.
+        For a path that does not end in ``.jsonl``, ``ids`` of the wrong
+        length, or a graph whose attributes JSON cannot hold.
     """
     target = Path(path)
     if target.suffix.lower() != ".jsonl":
         raise ValueError(f"ranked lists are written as JSON Lines: give a .jsonl path; got {str(path)!r}.")
+    if ids is not None and len(ids) != len(ranked):
+        raise ValueError(f"ids has {len(ids)} entries but there are {len(ranked)} ranked lists; give one id per row")
     shared = getattr(candidates, "graphs", candidates)
     per_row = not all(isinstance(g, nx.Graph) for g in shared)
     lines = []
     for r, row in enumerate(ranked):
         pool = shared[r] if per_row else shared
-        items = [
-            {"candidate": j, "score": score, "graph": json.loads(graph_to_json_line(pool[j], j))}
-            for j, score in row
-        ]
-        lines.append(json.dumps({"row": r, "ranked": items}, allow_nan=False, ensure_ascii=False))
+        items = []
+        for j, score in row:
+            item: dict[str, Any] = {"candidate": j}
+            if pool[j].graph.get("id") is not None:
+                item["id"] = pool[j].graph["id"]
+            item.update(score=score, graph=json.loads(graph_to_json_line(pool[j], j)))
+            items.append(item)
+        record: dict[str, Any] = {"row": r}
+        if ids is not None:
+            record["id"] = str(ids[r])
+        record["ranked"] = items
+        lines.append(json.dumps(record, allow_nan=False, ensure_ascii=False))
     with atomic_open(target, binary=False) as fh:
         for line in lines:
             fh.write(line + "\n")

@@ -86,7 +86,7 @@ from numpy.typing import ArrayLike, NDArray
 from sklearn.utils.validation import check_is_fitted
 
 from . import wl
-from ._utils import check_inputs, progress_bar, require_extra
+from ._utils import check_inputs, progress_bar, renamed_keyword, require_extra
 from .chem import graph_to_mol, morgan_fingerprints, rdkit_modules
 from .codec import LabelSpace, TrainingSet
 from .fgw import feature_costs, fgw_to_many, pad_graphs
@@ -110,6 +110,7 @@ __all__ = [
     "FittedModel",
     "candidate_fgw_arrays",
     "canonical_order",
+    "count_candidates",
     "fgw_arrays",
     "fgw_candidate_values",
     "prepare_candidates",
@@ -891,13 +892,14 @@ def rank_candidates(
     X: ArrayLike,
     candidates: Any,
     *,
-    k: int = 10,
+    top_k: int = 10,
     scorer: str = "kernel",
     filter: Sequence[Any] | None = None,
     output_kernel: str = "wl",
     wl_iterations: int = 3,
     fingerprint_bits: int = 2048,
     progress: bool = False,
+    k: int | None = None,
 ) -> Ranked:
     """Rank candidate graphs for each input of a fitted model (see the module notes).
 
@@ -909,7 +911,7 @@ def rank_candidates(
         Inputs, as for ``predict``.
     candidates : list of networkx.Graph, CandidateLibrary, or list of lists
         One set shared by all inputs, or one list per input row.
-    k : int, default=10
+    top_k : int, default=10
         Length of each ranked list (shorter when a row has fewer candidates).
     scorer : {"kernel", "fgw", "objective"}, default="kernel"
     filter : list or None, default=None
@@ -928,11 +930,13 @@ def rank_candidates(
         Fingerprint length of the ``fingerprint`` kernel.
     progress : bool, default=False
         Progress bar over the inputs.
+    k : int, optional
+        Old name of ``top_k`` (works for one more release, with a FutureWarning).
 
     Returns
     -------
     list of list of (int, float)
-        Per input, up to ``k`` (candidate index, score) pairs, best first:
+        Per input, up to ``top_k`` (candidate index, score) pairs, best first:
         highest score for ``kernel``, lowest for ``fgw`` and ``objective``.
         Scores are rounded to 10 decimals; equal scores are ordered by
         candidate index.
@@ -949,9 +953,10 @@ def rank_candidates(
         For ``output_kernel="fingerprint"`` without RDKit.
     """
     check_is_fitted(model, "training_")
+    top_k = renamed_keyword("k", "top_k", k, top_k, 10)
     _check_names(scorer, output_kernel)
     for name, value, lo in (
-        ("k", k, 1),
+        ("top_k", top_k, 1),
         ("wl_iterations", wl_iterations, 0),
         ("fingerprint_bits", fingerprint_bits, 1),
     ):
@@ -972,4 +977,26 @@ def rank_candidates(
     scores = list(
         progress_bar(method.scores(job), progress=progress, total=len(X), desc=f"ranking ({scorer})", unit="input")
     )
-    return [_top(s, pos, int(k), method.higher_is_better) for s, pos in zip(scores, problem.positions)]
+    return [_top(s, pos, int(top_k), method.higher_is_better) for s, pos in zip(scores, problem.positions)]
+
+
+def count_candidates(
+    candidates: Any, n_inputs: int, filter: Sequence[Any] | None = None, node_label: str = "label"
+) -> NDArray[np.int64]:
+    """How many candidates each input row has after ``filter`` (as :func:`rank_candidates` applies it).
+
+    Parameters
+    ----------
+    candidates : list of networkx.Graph, CandidateLibrary, or list of lists
+    n_inputs : int
+    filter : list or None, default=None
+        As in :func:`rank_candidates`.
+    node_label : str, default="label"
+
+    Returns
+    -------
+    ndarray of shape (n_inputs,)
+    """
+    problem = _candidate_sets(candidates, n_inputs)
+    problem, _ = _apply_filter(problem, filter, node_label)
+    return np.asarray([len(r) for r in problem.rows], dtype=np.int64)

@@ -312,7 +312,7 @@ def test_smi_round_trip_through_io(tmp_path):
     graphs = [graph_from_smiles(s) for s in MOLECULES]
     for k, G in enumerate(graphs):
         if k % 2 == 0:
-            G.graph["name"] = f"mol {k}"  # names may contain spaces (rest of the line)
+            G.graph["id"] = f"mol {k}"  # names may contain spaces (rest of the line)
     path = tmp_path / "mols.smi"
     write_graphs(path, graphs)
     lines = path.read_text(encoding="utf-8").splitlines()
@@ -321,7 +321,7 @@ def test_smi_round_trip_through_io(tmp_path):
     assert len(back) == len(graphs)
     for s, G, H in zip(MOLECULES, graphs, back):
         assert H.graph["smiles"] == rdkit_canonical(s)
-        assert H.graph.get("name") == G.graph.get("name")
+        assert H.graph.get("id") == G.graph.get("id")  # the sample id is the line's name
         assert graph_to_smiles(H) == rdkit_canonical(s)
         assert label_isomorphic(G, H)
 
@@ -331,7 +331,7 @@ def test_smi_reader_skips_comments_and_blank_lines(tmp_path):
     text = "# SMILES name\n\nCCO\tethanol\n  \n# comment\nc1ccccc1   benzene ring\n"
     path.write_text(text, encoding="utf-8")
     graphs = read_smiles_file(path)
-    assert [G.graph.get("name") for G in graphs] == ["ethanol", "benzene ring"]
+    assert [G.graph.get("id") for G in graphs] == ["ethanol", "benzene ring"]
     assert [graph_to_smiles(G) for G in graphs] == [rdkit_canonical("CCO"), rdkit_canonical("c1ccccc1")]
 
 
@@ -360,8 +360,8 @@ def test_smi_writer_errors(tmp_path):
     with pytest.raises(ValueError, match=r"graphs\[0\] cannot be written as SMILES: graph has no nodes"):
         write_smiles_file(path, [nx.Graph()])
     named = graph_from_smiles("C")
-    named.graph["name"] = 7
-    with pytest.raises(TypeError, match=r"graphs\[0\] has name=7 of type int.*str\(\)"):
+    named.graph["name"] = 7.5
+    with pytest.raises(TypeError, match=r"graphs\[0\] has name=7.5 of type float.*str\(\)"):
         write_smiles_file(path, [named])
     named.graph["name"] = "two\nlines"
     with pytest.raises(ValueError, match=r"graphs\[0\] has name='two\\nlines'; a molecule name must be"):
@@ -390,14 +390,15 @@ def test_sdf_round_trip_through_io(tmp_path):
         assert {frozenset(e[:2]): e[2] for e in H.edges(data="label")} == {
             frozenset(e[:2]): e[2] for e in G.edges(data="label")
         }
-    assert back[0].graph == {"name": "ethanol", "smiles": "CCO"}
-    assert back[1].graph == {"id": "17", "smiles": "CC(=O)O"}  # SD data fields are text
+    # the title is the sample id: written from "id" (or an older "name"), read back as "id" (text)
+    assert back[0].graph == {"id": "ethanol", "smiles": "CCO"}
+    assert back[1].graph == {"id": "17", "smiles": "CC(=O)O"}
     # Reference: RDKit reads the file on its own: same molecules, names, fields,
     # and 2D coordinates (every z is 0).
     records = list(Chem.SDMolSupplier(str(path)))
     written = [Chem.MolToSmiles(m, isomericSmiles=False) for m in records]
     assert written == [rdkit_canonical(s) for s in MOLECULES]
-    assert records[0].GetProp("_Name") == "ethanol" and records[1].GetProp("id") == "17"
+    assert records[0].GetProp("_Name") == "ethanol" and records[1].GetProp("_Name") == "17"
     for m in records:
         xyz = m.GetConformer().GetPositions()
         assert not m.GetConformer().Is3D() and np.all(xyz[:, 2] == 0) and np.ptp(xyz[:, :2]) > 0
@@ -413,7 +414,7 @@ def test_sdf_reader_folds_hydrogens_and_kekulizes_aromatic_bonds(tmp_path):
     path.write_text(Chem.MolToMolBlock(mol, kekulize=False), encoding="utf-8")
     assert "  4  0" in path.read_text(encoding="utf-8")  # aromatic bonds in the file
     (G,) = read_graphs(path)
-    assert G.graph["name"] == "toluene"
+    assert G.graph["id"] == "toluene"
     assert sorted(G.nodes[v]["label"] for v in G) == ["C"] * 7
     assert Counter(o for _, _, o in G.edges(data="label")) == {1: 4, 2: 3}
     assert graph_to_smiles(G) == rdkit_canonical("Cc1ccccc1")
@@ -439,13 +440,13 @@ def test_sdf_reader_errors(tmp_path):
     junk.write_text("hello\n", encoding="utf-8")
     with pytest.raises(ValueError, match=r"junk.sdf' record 1: not a MOL record"):
         read_sdf(junk)
-    # A record whose title and 'name' data field disagree.
+    # A record whose title and 'id' data field disagree.
     clash = tmp_path / "clash.sdf"
-    with_field = records[0].replace("M  END\n", "M  END\n>  <name>\nother\n\n", 1)
+    with_field = records[0].replace("M  END\n", "M  END\n>  <id>\nother\n\n", 1)
     clash.write_text(with_field + "$$$$\n", encoding="utf-8")
     text = clash.read_text(encoding="utf-8")
     clash.write_text("title\n" + text.split("\n", 1)[1], encoding="utf-8")
-    with pytest.raises(ValueError, match=r"record 1: has the title 'title' and a data field 'name'"):
+    with pytest.raises(ValueError, match=r"record 1: has the title 'title' and a data field 'id'"):
         read_sdf(clash)
     empty = tmp_path / "empty.sdf"
     empty.write_text("", encoding="utf-8")

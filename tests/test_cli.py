@@ -46,8 +46,9 @@ TEST = list(range(25, 3000, 600))  # 5 others
 NODE_EDGE_SCORES = ["node_label_accuracy", "edge_precision", "edge_recall", "edge_f1"]
 SUMMARY_KEYS = {"n", "mean_ged", "median_ged", "exact_match_rate", "right_size_rate", "connected_rate", "exact_share",
                 *NODE_EDGE_SCORES}
-ITEM_COLUMNS = ["index", "ged", "ged_proven", "exact_match", "n_pred", "n_true", "connected", *NODE_EDGE_SCORES]
-MODEL_OPTS = ["--top-k", "3", "--alpha", "0.5", "--seed", "0"]
+# the pair's id, and for molecules (RDKit installed) formulas and SMILES of both graphs
+ITEM_COLUMNS = ["index", "id", "formula_predicted", "formula_true", "smiles_predicted", "smiles_true", "ged", "ged_proven", "exact_match", "n_pred", "n_true", "connected", *NODE_EDGE_SCORES]
+MODEL_OPTS = ["--n-neighbors", "3", "--alpha", "0.5", "--seed", "0"]
 
 
 # --------------------------------------------------------------------------
@@ -133,10 +134,10 @@ def test_top_level_help(capsys):
     "command, options",
     [
         ("fit", ["--features", "--graphs", "--model", "--kernel", "--gamma", "--ridge", "--weighting",
-                 "--top-k", "--alpha", "--decoding", "--seed", "--quiet"]),
+                 "--n-neighbors", "--alpha", "--decoding", "--valence", "--id-column", "--ids", "--seed", "--quiet"]),
         ("predict", ["--model", "--features", "--out", "--quiet"]),
-        ("evaluate", ["predicted", "truth", "--time-limit", "--summary", "--items", "--n-jobs", "--quiet"]),
-        ("demo", ["--out", "--test-size", "--show", "--time-limit", "--kernel", "--top-k", "--alpha",
+        ("evaluate", ["predicted", "--truth", "--time-limit", "--summary", "--items", "--n-jobs", "--quiet"]),
+        ("demo", ["--out", "--n-test", "--drawings", "--time-limit", "--kernel", "--n-neighbors", "--alpha",
                   "--seed", "--quiet"]),
     ],
 )
@@ -190,7 +191,7 @@ def test_fit_writes_a_loadable_model(capsys, tmp_path, files, demo):
     from gwpred import load_model
 
     model = load_model(model_path)
-    assert (model.top_k, model.alpha, model.random_state) == (3, 0.5, 0)
+    assert (model.n_neighbors, model.alpha, model.random_state) == (3, 0.5, 0)
     assert model.n_train_ == len(TRAIN)
     # .jsonl and .graphml training files give the same model
     assert model_path.read_bytes() == files["model"].read_bytes()
@@ -210,11 +211,11 @@ def test_fit_predict_evaluate(capsys, tmp_path, files, demo, ext):
     pred = read_any(pred_path)
     assert len(pred) == len(TEST)
     # the CLI predicts what the library predicts with the same options
-    ref = BarycenterGraphPredictor(top_k=3, alpha=0.5, random_state=0).fit(demo[0], demo[1]).predict(Xte)
+    ref = BarycenterGraphPredictor(n_neighbors=3, alpha=0.5, random_state=0).fit(demo[0], demo[1]).predict(Xte)
     assert all(same_labeled_graph(p, r) for p, r in zip(pred, ref))
 
     summary_path, items_path = tmp_path / "summary.json", tmp_path / "items.csv"
-    code, out, err = run(capsys, "evaluate", pred_path, files["truth"], "--summary", summary_path,
+    code, out, err = run(capsys, "evaluate", pred_path, "--truth", files["truth"], "--summary", summary_path,
                          "--items", items_path, "--time-limit", "5", "-q")
     assert code == 0, err
     assert "mean GED" in out and "GED solved exactly for" in out
@@ -254,13 +255,13 @@ def test_precomputed_kernel_files(capsys, tmp_path, demo):
     assert code == 0, err
     code, _, err = run(capsys, "predict", "--model", model, "--features", k_test, "--out", pred_path, "-q")
     assert code == 0, err
-    ref = BarycenterGraphPredictor(gamma=1.0, top_k=3, alpha=0.5).fit(Xtr, Gtr).predict(Xte)
+    ref = BarycenterGraphPredictor(gamma=1.0, n_neighbors=3, alpha=0.5).fit(Xtr, Gtr).predict(Xte)
     assert all(same_labeled_graph(p, r) for p, r in zip(read_any(pred_path), ref))
 
 
 def test_evaluate_truth_against_itself(capsys, tmp_path, files):
     summary_path = tmp_path / "self.json"
-    code, _, err = run(capsys, "evaluate", files["truth"], files["truth"], "--summary", summary_path, "-q")
+    code, _, err = run(capsys, "evaluate", files["truth"], "--truth", files["truth"], "--summary", summary_path, "-q")
     assert code == 0, err
     s = json.loads(summary_path.read_text())
     # a distance from a graph to itself is 0; every pair is an exact match
@@ -270,7 +271,7 @@ def test_evaluate_truth_against_itself(capsys, tmp_path, files):
 def evaluate_files(capsys, tmp_path, pred_path, truth_path, *extra: str) -> tuple[str, dict, list[dict]]:
     """Run evaluate; return its stdout, the summary JSON and the items CSV rows."""
     summary_path, items_path = tmp_path / f"summary{len(extra)}.json", tmp_path / f"items{len(extra)}.csv"
-    code, out, err = run(capsys, "evaluate", pred_path, truth_path, "--summary", summary_path,
+    code, out, err = run(capsys, "evaluate", pred_path, "--truth", truth_path, "--summary", summary_path,
                          "--items", items_path, "-q", *extra)
     assert code == 0, err
     with open(items_path, newline="") as fh:
@@ -281,7 +282,14 @@ def evaluate_files(capsys, tmp_path, pred_path, truth_path, *extra: str) -> tupl
 def test_evaluate_node_and_edge_scores(capsys, tmp_path, demo, files):
     # Each true QM9 graph against the next one (unrelated molecules of up to 9 heavy atoms).
     _, _, _, Gte = demo
-    pred_path = write_jsonl(tmp_path / "shifted.jsonl", Gte[1:] + Gte[:1])
+    shifted = [g.copy() for g in Gte[1:] + Gte[:1]]
+    pred_path = write_jsonl(tmp_path / "shifted.jsonl", shifted)
+    # the demo molecules carry their QM9 names as ids: evaluate refuses rows out of order
+    expect_usage_error(capsys, ["evaluate", pred_path, "--truth", files["truth"], "-q"],
+                       f"row 0: id {shifted[0].graph['id']!r} in", "same samples in the same order")
+    for g in shifted:
+        del g.graph["id"]  # unrelated molecules paired on purpose
+    pred_path = write_jsonl(tmp_path / "shifted.jsonl", shifted)
     out, summary, rows = evaluate_files(capsys, tmp_path, pred_path, files["truth"])
     assert set(summary) == SUMMARY_KEYS
     assert list(rows[0]) == ITEM_COLUMNS
@@ -311,7 +319,10 @@ def test_evaluate_truth_against_itself_scores_one(capsys, tmp_path, files):
 
 def test_evaluate_n_jobs_gives_the_same_scores(capsys, tmp_path, demo, files):
     _, _, _, Gte = demo
-    pred_path = write_jsonl(tmp_path / "shifted.jsonl", Gte[2:] + Gte[:2])
+    shifted = [g.copy() for g in Gte[2:] + Gte[:2]]
+    for g in shifted:
+        del g.graph["id"]  # unrelated molecules paired on purpose (ids would refuse the order)
+    pred_path = write_jsonl(tmp_path / "shifted.jsonl", shifted)
     out1, summary1, rows1 = evaluate_files(capsys, tmp_path, pred_path, files["truth"])
     out2, summary2, rows2 = evaluate_files(capsys, tmp_path, pred_path, files["truth"], "--n-jobs", "2")
     assert summary1["exact_share"] == 1.0  # no pair stopped by the clock, so results are comparable
@@ -320,15 +331,21 @@ def test_evaluate_n_jobs_gives_the_same_scores(capsys, tmp_path, demo, files):
     assert out2 == out1
 
 
+def test_evaluate_needs_the_truth(capsys, files):
+    expect_usage_error(capsys, ["evaluate", files["truth"], "-q"], "give the true graphs to score against with --truth FILE")
+    expect_usage_error(capsys, ["evaluate", files["truth"], files["truth"], "--truth", files["truth"], "-q"],
+                       "give the true graphs once, with --truth")
+
+
 @pytest.mark.parametrize("value", ["0", "-3"])
 def test_evaluate_rejects_bad_n_jobs(capsys, files, value):
-    expect_usage_error(capsys, ["evaluate", files["truth"], files["truth"], "--n-jobs", value, "-q"],
+    expect_usage_error(capsys, ["evaluate", files["truth"], "--truth", files["truth"], "--n-jobs", value, "-q"],
                        f"--n-jobs must be a number of worker processes >= 1, or -1 for one per processor; got {value}.")
 
 
 def test_evaluate_n_jobs_must_be_an_integer(capsys, files):
     with pytest.raises(SystemExit) as exc:
-        main(["evaluate", str(files["truth"]), str(files["truth"]), "--n-jobs", "two"])
+        main(["evaluate", str(files["truth"]), "--truth", str(files["truth"]), "--n-jobs", "two"])
     assert exc.value.code == 2
     assert "argument --n-jobs: invalid int value: 'two'" in capsys.readouterr().err
 
@@ -377,7 +394,7 @@ def test_unsupported_graph_extension(capsys, tmp_path, files):
 
 def test_evaluate_mismatched_counts(capsys, tmp_path, demo, files):
     short = write_jsonl(tmp_path / "short.jsonl", demo[3][:4])
-    expect_usage_error(capsys, ["evaluate", short, files["truth"], "-q"],
+    expect_usage_error(capsys, ["evaluate", short, "--truth", files["truth"], "-q"],
                        f"{short} holds 4 graphs but {files['truth']} holds {len(TEST)}",
                        "one prediction per true graph")
 
@@ -437,9 +454,8 @@ def test_invalid_model_option_value(capsys, tmp_path, files):
         (["fit", "--features", "x.csv", "--graphs", "g.jsonl", "--model", "m.npz", "--kernel", "nope"],
          "invalid choice: 'nope'"),
         (["fit", "--features", "x.csv", "--graphs", "g.jsonl"], "the following arguments are required: --model"),
-        (["fit", "--features", "x.csv", "--graphs", "g.jsonl", "--model", "m.npz", "--top-k", "many"],
-         "argument --top-k: invalid int value: 'many'"),
-        (["evaluate", "only_one.jsonl"], "the following arguments are required: truth"),
+        (["fit", "--features", "x.csv", "--graphs", "g.jsonl", "--model", "m.npz", "--n-neighbors", "many"],
+         "argument --n-neighbors: invalid int value: 'many'"),
     ],
 )
 def test_argparse_errors_exit_2(capsys, argv, fragment):
@@ -450,20 +466,26 @@ def test_argparse_errors_exit_2(capsys, argv, fragment):
 
 
 def test_demo_rejects_bad_test_size(capsys, tmp_path):
-    expect_usage_error(capsys, ["demo", "--test-size", "0", "--out", tmp_path / "d", "-q"],
-                       "--test-size must be between 1 and 2999; got 0")
+    expect_usage_error(capsys, ["demo", "--n-test", "0", "--out", tmp_path / "d", "-q"],
+                       "--n-test must be between 1 and 2999; got 0")
 
 
-def test_demo_rejects_bad_show(capsys, tmp_path):
-    expect_usage_error(capsys, ["demo", "--test-size", "2", "--show", "0", "--top-k", "1",
-                                "--out", tmp_path / "d", "-q"], "--show")
+def test_old_option_spellings_still_work_with_a_note(capsys, tmp_path):
+    # renamed options (one vocabulary, README "Names") keep working for one release and say so
+    code, _, err = run(capsys, "demo", "--test-size", "3", "--show", "1", "--top-k", "2", "--drawings", "0",
+                       "--out", tmp_path / "d", "-q")
+    assert code == 0, err
+    for old, new in (("--test-size", "--n-test"), ("--show", "--drawings"), ("--top-k", "--n-neighbors")):
+        assert f"gwpred: {old} is now called {new}" in err
+    summary = json.loads((tmp_path / "d" / "summary.json").read_text())
+    assert summary["test_size"] == 3 and summary["params"]["n_neighbors"] == 2
 
 
 def test_demo_drawings_option(capsys, tmp_path):
     # the report's own advice ("raise --drawings to draw more") works on the demo too
     expect_usage_error(capsys, ["demo", "--drawings", "-1", "--out", tmp_path / "d", "-q"],
                        "--drawings must be at least 0; got -1")
-    code, _, err = run(capsys, "demo", "--test-size", "3", "--show", "1", "--drawings", "0", "--out", tmp_path / "e", "-q")
+    code, _, err = run(capsys, "demo", "--n-test", "3", "--drawings", "0", "--out", tmp_path / "e", "-q")
     assert code == 0, err
     assert "No drawings: only the first 0 items are drawn" in (tmp_path / "e" / "report.html").read_text()
 
@@ -473,7 +495,7 @@ def test_demo_drawings_option(capsys, tmp_path):
 # --------------------------------------------------------------------------
 def test_demo_small_run(capsys, tmp_path):
     out_dir = tmp_path / "demo"
-    code, out, err = run(capsys, "demo", "--test-size", "10", "--show", "2", "--out", out_dir, "-q")
+    code, out, err = run(capsys, "demo", "--n-test", "10", "--drawings", "2", "--out", out_dir, "-q")
     assert code == 0, err
     # table rows, and the caution line on stderr
     lines = out.splitlines()
@@ -644,7 +666,7 @@ def test_unreachable_scheduler_exits_2(capsys, tmp_path, files, command):
     address = f"tcp://127.0.0.1:{free_loopback_port()}"
     argv = {
         "predict": ["predict", "--model", files["model"], "--features", files["test_x"], "--out", tmp_path / "p.jsonl"],
-        "evaluate": ["evaluate", files["truth"], files["truth"]],
+        "evaluate": ["evaluate", files["truth"], "--truth", files["truth"]],
         "demo": ["demo", "--out", tmp_path / "demo"],
     }[command]
     expect_usage_error(capsys, [*argv, "--scheduler", address, "--scheduler-timeout", "1", "-q"],
@@ -692,8 +714,8 @@ def test_output_locations_are_checked_before_any_work(capsys, tmp_path, files, c
     argv = {
         "fit": ["fit", "--features", files["train_x"], "--graphs", files["train_gj"], "--model", where / "m.npz"],
         "predict": ["predict", "--model", files["model"], "--features", files["test_x"], "--out", where / "p.jsonl"],
-        "evaluate-summary": ["evaluate", files["truth"], files["truth"], "--summary", where / "s.json"],
-        "evaluate-items": ["evaluate", files["truth"], files["truth"], "--items", where / "i.csv"],
+        "evaluate-summary": ["evaluate", files["truth"], "--truth", files["truth"], "--summary", where / "s.json"],
+        "evaluate-items": ["evaluate", files["truth"], "--truth", files["truth"], "--items", where / "i.csv"],
         "rank": ["rank", "--model", files["model"], "--features", files["test_x"], "--candidates", files["truth"],
                  "--out", where / "r.jsonl"],
         "report": ["report", files["truth"], "--out", where / "r.html"],
@@ -705,7 +727,7 @@ def test_output_locations_are_checked_before_any_work(capsys, tmp_path, files, c
 
 
 def test_demo_and_compare_leave_no_folder_when_refused(capsys, tmp_path):
-    expect_usage_error(capsys, ["demo", "--out", tmp_path / "d", "--test-size", "0", "-q"], "--test-size must be")
+    expect_usage_error(capsys, ["demo", "--out", tmp_path / "d", "--n-test", "0", "-q"], "--n-test must be")
     expect_usage_error(capsys, ["compare", "--data", "demo", "--out", tmp_path / "c", "--fgw-rows", "-1", "-q"],
                        "--fgw-rows must be 0")
     assert not (tmp_path / "d").exists() and not (tmp_path / "c").exists()

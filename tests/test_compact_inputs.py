@@ -291,7 +291,7 @@ def node_link(graphs: list[nx.Graph]) -> list[dict]:
 
 def local_tanimoto() -> BarycenterGraphPredictor:
     return BarycenterGraphPredictor(
-        kernel="tanimoto", weight_model="local", local_size=40, top_k=4, valence=True, random_state=0
+        kernel="tanimoto", weight_model="local", local_size=40, n_neighbors=4, valence=True, random_state=0
     )
 
 

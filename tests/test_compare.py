@@ -45,7 +45,7 @@ def demo():
 def test_candidate_rows_keep_the_formula_and_drop_every_copy(demo):
     X, graphs = demo
     pool = graphs[:400] + [graphs[10].copy(), graphs[20].copy()]  # two exact duplicates
-    model = BarycenterGraphPredictor(top_k=3).fit(X[:100], graphs[:100])
+    model = BarycenterGraphPredictor(n_neighbors=3).fit(X[:100], graphs[:100])
     truth = [graphs[10], graphs[20], graphs[30]]
     with_true, without_true = candidate_rows(CandidateLibrary(pool), truth, model.labels_)
     for t, inside, outside in zip(truth, with_true, without_true):
@@ -64,7 +64,7 @@ def test_compare_methods_small_run(demo):
     order = rng.permutation(len(graphs))
     train, test = np.sort(order[:150]), np.sort(order[150:153])
     result = compare_methods(
-        X, graphs, train, test, params={"top_k": 3}, scorers=("kernel",), progress=False, data="demo"
+        X, graphs, train, test, params={"n_neighbors": 3}, scorers=("kernel",), progress=False, data="demo"
     )
     names = {(m.name, m.setting) for m in result.methods}
     assert ("rank: kernel (wl)", "in") in names and ("generation", "out") in names

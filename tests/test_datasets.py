@@ -346,6 +346,8 @@ def test_property_unit_norm_and_additivity(lines, half_width):
 # --------------------------------------------------------------------------
 def test_graphs_from_arrays_roundtrip(raw_arrays, demo):
     graphs = graphs_from_arrays(*(raw_arrays[k] for k in GRAPH_KEYS))
+    for g, index in zip(graphs, raw_arrays["qm9_index"].tolist()):
+        g.graph["id"] = f"dsgdb9nsd_{index:06d}"  # load_demo names each molecule as QM9 does (its .xyz file)
     assert all(nx.utils.graphs_equal(a, b) for a, b in zip(graphs, demo[1]))
 
 

@@ -74,7 +74,7 @@ def demo():
 @pytest.fixture(scope="module")
 def fitted(demo):
     Xtr, Gtr, _, _ = demo
-    return BarycenterGraphPredictor(top_k=TOP_K, random_state=0).fit(Xtr, Gtr)
+    return BarycenterGraphPredictor(n_neighbors=TOP_K, random_state=0).fit(Xtr, Gtr)
 
 
 @pytest.fixture(scope="module")
@@ -135,9 +135,9 @@ def test_sklearn_public_checks(check):
 def test_init_only_stores_parameters():
     # scikit-learn developer guide: __init__ sets exactly its arguments, no
     # validation; invalid values are reported by fit.
-    est = BarycenterGraphPredictor(alpha=2, top_k=0, kernel="nope")
+    est = BarycenterGraphPredictor(alpha=2, n_neighbors=0, kernel="nope")
     assert set(vars(est)) == set(est.get_params())
-    assert est.alpha == 2 and est.top_k == 0 and est.kernel == "nope"
+    assert est.alpha == 2 and est.n_neighbors == 0 and est.kernel == "nope"
     assert not any(k.endswith("_") for k in vars(est))
 
 
@@ -148,7 +148,7 @@ def test_get_set_params_round_trip():
         "gamma": 0.5,
         "ridge": 0.1,
         "weighting": "knn",
-        "top_k": 4,
+        "n_neighbors": 4,
         "alpha": 0.25,
         "n_nodes": 5,
         "edges": "threshold",
@@ -179,7 +179,7 @@ def test_clone_of_fitted_model_is_unfitted_with_same_params(fitted):
 
 def test_fit_returns_self_and_sets_fitted_attributes(demo):
     Xtr, Gtr, _, _ = demo
-    est = BarycenterGraphPredictor(top_k=TOP_K)
+    est = BarycenterGraphPredictor(n_neighbors=TOP_K)
     assert est.fit(Xtr, Gtr) is est
     assert est.n_features_in_ == Xtr.shape[1]
     assert est.n_train_ == len(Gtr)
@@ -193,31 +193,31 @@ def test_pipeline_with_standard_scaler(demo):
     # graphs travel as y through a scikit-learn Pipeline
     Xtr, Gtr, Xte, Gte = demo
     pipe = Pipeline(
-        [("scale", StandardScaler()), ("model", BarycenterGraphPredictor(top_k=TOP_K, random_state=0))]
+        [("scale", StandardScaler()), ("model", BarycenterGraphPredictor(n_neighbors=TOP_K, random_state=0))]
     )
     assert pipe.fit(Xtr, Gtr) is pipe
     got = pipe.predict(Xte[:5])
     # reference: the same two steps done by hand
     scaler = StandardScaler().fit(Xtr)
-    manual = BarycenterGraphPredictor(top_k=TOP_K, random_state=0).fit(scaler.transform(Xtr), Gtr)
+    manual = BarycenterGraphPredictor(n_neighbors=TOP_K, random_state=0).fit(scaler.transform(Xtr), Gtr)
     assert node_link(got) == node_link(manual.predict(scaler.transform(Xte[:5])))
-    assert pipe.get_params()["model__top_k"] == TOP_K
+    assert pipe.get_params()["model__n_neighbors"] == TOP_K
     pipe.set_params(model__alpha=0.5)
     assert pipe.named_steps["model"].alpha == 0.5
 
 
-def test_grid_search_over_alpha_and_top_k():
+def test_grid_search_over_alpha_and_n_neighbors():
     # the 40 smallest molecules of the demo file keep the 160 exact GEDs
     # (4 candidates x 2 folds x 20 held-out items) cheap
     X, graphs = load_demo()
     idx = np.argsort([g.number_of_nodes() for g in graphs], kind="stable")[:40]
     X40, G40 = X[idx], [graphs[i] for i in idx]
-    grid = {"alpha": [0.5, 0.9], "top_k": [1, 2]}
+    grid = {"alpha": [0.5, 0.9], "n_neighbors": [1, 2]}
     search = GridSearchCV(BarycenterGraphPredictor(random_state=0), grid, cv=2, error_score="raise")
     search.fit(X40, G40)
-    assert set(search.best_params_) == {"alpha", "top_k"}
+    assert set(search.best_params_) == {"alpha", "n_neighbors"}
     assert search.best_params_["alpha"] in grid["alpha"]
-    assert search.best_params_["top_k"] in grid["top_k"]
+    assert search.best_params_["n_neighbors"] in grid["n_neighbors"]
     scores = np.asarray(search.cv_results_["mean_test_score"], dtype=float)
     assert scores.shape == (4,) and np.all(np.isfinite(scores))
     # score is a negative mean GED: never positive, higher is better
@@ -231,7 +231,7 @@ def test_grid_search_over_alpha_and_top_k():
 # --------------------------------------------------------------------------
 def test_same_random_state_gives_identical_predictions(demo, predicted):
     Xtr, Gtr, Xte, _ = demo
-    again = BarycenterGraphPredictor(top_k=TOP_K, random_state=0).fit(Xtr, Gtr).predict(Xte)
+    again = BarycenterGraphPredictor(n_neighbors=TOP_K, random_state=0).fit(Xtr, Gtr).predict(Xte)
     assert node_link(again) == node_link(predicted)
 
 
@@ -239,7 +239,7 @@ def test_same_random_state_gives_identical_predictions(demo, predicted):
 @pytest.mark.parametrize("edges", ["budget", "threshold"])
 def test_predictions_are_valid_graphs(demo, decoding, edges):
     Xtr, Gtr, Xte, _ = demo
-    model = BarycenterGraphPredictor(top_k=TOP_K, decoding=decoding, edges=edges).fit(Xtr, Gtr)
+    model = BarycenterGraphPredictor(n_neighbors=TOP_K, decoding=decoding, edges=edges).fit(Xtr, Gtr)
     pred = model.predict(Xte)
     assert len(pred) == len(Xte)
     node_set = {lab for g in Gtr for _, lab in g.nodes(data="label")}
@@ -264,7 +264,7 @@ def test_predictions_are_valid_graphs(demo, decoding, edges):
 
 def test_fixed_n_nodes_with_free_decoding(demo):
     Xtr, Gtr, Xte, _ = demo
-    model = BarycenterGraphPredictor(top_k=TOP_K, n_nodes=6, decoding="free").fit(Xtr, Gtr)
+    model = BarycenterGraphPredictor(n_neighbors=TOP_K, n_nodes=6, decoding="free").fit(Xtr, Gtr)
     assert [g.number_of_nodes() for g in model.predict(Xte[:5])] == [6] * 5
 
 
@@ -306,7 +306,7 @@ def test_weights_match_sklearn_kernel_ridge(fitted, demo):
     kr = KernelRidge(alpha=n * fitted.ridge, kernel="rbf", gamma=gamma).fit(Xtr, np.eye(n))
     coef = kr.predict(Xte)
     for row, s in zip(coef, fitted.predict_barycenters(Xte)):
-        order = np.argsort(-row, kind="stable")[: fitted.top_k]
+        order = np.argsort(-row, kind="stable")[: fitted.n_neighbors]
         w = np.clip(row[order], 0, None)
         keep = w > 0
         assert s.neighbors.tolist() == order[keep].tolist()
@@ -319,7 +319,7 @@ def test_known_answer_training_input_returns_its_graph(demo, decoding):
     # is close to the i-th unit vector (common practice), so top_k=1 keeps
     # graph i alone, and the FGW barycenter of one graph is that graph.
     Xtr, Gtr, _, _ = demo
-    model = BarycenterGraphPredictor(top_k=1, ridge=1e-8, decoding=decoding).fit(Xtr, Gtr)
+    model = BarycenterGraphPredictor(n_neighbors=1, ridge=1e-8, decoding=decoding).fit(Xtr, Gtr)
     rows = list(range(0, N_TRAIN, 15))
     softs = model.predict_barycenters(Xtr[rows])
     assert [s.neighbors.tolist() for s in softs] == [[i] for i in rows]
@@ -331,7 +331,7 @@ def test_known_answer_training_input_returns_its_graph(demo, decoding):
 def test_precomputed_kernel_matches_rbf(fitted, demo, predicted):
     Xtr, Gtr, Xte, _ = demo
     gamma = fitted.weights_.gamma_
-    pre = BarycenterGraphPredictor(kernel="precomputed", top_k=TOP_K, random_state=0)
+    pre = BarycenterGraphPredictor(kernel="precomputed", n_neighbors=TOP_K, random_state=0)
     pre.fit(kernel_matrix(Xtr, Xtr, "rbf", gamma), Gtr)
     got = pre.predict(kernel_matrix(Xte, Xtr, "rbf", gamma))
     assert node_link(got) == node_link(predicted)
@@ -351,7 +351,7 @@ def test_score_agrees_with_networkx_graph_edit_distance():
     # defaults when node_match / edge_match are given, per its documentation,
     # recalled from memory); exact on graphs this small.
     X, graphs = toy()
-    model = BarycenterGraphPredictor(top_k=2).fit(X, graphs)
+    model = BarycenterGraphPredictor(n_neighbors=2).fit(X, graphs)
     Xq = np.array([[0.4], [2.5], [4.6]])
     truth = [chain(3, "O", 1), chain(4, "C", 2), chain(6, "C", 1)]
     pred = model.predict(Xq)
@@ -367,7 +367,7 @@ def test_score_mismatched_lengths(fitted, demo):
 
 def test_score_ignores_edge_labels_when_edge_label_is_none():
     X, graphs = toy()  # edges labelled 1 or 2
-    model = BarycenterGraphPredictor(top_k=1, ridge=1e-8, edge_label=None).fit(X, graphs)
+    model = BarycenterGraphPredictor(n_neighbors=1, ridge=1e-8, edge_label=None).fit(X, graphs)
     pred = model.predict(X)
     # the predictions are the training graphs up to edge labels (networkx VF2)
     assert all(nx.is_isomorphic(p, g, node_match=NODE_MATCH) for p, g in zip(pred, graphs))
@@ -407,7 +407,7 @@ def test_nan_in_X_at_fit():
 
 def test_inf_in_X_at_predict():
     X, graphs = toy()
-    model = BarycenterGraphPredictor(top_k=1).fit(X, graphs)
+    model = BarycenterGraphPredictor(n_neighbors=1).fit(X, graphs)
     with pytest.raises(ValueError, match=r"X has 2 NaN or infinite value\(s\), the first at row 1, column 0"):
         model.predict([[0.0], [np.nan], [np.inf]])
 
@@ -470,7 +470,7 @@ def test_bad_training_graph(kind, exc, match):
 
 def test_wrong_number_of_columns_at_predict():
     X, graphs = toy()
-    model = BarycenterGraphPredictor(top_k=1).fit(np.hstack([X, X]), graphs)
+    model = BarycenterGraphPredictor(n_neighbors=1).fit(np.hstack([X, X]), graphs)
     with pytest.raises(ValueError, match=r"X has 3 columns but the model was fitted with 2; use the same features"):
         model.predict(np.zeros((1, 3)))
 
@@ -480,9 +480,9 @@ def test_wrong_number_of_columns_at_predict():
     [
         ({"alpha": 2}, r"alpha must be a number in \[0, 1\]; got 2\."),
         ({"alpha": "0.5"}, r"alpha must be a number in \[0, 1\]; got '0\.5'"),
-        ({"top_k": 0}, r"top_k must be a positive integer; got 0\."),
-        ({"top_k": 2.5}, r"top_k must be a positive integer; got 2\.5"),
-        ({"top_k": True}, r"top_k must be a positive integer; got True"),
+        ({"n_neighbors": 0}, r"n_neighbors must be a positive integer; got 0\."),
+        ({"n_neighbors": 2.5}, r"n_neighbors must be a positive integer; got 2\.5"),
+        ({"n_neighbors": True}, r"n_neighbors must be a positive integer; got True"),
         ({"max_outer": 0}, r"max_outer must be a positive integer; got 0"),
         ({"max_inner": -1}, r"max_inner must be a positive integer; got -1"),
         ({"kernel": "nope"}, r"kernel must be one of \[.*'rbf'.*'precomputed'\]; got 'nope'"),
@@ -516,7 +516,7 @@ def test_precomputed_kernel_of_wrong_shape():
     K = kernel_matrix(X, X, "rbf", 0.5)
     with pytest.raises(ValueError, match=r"with kernel='precomputed', fit needs the square training kernel matrix; got shape \(6, 5\)"):
         BarycenterGraphPredictor(kernel="precomputed").fit(K[:, :5], graphs)
-    model = BarycenterGraphPredictor(kernel="precomputed", top_k=1).fit(K, graphs)
+    model = BarycenterGraphPredictor(kernel="precomputed", n_neighbors=1).fit(K, graphs)
     with pytest.raises(ValueError, match=r"X has 5 columns but the model was fitted with 6; .*kernel to the training items"):
         model.predict(K[:2, :5])
 
@@ -530,7 +530,7 @@ def test_batched_barycenters_equal_one_query_at_a_time():
     # and soft barycenter must be what the query gives alone (bitwise for the soft
     # barycenters), with plain decoding, valence repair and formulas (QM9 demo molecules)
     X, graphs = load_demo()
-    fit = dict(top_k=8, valence=True)
+    fit = dict(n_neighbors=8, valence=True)
     one = BarycenterGraphPredictor(batch_size=1, **fit).fit(X[:300], graphs[:300])
     many = BarycenterGraphPredictor(batch_size=7, **fit).fit(X[:300], graphs[:300])
     queries, truth = X[300:340], graphs[300:340]
@@ -548,8 +548,8 @@ def test_predict_on_two_workers_equals_one():
     # the per-query steps run in joblib worker processes (outside reference: joblib/loky);
     # the predictions on QM9 spectra must not depend on where they ran
     X, graphs = load_demo()
-    one = BarycenterGraphPredictor(top_k=5, valence=True).fit(X[:200], graphs[:200])
-    two = BarycenterGraphPredictor(top_k=5, valence=True, n_jobs=2).fit(X[:200], graphs[:200])
+    one = BarycenterGraphPredictor(n_neighbors=5, valence=True).fit(X[:200], graphs[:200])
+    two = BarycenterGraphPredictor(n_neighbors=5, valence=True, n_jobs=2).fit(X[:200], graphs[:200])
     a, b = one.predict(X[200:212]), two.predict(X[200:212])
     assert [nx.node_link_data(g, edges="edges") for g in a] == [nx.node_link_data(g, edges="edges") for g in b]
 
@@ -576,11 +576,11 @@ def test_weight_model_defaults_and_auto_choice(demo, fitted, monkeypatch):
     assert fitted.weight_model_ == "dense" and type(fitted.weights_).__name__ == "KernelRidgeWeights"
     Xtr, Gtr, _, _ = demo
     monkeypatch.setattr(estimator_module, "AUTO_DENSE_MAX", len(Xtr) - 1)
-    above = BarycenterGraphPredictor(top_k=TOP_K).fit(Xtr, Gtr)
+    above = BarycenterGraphPredictor(n_neighbors=TOP_K).fit(Xtr, Gtr)
     assert above.weight_model_ == "local" and type(above.weights_).__name__ == "LocalRidgeWeights"
     # a precomputed kernel stays dense whatever the size
     K = kernel_matrix(Xtr, Xtr, "rbf", fitted.weights_.gamma_)
-    assert BarycenterGraphPredictor(kernel="precomputed", top_k=TOP_K).fit(K, Gtr).weight_model_ == "dense"
+    assert BarycenterGraphPredictor(kernel="precomputed", n_neighbors=TOP_K).fit(K, Gtr).weight_model_ == "dense"
 
 
 def test_local_weights_match_sklearn_kernel_ridge_on_the_nearest(demo):
@@ -589,7 +589,7 @@ def test_local_weights_match_sklearn_kernel_ridge_on_the_nearest(demo):
     # clipped and normalised as documented
     Xtr, Gtr, Xte, _ = demo
     M = 40
-    model = BarycenterGraphPredictor(top_k=TOP_K, weight_model="local", local_size=M, random_state=0).fit(Xtr, Gtr)
+    model = BarycenterGraphPredictor(n_neighbors=TOP_K, weight_model="local", local_size=M, random_state=0).fit(Xtr, Gtr)
     gamma = model.weights_.gamma_
     idx, w = model.neighbors(Xte)
     for row, x, i, ww in zip(rbf_kernel(Xte, Xtr, gamma=gamma), Xte, idx, w):
@@ -606,7 +606,7 @@ def test_local_weights_match_sklearn_kernel_ridge_on_the_nearest(demo):
 def test_local_with_every_training_input_predicts_as_dense(demo, fitted, predicted):
     # with local_size >= n the local solve is the dense solve (checked against scikit-learn above)
     Xtr, Gtr, Xte, _ = demo
-    local = BarycenterGraphPredictor(top_k=TOP_K, weight_model="local", local_size=len(Xtr), random_state=0)
+    local = BarycenterGraphPredictor(n_neighbors=TOP_K, weight_model="local", local_size=len(Xtr), random_state=0)
     local.fit(Xtr, Gtr)
     assert local.weight_model_ == "local"
     a, b = local.neighbors(Xte), fitted.neighbors(Xte)
@@ -644,7 +644,7 @@ def test_local_weight_model_refuses_a_precomputed_kernel():
     ):
         est.fit(K, graphs)
     assert not hasattr(est, "training_")  # refused before anything was stored
-    model = BarycenterGraphPredictor(kernel="precomputed", top_k=1)
+    model = BarycenterGraphPredictor(kernel="precomputed", n_neighbors=1)
     assert model.fit(K, graphs).weight_model_ == "dense"
 
 
@@ -675,7 +675,7 @@ def test_predict_weighted_is_the_step_after_neighbors():
     # predict(X) == predict_weighted(*neighbors(X)), on one process and on two workers (where the
     # padded training graphs are sent once and the tasks carry only indices and weights)
     X, graphs = load_demo()
-    model = BarycenterGraphPredictor(top_k=6, batch_size=5).fit(X[:300], graphs[:300])
+    model = BarycenterGraphPredictor(n_neighbors=6, batch_size=5).fit(X[:300], graphs[:300])
     queries = X[300:330]
     expected = _as_data(model.predict(queries))
     idx, w = model.neighbors(queries)
@@ -700,7 +700,7 @@ def test_predict_weighted_is_the_step_after_neighbors():
 )
 def test_predict_weighted_errors(indices, weights, match):
     X, graphs = load_demo()
-    model = BarycenterGraphPredictor(top_k=3).fit(X[:300], graphs[:300])
+    model = BarycenterGraphPredictor(n_neighbors=3).fit(X[:300], graphs[:300])
     with pytest.raises(ValueError, match=match):
         model.predict_weighted(indices, weights)
 
@@ -710,7 +710,7 @@ def test_score_bounds_the_edit_distance_search(monkeypatch):
     import gwpred.model.estimator as est
 
     X, graphs = load_demo()
-    model = BarycenterGraphPredictor(top_k=3).fit(X[:100], graphs[:100])
+    model = BarycenterGraphPredictor(n_neighbors=3).fit(X[:100], graphs[:100])
     seen = []
     real = est.edit_distance
 
@@ -743,3 +743,27 @@ def test_complex_inputs_are_refused():
     X, graphs = load_demo()
     with pytest.raises(ValueError, match=r"X holds complex numbers; pass real features"):
         BarycenterGraphPredictor().fit(X[:20] + 1j, graphs[:20])
+
+
+def test_old_parameter_names_still_work_with_a_future_warning(tmp_path):
+    # One vocabulary (README "Names"): top_k= of the estimator is now n_neighbors=, k= of rank
+    # and rank_candidates is now top_k=, top= of the report is now top_k=; the old names work
+    # for one release, with a FutureWarning, and give the same results as the new ones.
+    from gwpred import load_model, save_model
+    from gwpred.report import build_report
+
+    X, graphs = load_demo()
+    new = BarycenterGraphPredictor(n_neighbors=3, random_state=0).fit(X[:80], graphs[:80])
+    with pytest.warns(FutureWarning, match=r"top_k= is now called n_neighbors="):
+        old = BarycenterGraphPredictor(top_k=3, random_state=0).fit(X[:80], graphs[:80])
+    with pytest.warns(FutureWarning):
+        assert [nx.weisfeiler_lehman_graph_hash(g, node_attr="label") for g in old.predict(X[80:84])] == [
+            nx.weisfeiler_lehman_graph_hash(g, node_attr="label") for g in new.predict(X[80:84])]
+    save_model(old, tmp_path / "m.npz")  # stored under the new name, as the value it stood for
+    assert load_model(tmp_path / "m.npz").get_params()["n_neighbors"] == 3
+    with pytest.raises(TypeError, match=r"top_k= and n_neighbors= are the same option"):
+        BarycenterGraphPredictor(top_k=3, n_neighbors=4).fit(X[:80], graphs[:80])
+    with pytest.warns(FutureWarning, match=r"k= is now called top_k="):
+        assert new.rank(X[80:82], graphs[:10], k=2) == new.rank(X[80:82], graphs[:10], top_k=2)
+    with pytest.warns(FutureWarning, match=r"top= is now called top_k="):
+        build_report(graphs[:2], ranked=[graphs[:3], None], top=1, drawings=0, molecules=False)

@@ -54,27 +54,27 @@ def fit_variant(variant: str, demo) -> tuple[BarycenterGraphPredictor, np.ndarra
     """A fitted model and the queries to give it."""
     Xtr, Gtr, Xte = demo
     if variant == "rbf":
-        return BarycenterGraphPredictor(top_k=3, random_state=0).fit(Xtr, Gtr), Xte
+        return BarycenterGraphPredictor(n_neighbors=3, random_state=0).fit(Xtr, Gtr), Xte
     if variant == "laplacian-knn":
-        return BarycenterGraphPredictor(kernel="laplacian", weighting="knn", top_k=3).fit(Xtr, Gtr), Xte
+        return BarycenterGraphPredictor(kernel="laplacian", weighting="knn", n_neighbors=3).fit(Xtr, Gtr), Xte
     if variant == "fixed-gamma-decoded":
-        model = BarycenterGraphPredictor(gamma=1.5, top_k=4, alpha=0.5, decoding="free", edges="threshold")
+        model = BarycenterGraphPredictor(gamma=1.5, n_neighbors=4, alpha=0.5, decoding="free", edges="threshold")
         return model.fit(Xtr, Gtr), Xte
     if variant == "precomputed":
         K = kernel_matrix(Xtr, Xtr, "rbf", 2.0)
-        model = BarycenterGraphPredictor(kernel="precomputed", top_k=3).fit(K, Gtr)
+        model = BarycenterGraphPredictor(kernel="precomputed", n_neighbors=3).fit(K, Gtr)
         return model, kernel_matrix(Xte, Xtr, "rbf", 2.0)
     if variant == "local":
-        model = BarycenterGraphPredictor(top_k=3, weight_model="local", local_size=20, random_state=0)
+        model = BarycenterGraphPredictor(n_neighbors=3, weight_model="local", local_size=20, random_state=0)
         return model.fit(Xtr, Gtr), Xte
     if variant == "edge_label=None":
-        return BarycenterGraphPredictor(top_k=3, edge_label=None).fit(Xtr, Gtr), Xte
+        return BarycenterGraphPredictor(n_neighbors=3, edge_label=None).fit(Xtr, Gtr), Xte
     if variant == "int-node-labels":
         graphs = [g.copy() for g in Gtr]
         for g in graphs:
             for v in g:
                 g.nodes[v]["label"] = ATOMIC_NUMBER[g.nodes[v]["label"]]
-        return BarycenterGraphPredictor(top_k=3).fit(Xtr, graphs), Xte
+        return BarycenterGraphPredictor(n_neighbors=3).fit(Xtr, graphs), Xte
     if variant == "str-node-ids-reversed":
         # node order of the stored graphs must not depend on the node ids
         graphs = []
@@ -84,7 +84,7 @@ def fit_variant(variant: str, demo) -> tuple[BarycenterGraphPredictor, np.ndarra
                 h.add_node(f"a{v}", **g.nodes[v])
             h.add_edges_from((f"a{u}", f"a{v}", d) for u, v, d in g.edges(data=True))
             graphs.append(h)
-        return BarycenterGraphPredictor(top_k=3, node_label="label").fit(Xtr, graphs), Xte
+        return BarycenterGraphPredictor(n_neighbors=3, node_label="label").fit(Xtr, graphs), Xte
     raise AssertionError(variant)
 
 
@@ -104,7 +104,7 @@ VARIANTS = [
 def small_model_file(tmp_path_factory, demo):
     """A small saved model, its predictions and queries (for the corruption tests)."""
     Xtr, Gtr, Xte = demo
-    model = BarycenterGraphPredictor(top_k=2).fit(Xtr[:30], Gtr[:30])
+    model = BarycenterGraphPredictor(n_neighbors=2).fit(Xtr[:30], Gtr[:30])
     path = tmp_path_factory.mktemp("model") / "model.npz"
     save_model(model, path)
     return path, node_link(model.predict(Xte[:3])), Xte[:3]
@@ -189,7 +189,7 @@ def test_model_file_is_plain_npz_and_deterministic(tmp_path, demo):
         np.testing.assert_array_equal(npz["inputs"], demo[0])
     manifest = read_manifest(a)
     assert manifest["format"] == ARCHIVE_FORMAT and manifest["format_version"] == ARCHIVE_VERSION
-    assert manifest["params"]["top_k"] == 3
+    assert manifest["params"]["n_neighbors"] == 3
 
 
 def test_loaded_model_can_be_cloned_and_refit(tmp_path, demo):
@@ -203,13 +203,13 @@ def test_loaded_model_can_be_cloned_and_refit(tmp_path, demo):
 def test_numpy_scalars_can_be_saved(tmp_path, demo, where):
     Xtr, Gtr, Xte = demo
     if where == "param":
-        model = BarycenterGraphPredictor(top_k=np.int64(2)).fit(Xtr[:30], Gtr[:30])
+        model = BarycenterGraphPredictor(n_neighbors=np.int64(2)).fit(Xtr[:30], Gtr[:30])
     else:
         graphs = [g.copy() for g in Gtr[:30]]
         for g in graphs:
             for v in g:
                 g.nodes[v]["label"] = np.int64(ATOMIC_NUMBER[g.nodes[v]["label"]])
-        model = BarycenterGraphPredictor(top_k=2).fit(Xtr[:30], graphs)
+        model = BarycenterGraphPredictor(n_neighbors=2).fit(Xtr[:30], graphs)
     save_model(model, tmp_path / "m.npz")
     assert node_link(load_model(tmp_path / "m.npz").predict(Xte)) == node_link(model.predict(Xte))
 
@@ -413,12 +413,12 @@ def test_valence_table_round_trips_and_non_text_keys_are_refused(tmp_path):
     g = nx.path_graph(3)
     nx.set_node_attributes(g, "R", "label")
     X = np.arange(3.0).reshape(-1, 1)
-    model = BarycenterGraphPredictor(top_k=1, valence={"R": 2}, edge_label=None).fit(X, [g, g, g])
+    model = BarycenterGraphPredictor(n_neighbors=1, valence={"R": 2}, edge_label=None).fit(X, [g, g, g])
     save_model(model, tmp_path / "m.npz")
     assert load_model(tmp_path / "m.npz").get_params()["valence"] == {"R": 2}
     h = nx.path_graph(3)
     nx.set_node_attributes(h, 6, "label")
-    model = BarycenterGraphPredictor(top_k=1, valence={6: 2}, edge_label=None).fit(X, [h, h, h])
+    model = BarycenterGraphPredictor(n_neighbors=1, valence={6: 2}, edge_label=None).fit(X, [h, h, h])
     with pytest.raises(ValueError, match="non-text labels cannot be stored"):
         save_model(model, tmp_path / "n.npz")
 

@@ -164,8 +164,9 @@ def feature_matrices() -> st.SearchStrategy[np.ndarray]:
     )
 
 
-#: sample ids of feature files: Latin-1 encodable, with delimiters, quotes and line breaks
-sample_ids = st.text(alphabet="ab é,\t\"\n;", max_size=4)
+#: sample ids of feature files: Latin-1 encodable, with delimiters, quotes and line breaks;
+#: never blank (write_features refuses an id that would read back empty)
+sample_ids = st.text(alphabet="ab é,\t\"\n;", max_size=4).filter(lambda s: s.strip() != "")
 # st.text() leaves out surrogates, so every text encodes as UTF-8
 random_text = st.lists(st.text(max_size=3) | st.sampled_from(FORMAT_CHARACTERS), max_size=60).map("".join)
 random_bytes = st.binary(max_size=200) | st.binary(max_size=120).map(lambda b: b"\x93NUMPY\x01\x00" + b)
@@ -295,7 +296,8 @@ def reference_table(raw: bytes, delimiter: str) -> tuple[np.ndarray, list[str] |
     Rules (read_features docstring): blank lines skipped, cells stripped, the first row is
     a header when a cell of it is not a number, a header starting with ``id`` marks an id
     column, every row as wide as the first, at least one data row and one feature column,
-    no NaN or infinity.
+    no NaN or infinity, no empty id, and no one-column file whose header holds another
+    separator (``;``, ``|``, tab or comma).
     """
     try:
         text = raw.decode("utf-8")
@@ -313,11 +315,16 @@ def reference_table(raw: bytes, delimiter: str) -> tuple[np.ndarray, list[str] |
             return None
 
     header = any(number(cell) is None for cell in rows[0])
+    other = {",", "\t", ";", "|"} - {delimiter}
+    if header and len(rows[0]) == 1 and any(d in rows[0][0] for d in other):
+        return None  # one column whose header holds another separator: refused with a separator hint
     has_ids = header and rows[0][0].lower() == "id"
     data = rows[1:] if header else rows
     width = len(rows[0])
     if width - has_ids == 0 or not data or any(len(row) != width for row in data):
         return None
+    if has_ids and any(row[0] == "" for row in data):
+        return None  # an empty id identifies nothing: refused, naming the line
     values = [[number(cell) for cell in row[has_ids:]] for row in data]
     if any(v is None for row in values for v in row):
         return None

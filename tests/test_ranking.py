@@ -67,7 +67,7 @@ def demo():
 @pytest.fixture(scope="module")
 def model(demo):
     X, graphs, _ = demo
-    return BarycenterGraphPredictor(top_k=3, random_state=0).fit(X[:N_TRAIN], graphs[:N_TRAIN])
+    return BarycenterGraphPredictor(n_neighbors=3, random_state=0).fit(X[:N_TRAIN], graphs[:N_TRAIN])
 
 
 @pytest.fixture(scope="module")
@@ -120,7 +120,7 @@ def _wl_kernel(a: Counter, b: Counter) -> float:
 
 def test_kernel_scorer_matches_networkx_wl_pair_by_pair(demo, model, cands):
     X, graphs, _ = demo
-    ranked = model.rank(X[QUERIES], cands, k=len(cands), scorer="kernel")
+    ranked = model.rank(X[QUERIES], cands, top_k=len(cands), scorer="kernel")
     softs = model.predict_barycenters(X[QUERIES])  # public neighbours and weights
     cand_counts = [_wl_counts(c) for c in cands]
     for row, soft in zip(ranked, softs):
@@ -144,7 +144,7 @@ def test_fingerprint_kernel_matches_rdkit_tanimoto(demo, model, cands):
     def fp(i: int):
         return gen.GetFingerprint(Chem.MolFromSmiles(smiles[i]))
 
-    ranked = model.rank(X[QUERIES], cands, k=len(cands), output_kernel="fingerprint")
+    ranked = model.rank(X[QUERIES], cands, top_k=len(cands), output_kernel="fingerprint")
     softs = model.predict_barycenters(X[QUERIES])
     cand_fps = [fp(i) for i in CANDIDATES]
     for row, soft in zip(ranked, softs):
@@ -254,7 +254,7 @@ def test_scores_do_not_change_when_candidate_nodes_are_renumbered(demo, model, c
         assert nx.is_isomorphic(g, h, **SAME)  # networkx: same labeled graph
         assert list(g.nodes) != list(h.nodes)
     pool = base + shuffled
-    ranked = model.rank(X[QUERIES], pool, k=len(pool), scorer=scorer, output_kernel=output_kernel)
+    ranked = model.rank(X[QUERIES], pool, top_k=len(pool), scorer=scorer, output_kernel=output_kernel)
     for row in ranked:
         got = as_dict(row)
         for j in range(len(base)):
@@ -288,8 +288,8 @@ def test_ties_are_broken_by_candidate_index_and_runs_repeat(demo, model, cands):
     X = demo[0]
     a, b = cands[0], cands[1]
     pool = [b, a, b, a, a]  # copies score alike
-    first = model.rank(X[QUERIES], pool, k=5)
-    assert first == model.rank(X[QUERIES], pool, k=5)
+    first = model.rank(X[QUERIES], pool, top_k=5)
+    assert first == model.rank(X[QUERIES], pool, top_k=5)
     for row in first:
         scores = as_dict(row)
         assert scores[1] == scores[3] == scores[4] and scores[0] == scores[2]
@@ -301,7 +301,7 @@ def test_ties_are_broken_by_candidate_index_and_runs_repeat(demo, model, cands):
 def test_lower_is_better_for_fgw_scorers(demo, model, cands):
     X = demo[0]
     for scorer in ("fgw", "objective"):
-        row = model.rank(X[QUERIES][:1], cands[:10], k=10, scorer=scorer)[0]
+        row = model.rank(X[QUERIES][:1], cands[:10], top_k=10, scorer=scorer)[0]
         scores = [s for _, s in row]
         assert scores == sorted(scores)
         assert all(s >= 0 for s in scores)
@@ -312,9 +312,9 @@ def test_lower_is_better_for_fgw_scorers(demo, model, cands):
 # --------------------------------------------------------------------------
 def test_per_input_lists_report_positions_in_each_list(demo, model, cands):
     X = demo[0]
-    shared = model.rank(X[QUERIES], cands[:10], k=10)
+    shared = model.rank(X[QUERIES], cands[:10], top_k=10)
     lists = [cands[:10], cands[:10][::-1], cands[5:10]]
-    ranked = model.rank(X[QUERIES], lists, k=10)
+    ranked = model.rank(X[QUERIES], lists, top_k=10)
     assert ranked[0] == shared[0]
     flipped = {9 - j: s for j, s in shared[1]}
     assert as_dict(ranked[1]) == pytest.approx(flipped)
@@ -328,19 +328,19 @@ def test_formula_size_and_index_filters(demo, model, cands):
     target = heavy[0]
     formula = "".join(f"{el}{n}" for el, n in sorted(target.items()))
     n0 = cands[0].number_of_nodes()
-    ranked = model.rank(X[QUERIES], cands, k=100, filter=[formula, n0, [3, 1, 3]])
+    ranked = model.rank(X[QUERIES], cands, top_k=100, filter=[formula, n0, [3, 1, 3]])
     assert sorted(j for j, _ in ranked[0]) == [j for j, h in enumerate(heavy) if h == target]
     assert sorted(j for j, _ in ranked[1]) == [j for j, g in enumerate(cands) if len(g) == n0]
     assert sorted(j for j, _ in ranked[2]) == [1, 3]
     # hydrogens are not compared: the same heavy atoms with any hydrogen count
-    with_h = model.rank(X[QUERIES][:1], cands, k=100, filter=[formula + "H99"])
+    with_h = model.rank(X[QUERIES][:1], cands, top_k=100, filter=[formula + "H99"])
     assert with_h[0] == ranked[0]
     # None and "" leave a row unfiltered
-    assert len(model.rank(X[QUERIES][:2], cands, k=100, filter=[None, ""])[1]) == len(cands)
+    assert len(model.rank(X[QUERIES][:2], cands, top_k=100, filter=[None, ""])[1]) == len(cands)
 
 
 def test_k_longer_than_the_set_returns_all(demo, model, cands):
-    ranked = model.rank(demo[0][QUERIES], cands[:4], k=50)
+    ranked = model.rank(demo[0][QUERIES], cands[:4], top_k=50)
     assert all(len(row) == 4 for row in ranked)
 
 
@@ -358,8 +358,8 @@ def test_library_encodes_each_candidate_once(demo, model, cands, monkeypatch):
     library = CandidateLibrary(cands[:8])
     X = demo[0][QUERIES]
     for _ in range(2):
-        model.rank(X, library, k=3)
-        model.rank(X, library, k=3, scorer="fgw")
+        model.rank(X, library, top_k=3)
+        model.rank(X, library, top_k=3, scorer="fgw")
     assert calls and max(calls.values()) == 2  # once for WL, once for FGW arrays
     prepare_candidates(model, library, scorer="objective")
     assert max(calls.values()) == 2
@@ -389,7 +389,7 @@ def test_unseen_labels_are_ranked_and_never_match(demo, model, cands):
     softs = model.predict_barycenters(X)
     graphs = demo[1]
     for scorer in ("kernel", "fgw", "objective"):
-        got = [as_dict(r) for r in model.rank(X, pool, k=3, scorer=scorer)]
+        got = [as_dict(r) for r in model.rank(X, pool, top_k=3, scorer=scorer)]
         for s, soft in zip(got, softs):
             if scorer == "kernel":
                 # networkx's WL treats "S" as one more label, which no training graph has
@@ -415,7 +415,7 @@ def test_unseen_label_is_one_more_category_pot(demo, model):
     Fb = np.concatenate([soft.node_scores[:, :k], np.zeros((len(soft.node_scores), 1))], 1)
     n = len(Fb)
     known = model.labels_.node_labels_[-1]
-    got = as_dict(model.rank(X, [chain(1, "S"), chain(1, known)], k=2, scorer="fgw")[0])
+    got = as_dict(model.rank(X, [chain(1, "S"), chain(1, known)], top_k=2, scorer="fgw")[0])
     assert got[0] >= got[1]
     for j, column in ((0, k), (1, k - 1)):
         f = np.zeros((1, k + 1))
@@ -454,8 +454,8 @@ def test_empty_candidate_sets_give_a_clear_message(demo, model, cands):
             r"scorer must be one of \['kernel', 'fgw', 'objective'\]; got 'best'",
         ),
         ({"output_kernel": "rbf"}, ValueError, r"output_kernel must be one of \['wl', 'fingerprint'\]"),
-        ({"k": 0}, ValueError, r"k must be an integer >= 1; got 0"),
-        ({"k": 2.5}, ValueError, r"k must be an integer >= 1; got 2.5"),
+        ({"top_k": 0}, ValueError, r"top_k must be an integer >= 1; got 0"),
+        ({"top_k": 2.5}, ValueError, r"top_k must be an integer >= 1; got 2.5"),
         ({"filter": "C4O2"}, TypeError, r"filter must be a list with one entry per input row"),
         ({"filter": [None]}, ValueError, r"filter has 1 entries but X has 3 rows"),
         (
@@ -516,7 +516,7 @@ def _read_ranked(path):
 
 def test_write_ranked_per_input_lists(tmp_path, demo, model, cands):
     lists = [cands[:3], cands[3:8], cands[8:9]]
-    ranked = model.rank(demo[0][QUERIES], lists, k=2)
+    ranked = model.rank(demo[0][QUERIES], lists, top_k=2)
     write_ranked(tmp_path / "r.jsonl", ranked, lists)
     rows = _read_ranked(tmp_path / "r.jsonl")
     assert [r["row"] for r in rows] == [0, 1, 2]
@@ -554,16 +554,17 @@ def test_cli_rank_writes_the_documented_json_lines(capsys, cli_files, demo, mode
             str(d / "cands.jsonl"),
             "--out",
             str(d / "ranked.jsonl"),
-            "--k",
+            "--top-k",
             "4",
             "-q",
         ]
     )
     out, err = capsys.readouterr()
     assert code == 0, err
-    assert "top 4 per input written to" in out and "hypotheses" in err  # the caution on stderr
+    assert "ranked 30 candidates for 3 inputs" in out and "the best 4 per input written to" in out
+    assert "hypotheses" in err  # the caution on stderr
     rows = _read_ranked(d / "ranked.jsonl")
-    expected = model.rank(demo[0][QUERIES], cands, k=4)
+    expected = model.rank(demo[0][QUERIES], cands, top_k=4)
     assert [[(it["candidate"], it["score"]) for it in r["ranked"]] for r in rows] == [
         [(j, pytest.approx(s, abs=1e-12)) for j, s in row] for row in expected
     ]
@@ -595,17 +596,20 @@ def test_cli_rank_with_formulas_and_scorer(capsys, cli_files, demo, cands):
             "-q",
         ]
     )
-    assert code == 0, capsys.readouterr().err
+    out, err = capsys.readouterr()
+    assert code == 0, err
     rows = _read_ranked(d / "f.jsonl")
     same = {j for j, g in enumerate(cands) if Counter(dd["label"] for _, dd in g.nodes(data=True)) == heavy}
     assert {it["candidate"] for it in rows[0]["ranked"]} == same
     assert len(rows[1]["ranked"]) == 10
+    # the message counts what each row really ranked after the formula filter (row 1 has none)
+    assert f"ranked {len(same)} to {len(cands)} candidates per input (of {len(cands)}; formula filter)" in out
 
 
 @pytest.mark.parametrize(
     "extra, message",
     [
-        (["--k", "0"], "--k must be at least 1; got 0"),
+        (["--top-k", "0"], "--top-k must be at least 1; got 0"),
         (["--out", "ranked.csv"], "--out must name a JSON Lines file ending in .jsonl"),
         (["--formulas", "one.txt"], "holds 1 formulas but"),
     ],
@@ -646,12 +650,12 @@ def test_cli_compare_small_run(capsys, tmp_path):
             "4",
             "--fgw-rows",
             "2",
-            "--scorers",
+            "--scorer",
             "kernel",
             "fgw",
             "--out",
             str(out),
-            "--top-k",
+            "--n-neighbors",
             "3",
             "-q",
         ]
@@ -683,4 +687,4 @@ def test_fgw_scorer_on_two_workers_equals_one(demo, model, cands):
     # reference: joblib/loky); the ranked lists must not depend on where they ran
     X = demo[0]
     two = clone(model).set_params(n_jobs=2).fit(X[:N_TRAIN], demo[1][:N_TRAIN])
-    assert two.rank(X[QUERIES], cands, k=5, scorer="fgw") == model.rank(X[QUERIES], cands, k=5, scorer="fgw")
+    assert two.rank(X[QUERIES], cands, top_k=5, scorer="fgw") == model.rank(X[QUERIES], cands, top_k=5, scorer="fgw")

@@ -301,12 +301,12 @@ def test_valence_needs_bond_orders_and_elements():
     nx.set_node_attributes(g, "C", "label")
     nx.set_edge_attributes(g, "aromatic", "label")
     X = np.arange(3.0).reshape(-1, 1)
-    model = BarycenterGraphPredictor(valence=True, top_k=1).fit(X, [g, g, g])
+    model = BarycenterGraphPredictor(valence=True, n_neighbors=1).fit(X, [g, g, g])
     with pytest.raises(ValueError, match="needs bond orders 1, 2 or 3"):
         model.predict(X[:1])
     h = nx.path_graph(3)
     nx.set_node_attributes(h, "atom", "label")
-    model = BarycenterGraphPredictor(valence=True, top_k=1, edge_label=None).fit(
+    model = BarycenterGraphPredictor(valence=True, n_neighbors=1, edge_label=None).fit(
         X, [h, h, h]
     )
     with pytest.raises(ValueError, match="not an element symbol"):
@@ -338,7 +338,7 @@ def test_time_limit_is_not_reported_as_an_impossible_formula():
 def test_formulas_far_larger_than_training_are_refused():
     # the demo's molecules have at most 9 heavy atoms (QM9); C60H122 has 60
     X, graphs = load_demo()
-    model = BarycenterGraphPredictor(top_k=5).fit(X[:200], graphs[:200])
+    model = BarycenterGraphPredictor(n_neighbors=5).fit(X[:200], graphs[:200])
     limit = 4 * max(g.number_of_nodes() for g in graphs[:200])
     with pytest.raises(ValueError, match=rf"formulas\[1\] \(C60H122\) has 60 heavy atoms, more than {limit} \(four "
                                          r"times the largest training graph\)"):
@@ -352,16 +352,16 @@ def test_valence_auto_is_on_for_molecules_and_off_for_other_graphs():
     path = nx.path_graph(3)
     nx.set_node_attributes(path, "C", "label")
     nx.set_edge_attributes(path, 1, "label")
-    assert BarycenterGraphPredictor(top_k=1).fit(X, [path] * 3).valence_ is True
+    assert BarycenterGraphPredictor(n_neighbors=1).fit(X, [path] * 3).valence_ is True
     aromatic = path.copy()
     nx.set_edge_attributes(aromatic, "aromatic", "label")
-    model = BarycenterGraphPredictor(top_k=1).fit(X, [aromatic] * 3)
+    model = BarycenterGraphPredictor(n_neighbors=1).fit(X, [aromatic] * 3)
     assert model.valence_ is False
     assert len(model.predict(X[:1])[0]) == 3  # decodes without valence rules, no error
     atoms = nx.path_graph(3)
     nx.set_node_attributes(atoms, "atom", "label")
-    assert BarycenterGraphPredictor(top_k=1, edge_label=None).fit(X, [atoms] * 3).valence_ is False
-    assert BarycenterGraphPredictor(top_k=1, valence=False).fit(X, [path] * 3).valence_ is False
+    assert BarycenterGraphPredictor(n_neighbors=1, edge_label=None).fit(X, [atoms] * 3).valence_ is False
+    assert BarycenterGraphPredictor(n_neighbors=1, valence=False).fit(X, [path] * 3).valence_ is False
     # the bundled demo molecules (QM9 heavy atoms): on, and every default prediction RDKit-valid
     X, graphs = load_demo()
     model = BarycenterGraphPredictor().fit(X[:500], graphs[:500])

@@ -431,7 +431,8 @@ def load_demo(
     graphs : list of networkx.Graph
         Heavy-atom graphs, nodes ``0 .. n - 1`` with ``label`` the element
         symbol (str), edges with ``label`` the bond order 1, 2 or 3 (int) of
-        RDKit's Kekulé form.
+        RDKit's Kekulé form; ``graph.graph["id"]`` is QM9's name of the
+        molecule (``dsgdb9nsd_<index>``, its file name in QM9).
     smiles : list of str
         Only if ``return_smiles`` is True: the SMILES of each molecule as
         given in QM9.
@@ -488,6 +489,8 @@ def load_demo(
         raise ValueError(
             f"demo data file {where} holds inconsistent graph arrays ({exc}); {_REGENERATE}"
         ) from None
+    for g, index in zip(graphs, arrays["qm9_index"].tolist()):
+        g.graph["id"] = f"dsgdb9nsd_{index:06d}"  # QM9's own name of the molecule (its .xyz file)
     offsets = arrays["freq_offsets"].astype(np.int64)
     freqs = arrays["frequencies"].astype(np.float64)
     lines = [freqs[offsets[i] : offsets[i + 1]] for i in range(offsets.size - 1)]

@@ -597,8 +597,9 @@ def _select_qm9(
         node_charge=arrays["node_charge"][node_keep],
     )
     smiles = [str(s) for s in arrays["smiles"][keep].tolist()]
-    for g, s in zip(graphs, smiles):
+    for g, s, index in zip(graphs, smiles, arrays["qm9_index"][keep].tolist()):
         g.graph["smiles"] = s  # as gwpred.chem.graph_from_smiles sets it
+        g.graph["id"] = f"dsgdb9nsd_{index:06d}"  # QM9's own name of the molecule (its .xyz file)
     freqs = arrays["frequencies"][np.repeat(keep, n_freqs)]
     freq_lists = np.split(freqs, np.cumsum(n_freqs[keep])[:-1]) if keep.any() else []
     memo: dict[tuple[int, ...], str] = {}

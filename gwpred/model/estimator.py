@@ -19,7 +19,7 @@ from sklearn.base import BaseEstimator
 from sklearn.utils import check_random_state
 from sklearn.utils.validation import check_is_fitted
 
-from .._utils import Interval, Options, Rule, Types, check_inputs, validate_params
+from .._utils import Interval, Options, Rule, Types, check_inputs, renamed_keyword, validate_params
 from ..codec import LabelSpace, TrainingSet
 from ..ged import edit_distance
 from ..parallel import N_JOBS_RULE, batch_slices, parallel_map
@@ -59,7 +59,7 @@ class BarycenterGraphPredictor(BaseEstimator):
 
     For an input ``x`` the training graphs get kernel ridge weights
     :math:`\alpha(x) = (K + n\lambda I)^{-1} k(x)` (Brogat-Motte et al., ICML
-    2022); the ``top_k`` largest, clipped at zero and normalised, weight an FGW
+    2022); the ``n_neighbors`` largest, clipped at zero and normalised, weight an FGW
     barycenter (Vayer et al. 2019) that is decoded into a discrete graph.
 
     Parameters
@@ -72,10 +72,10 @@ class BarycenterGraphPredictor(BaseEstimator):
     ridge : float, default=1e-3
         Kernel ridge regularisation :math:`\lambda`.
     weighting : {"ridge", "knn"}, default="ridge"
-        ``ridge``: kernel ridge coefficients; ``knn``: the ``top_k`` most
+        ``ridge``: kernel ridge coefficients; ``knn``: the ``n_neighbors`` most
         similar training inputs weighted by kernel value.
-    top_k : int, default=10
-        Training graphs kept per prediction.
+    n_neighbors : int, default=10
+        Training graphs kept per prediction (the largest weights).
     alpha : float, default=0.9
         FGW trade-off between node features (0) and structure (1).
     n_nodes : "vote" or int, default="vote"
@@ -152,6 +152,9 @@ class BarycenterGraphPredictor(BaseEstimator):
         paid once per batch.  A batch is also the unit of work of ``n_jobs``
         workers.  ``1`` solves one query at a time; the predictions are the
         same (``benchmarks/bench_batch.py``).
+    top_k : int, optional
+        Old name of ``n_neighbors``; works for one more release, with a
+        FutureWarning.
 
     Attributes
     ----------
@@ -170,6 +173,10 @@ class BarycenterGraphPredictor(BaseEstimator):
         Largest degree seen per node label.
     connected_ : bool
         Whether every training graph is connected.
+    training_ids_ : list of str or None
+        The training graphs' ids (``graph.graph["id"]``) when every one had an id.
+    valence_ : bool
+        Whether predictions obey valence rules (``valence`` resolved).
 
     Examples
     --------
@@ -188,7 +195,9 @@ class BarycenterGraphPredictor(BaseEstimator):
         "gamma": Rule(None, Interval(np.finfo(float).tiny), what="a positive number or None"),
         "ridge": _NON_NEGATIVE,
         "weighting": Rule(Options(("ridge", "knn"))),
-        "top_k": _POSITIVE_INT,
+        "n_neighbors": _POSITIVE_INT,
+        "top_k": Rule(Options(("deprecated",)), Interval(1, np.inf, integer=True),
+                      what="a positive integer (it is now called n_neighbors)"),
         "weight_model": Rule(Options(WEIGHT_MODELS)),
         "local_size": _POSITIVE_INT,
         "batch_size": _POSITIVE_INT,
@@ -214,7 +223,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         gamma: float | None = None,
         ridge: float = 1e-3,
         weighting: str = "ridge",
-        top_k: int = 10,
+        n_neighbors: int = 10,
         alpha: float = 0.9,
         n_nodes: str | int = "vote",
         max_outer: int = 5,
@@ -234,12 +243,13 @@ class BarycenterGraphPredictor(BaseEstimator):
         weight_model: str = "auto",
         local_size: int = 500,
         batch_size: int = 256,
+        top_k: int | str = "deprecated",
     ) -> None:
         self.kernel = kernel
         self.gamma = gamma
         self.ridge = ridge
         self.weighting = weighting
-        self.top_k = top_k
+        self.n_neighbors = n_neighbors
         self.alpha = alpha
         self.n_nodes = n_nodes
         self.max_outer = max_outer
@@ -259,9 +269,10 @@ class BarycenterGraphPredictor(BaseEstimator):
         self.weight_model = weight_model
         self.local_size = local_size
         self.batch_size = batch_size
+        self.top_k = top_k
 
     # ----------------------------------------------------------------- fit
-    def fit(self, X: ArrayLike, graphs: list[nx.Graph]) -> BarycenterGraphPredictor:
+    def fit(self, X: ArrayLike, y: list[nx.Graph]) -> BarycenterGraphPredictor:
         """Learn label categories, encode the training graphs and fit the weights.
 
         Parameters
@@ -270,8 +281,14 @@ class BarycenterGraphPredictor(BaseEstimator):
             Training inputs.  Bool and integer arrays are not copied to
             float64: ``uint8`` 0/1 fingerprints with ``weight_model="local"``
             and ``kernel="tanimoto"`` are held as sparse rows.
-        graphs : list of networkx.Graph of length n_samples
+        y : list of networkx.Graph of length n_samples
             Training graphs (undirected, simple, at least one node, every node labeled).
+            Named ``y`` as scikit-learn names the target: pipelines and metadata
+            routing read the second argument of ``fit`` and ``score`` by that name.
+            When every graph carries an id (``graph.graph["id"]``, as the graph
+            files and ``gwpred fit`` set it), the ids are kept as
+            ``training_ids_`` (saved with the model; reports name the training
+            graphs a prediction leaned on by them).
 
         Returns
         -------
@@ -291,17 +308,28 @@ class BarycenterGraphPredictor(BaseEstimator):
         """
         validate_params(self.get_params(deep=False), self._parameter_rules)
         X = check_inputs(X, compact=True)  # bool/integer inputs (e.g. uint8 fingerprints) stay compact
-        graphs = list(graphs) if not isinstance(graphs, nx.Graph) else [graphs]
+        if y is None:
+            raise ValueError(
+                f"{type(self).__name__} requires y to be passed, but the target y is None; "
+                "pass one networkx graph per input row."
+            )
+        graphs = list(y) if not isinstance(y, nx.Graph) else [y]
         if len(graphs) != X.shape[0]:
             raise ValueError(
                 f"X has {X.shape[0]} rows but {len(graphs)} graphs were given; "
                 "pass one graph per input row."
             )
         labels = LabelSpace(self.node_label, self.edge_label, handle_unknown=self.handle_unknown).fit(graphs)
-        return self.fit_encoded(X, TrainingSet.encode(graphs, labels))
+        ids = [g.graph.get("id") if isinstance(g, nx.Graph) else None for g in graphs]
+        training_ids = [str(i) for i in ids] if all(i is not None for i in ids) else None
+        return self.fit_encoded(X, TrainingSet.encode(graphs, labels), training_ids=training_ids)
 
     def fit_encoded(
-        self, X: ArrayLike, training: TrainingSet, gamma: float | None = None
+        self,
+        X: ArrayLike,
+        training: TrainingSet,
+        gamma: float | None = None,
+        training_ids: list[str] | None = None,
     ) -> BarycenterGraphPredictor:
         """Fit on training graphs already encoded (model files restore a model through it).
 
@@ -317,6 +345,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         gamma : float or None, default=None
             Bandwidth to use instead of ``self.gamma`` (a stored, already
             resolved median heuristic); the parameter itself is unchanged.
+        training_ids : list of str, default=None
+            An id per training graph, kept as ``training_ids_``.
 
         Returns
         -------
@@ -324,14 +354,20 @@ class BarycenterGraphPredictor(BaseEstimator):
             ``self``.
         """
         validate_params(self.get_params(deep=False), self._parameter_rules)
+        self._n_neighbors()  # the old name top_k: warn now, at fit
         X = check_inputs(X, compact=True)  # bool/integer inputs (e.g. uint8 fingerprints) stay compact
         if len(training) != X.shape[0]:
             raise ValueError(
                 f"X has {X.shape[0]} rows but the training set holds {len(training)} graphs; "
                 "pass one graph per input row."
             )
+        if training_ids is not None and len(training_ids) != len(training):
+            raise ValueError(
+                f"training_ids has {len(training_ids)} entries but there are {len(training)} training graphs"
+            )
         weight_model = self._resolve_weight_model(X.shape[0])
         self.training_ = training
+        self.training_ids_ = None if training_ids is None else [str(i) for i in training_ids]
         self.labels_ = training.labels
         self.sizes_ = training.sizes
         self.n_edges_ = training.n_edges
@@ -350,6 +386,21 @@ class BarycenterGraphPredictor(BaseEstimator):
         self.n_train_ = X.shape[0]
         self.n_features_in_ = X.shape[1]
         return self
+
+    def __sklearn_tags__(self) -> Any:
+        """scikit-learn >= 1.6 tags: y is required; with ``kernel="precomputed"`` X is pairwise.
+
+        ``pairwise`` makes scikit-learn's cross-validation split a precomputed
+        kernel's columns as well as its rows (``K[test][:, train]``).
+        """
+        tags = super().__sklearn_tags__()
+        tags.target_tags.required = True
+        tags.input_tags.pairwise = self.kernel == "precomputed"
+        return tags
+
+    def _more_tags(self) -> dict[str, Any]:
+        """The same tags for scikit-learn < 1.6."""
+        return {"requires_y": True, "pairwise": self.kernel == "precomputed"}
 
     def _resolve_weight_model(self, n_train: int) -> str:
         """``weight_model`` with ``auto`` resolved for ``n_train`` training inputs."""
@@ -375,9 +426,9 @@ class BarycenterGraphPredictor(BaseEstimator):
 
         Returns
         -------
-        indices : ndarray of shape (n_queries, top_k)
+        indices : ndarray of shape (n_queries, n_neighbors)
             Training indices by decreasing weight.
-        weights : ndarray of shape (n_queries, top_k)
+        weights : ndarray of shape (n_queries, n_neighbors)
             Non-negative, each row sums to one (zeros where fewer were kept).
         """
         check_is_fitted(self, "weights_")
@@ -390,8 +441,14 @@ class BarycenterGraphPredictor(BaseEstimator):
             )
         # an input unlike every training input (all kernel values 0) is an error, not graph 0
         if self.weight_model_ == "local":  # the slow part at scale: show it
-            return self.weights_.top_weights(X, self.top_k, progress=self.progress, empty="error")
-        return self.weights_.top_weights(X, self.top_k, empty="error")
+            return self.weights_.top_weights(X, self._n_neighbors(), progress=self.progress, empty="error")
+        return self.weights_.top_weights(X, self._n_neighbors(), empty="error")
+
+    def _n_neighbors(self) -> int:
+        """``n_neighbors``, or the value given under its old name ``top_k`` (with a FutureWarning)."""
+        if isinstance(self.top_k, str):  # "deprecated": not given
+            return int(self.n_neighbors)
+        return int(renamed_keyword("top_k", "n_neighbors", self.top_k, self.n_neighbors, 10))
 
     @property
     def valence_(self) -> bool:
@@ -554,7 +611,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         w = np.where(np.abs(sums - 1.0) <= 1e-12, w, w / sums)
         return self._map_weighted(predict_batch, idx, w, formulas, decode=True)
 
-    def score(self, X: ArrayLike, graphs: list[nx.Graph]) -> float:
+    def score(self, X: ArrayLike, y: list[nx.Graph]) -> float:
         """Negative mean graph edit distance to the true graphs (higher is better).
 
         Uniform edit costs (1 per node or edge insertion, deletion or label
@@ -565,13 +622,14 @@ class BarycenterGraphPredictor(BaseEstimator):
         Parameters
         ----------
         X : array-like of shape (n_queries, n_features)
-        graphs : list of networkx.Graph of length n_queries
+        y : list of networkx.Graph of length n_queries
+            The true graphs.
 
         Returns
         -------
         float
         """
-        graphs = [graphs] if isinstance(graphs, nx.Graph) else list(graphs)
+        graphs = [y] if isinstance(y, nx.Graph) else list(y)
         n_rows = len(check_inputs(X, compact=True))
         if len(graphs) != n_rows:
             raise ValueError(f"X has {n_rows} rows but {len(graphs)} graphs were given; pass one graph per row.")
@@ -587,11 +645,12 @@ class BarycenterGraphPredictor(BaseEstimator):
         self,
         X: ArrayLike,
         candidates: Any,
-        k: int = 10,
+        top_k: int = 10,
         scorer: str = "kernel",
         filter: Any = None,
         *,
         output_kernel: str = "wl",
+        k: int | None = None,
     ) -> list[list[tuple[int, float]]]:
         """Rank given candidate graphs for each input instead of generating one.
 
@@ -606,8 +665,9 @@ class BarycenterGraphPredictor(BaseEstimator):
             One candidate set shared by all inputs (a
             :class:`~gwpred.ranking.CandidateLibrary` keeps its encodings
             between calls), or one list of graphs per input row.
-        k : int, default=10
-            Candidates returned per input.
+        top_k : int, default=10
+            Candidates returned per input (the old name ``k`` works for one
+            more release, with a FutureWarning).
         scorer : {"kernel", "fgw", "objective"}, default="kernel"
             ``kernel``: sum_i w_i(x) k(y_i, c) over the training graphs (higher
             is better); ``fgw``: FGW distance from the predicted barycenter;
@@ -622,7 +682,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         Returns
         -------
         list of list of (int, float)
-            Per input, up to ``k`` (candidate index, score) pairs, best first;
+            Per input, up to ``top_k`` (candidate index, score) pairs, best first;
             equal scores are ordered by candidate index.
 
         Raises
@@ -637,10 +697,11 @@ class BarycenterGraphPredictor(BaseEstimator):
         >>> def chain(n):
         ...     g = nx.path_graph(n); nx.set_node_attributes(g, "C", "label"); return g
         >>> model = BarycenterGraphPredictor(top_k=1).fit(np.arange(4.0).reshape(-1, 1), [chain(n + 2) for n in range(4)])
-        >>> [j for j, _ in model.rank([[1.0]], [chain(5), chain(3), chain(2)], k=2)[0]]
+        >>> [j for j, _ in model.rank([[1.0]], [chain(5), chain(3), chain(2)], top_k=2)[0]]
         [1, 0]
         """
         return rank_candidates(
-            self, X, candidates, k=k, scorer=scorer, filter=filter, output_kernel=output_kernel,
+            self, X, candidates, top_k=renamed_keyword("k", "top_k", k, top_k, 10), scorer=scorer,
+            filter=filter, output_kernel=output_kernel,
             progress=self.progress,
         )

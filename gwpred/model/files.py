@@ -24,7 +24,7 @@ __all__ = ["load_model", "save_model"]
 
 _MODEL_KIND = "BarycenterGraphPredictor"
 # parameter names of earlier releases -> today's
-_RENAMED_PARAMS = {"verbose": "progress"}
+_RENAMED_PARAMS = {"verbose": "progress", "top_k": "n_neighbors"}
 # parameters absent from earlier files -> the behaviour those files were written with
 _EARLIER_DEFAULTS = {"weight_model": "dense"}
 
@@ -37,8 +37,8 @@ def _plain(value: Any) -> Any:
 def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
     """Save a fitted :class:`~gwpred.BarycenterGraphPredictor` as a model archive.
 
-    The archive holds the constructor parameters and label categories (JSON
-    manifest), the training graphs as flat integer arrays, and the training
+    The archive holds the constructor parameters, label categories and training
+    ids (JSON manifest), the training graphs as flat integer arrays, and the training
     inputs (or the training kernel matrix with ``kernel="precomputed"``);
     kernel factorisations are recomputed on loading.  Inputs are stored as
     the weight model holds them: float64, or, for 0/1 inputs of a local
@@ -83,12 +83,16 @@ def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
             "valence tables with non-text labels cannot be stored in a model file (JSON keys are "
             "text); use text node labels, or refit after loading"
         )
+    params = {k: _plain(v) for k, v in model.get_params().items() if k != "top_k"}
+    if not isinstance(model.top_k, str):  # given under its old name: store the value it stands for
+        params["n_neighbors"] = int(model.top_k)
     manifest = {
         "kind": _MODEL_KIND,
-        "params": {k: _plain(v) for k, v in model.get_params().items()},
+        "params": params,
         "node_labels": [_plain(v) for v in labels.node_labels_],
         "edge_labels": [_plain(v) for v in labels.edge_labels_],
         "gamma": gamma if np.isfinite(gamma) else None,
+        "training_ids": getattr(model, "training_ids_", None),
     }
     save_archive(path, arrays, manifest)
 
@@ -152,7 +156,11 @@ def load_model(path: StrPath) -> BarycenterGraphPredictor:
             )
             for k in range(len(n_nodes))
         ]
-        model.fit_encoded(arrays["inputs"], TrainingSet.encode(graphs, labels), gamma=manifest["gamma"])
+        ids = manifest.get("training_ids")  # absent from files of earlier releases
+        if ids is not None and not (isinstance(ids, list) and all(isinstance(i, str) for i in ids)):
+            raise ValueError("training_ids must be a list of text ids")
+        model.fit_encoded(arrays["inputs"], TrainingSet.encode(graphs, labels), gamma=manifest["gamma"],
+                          training_ids=ids)
     except (KeyError, IndexError, TypeError, ValueError) as err:
         raise ValueError(f"{where} has inconsistent contents ({err}); it may be corrupted.") from err
     return model
