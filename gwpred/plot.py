@@ -661,7 +661,6 @@ def _draw_nodes(
         return
     index = {v: i for i, v in enumerate(nodes)}
     size = max(0.8 * st.fontsize, 5.0)
-    halo = [pe.withStroke(linewidth=2.0, foreground="white")]
     for i, v in enumerate(nodes):
         direction = _number_direction(i, xy, [index[w] for w in graph.neighbors(v)])
         # text centre: half a disc plus about half the number's width from the centre
@@ -676,8 +675,7 @@ def _draw_nodes(
             fontsize=size,
             color="#202020",
             zorder=6,
-        )
-        text.set_path_effects(halo)
+        )  # no stroke halo: a path effect would turn the text into outlines (large SVG)
         text.set_gid("gwpred-node-number")
 
 

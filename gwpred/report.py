@@ -1254,7 +1254,7 @@ _COLUMN_CSS = {
         "text-align:left;white-space:normal;min-width:10em",
         "word-break:break-all;font-family:ui-monospace,Menlo,Consolas,monospace",
     ),
-    "n": ("text-align:left;white-space:normal;min-width:10em", "overflow-wrap:anywhere"),
+    "n": ("text-align:left;white-space:normal;min-width:13em", "overflow-wrap:anywhere"),
 }
 
 
@@ -1431,8 +1431,9 @@ def _alignment_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
         node_label=opts.node_label,
         edge_label=opts.edge_label,
         edge_name=opts.edge_name,
+        numbers=True,  # the predicted nodes' numbers are the heat maps' row numbers
     )
-    caption = "A least-cost edit path from the prediction to the truth"
+    caption = "A least-cost edit path from the prediction to the truth (predicted nodes numbered as the heat-map rows)"
     if not r.exact:
         caption = f"The best edit path found (not proven optimal; lower bound {_fmt(r.lower)})"
     if item.scores is not None and abs(float(item.scores["ged"]) - r.value) > 1e-9:
