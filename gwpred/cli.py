@@ -112,13 +112,13 @@ def _edge_label(args: argparse.Namespace) -> str | None:
     return None if args.edge_label.lower() == "none" else args.edge_label
 
 
-def _add_model_options(p: argparse.ArgumentParser, old_top_k: bool = True) -> None:
+def _add_model_options(p: argparse.ArgumentParser, old_top_k: bool = True, kernel_default: str = "rbf") -> None:
     g = p.add_argument_group("model")
     if old_top_k:  # before 0.2, --top-k was the number of training graphs per prediction
         g.add_argument("--top-k", dest="n_neighbors", type=int, action=_renamed("--n-neighbors"), default=argparse.SUPPRESS,
                        help=argparse.SUPPRESS)
     g.add_argument("--kernel", default="rbf", choices=_KERNELS, metavar="KERNEL",
-                   help="input kernel: %(choices)s (default: rbf)")
+                   help=f"input kernel: %(choices)s (default: {kernel_default})")
     g.add_argument("--gamma", type=float, default=None,
                    help="rbf/laplacian bandwidth (default: median heuristic)")
     g.add_argument("--ridge", type=float, default=1e-3, help="kernel ridge regularisation (default: 1e-3)")
@@ -713,7 +713,7 @@ def build_parser() -> argparse.ArgumentParser:
                        description="Graph edit distance (uniform costs), exact match, right size, connectivity, "
                                    "node label accuracy and edge precision/recall/F1 under the GED node map.")
     p.add_argument("predicted", help="predicted graphs (.jsonl/.graphml/.smi/.sdf/.mol)")
-    p.add_argument("--truth", help="true graphs, same order (.jsonl/.graphml/.smi/.sdf/.mol)")
+    p.add_argument("--truth", metavar="FILE", help="true graphs, same order (.jsonl/.graphml/.smi/.sdf/.mol); required")
     p.add_argument("truth_old", nargs="?", metavar="TRUTH", help=argparse.SUPPRESS)  # before 0.2: positional
     _add_time_limit(p)
     p.add_argument("--summary", help="write the summary as JSON here")
@@ -766,8 +766,9 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("rank", help="rank given candidate graphs for each input with a saved model",
                        description="Score a candidate list (e.g. all known isomers of a formula) for each input "
-                                   "row and write the best k per row as JSON Lines: {\"row\": i, \"ranked\": "
-                                   "[{\"candidate\": j, \"score\": s, \"graph\": <node-link record>}, ...]}.")
+                                   "row and write the best --top-k per row as JSON Lines: {\"row\": i, \"id\": ..., "
+                                   "\"ranked\": [{\"candidate\": j, \"id\": ..., \"score\": s, \"graph\": <node-link "
+                                   "record>}, ...]} (ids when known).")
     p.add_argument("--model", required=True, help="model file written by 'gwpred fit'")
     p.add_argument("--features", required=True, help="inputs (.csv/.tsv/.npy), same columns as in fit")
     p.add_argument("--candidates", required=True,
@@ -820,7 +821,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_time_limit(p)
     p.add_argument("--n-jobs", type=int, default=1, help="worker processes for the edit distances (default: 1)")
     p.add_argument("--out", default="gwpred-compare", help="output folder (default: gwpred-compare)")
-    _add_model_options(p, old_top_k=False)
+    _add_model_options(p, old_top_k=False, kernel_default="rbf for spectra, tanimoto for fingerprints")
     p.set_defaults(kernel=None)
     common(p)
     p.set_defaults(func=cmd_compare)
