@@ -20,6 +20,7 @@ import importlib.util
 import numbers
 import os
 import secrets
+import stat
 import sys
 import warnings
 from collections.abc import Iterable, Iterator, Mapping, Sequence
@@ -353,9 +354,13 @@ def atomic_open(path: Path, binary: bool) -> Iterator[IO[Any]]:
     """Open a temporary sibling of ``path`` for writing; move it into place on success.
 
     A failure (or a killed process) leaves any existing file at ``path`` as it
-    was, and removes the temporary file.
+    was, and removes the temporary file. A symbolic link is written through
+    (its target is replaced, the link stays), and an existing file keeps its
+    permission bits.
     """
     path = Path(path)
+    if path.is_symlink():
+        path = path.resolve()  # replace what the link points to, not the link itself
     parent = path.parent
     if not parent.is_dir():
         raise FileNotFoundError(
@@ -371,6 +376,8 @@ def atomic_open(path: Path, binary: bool) -> Iterator[IO[Any]]:
             yield fh
             fh.flush()
             os.fsync(fh.fileno())
+        if path.exists():  # the new content takes the old file's permissions
+            os.chmod(tmp, stat.S_IMODE(os.stat(path).st_mode))
         os.replace(tmp, path)
     except BaseException:
         try:

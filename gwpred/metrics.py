@@ -194,7 +194,11 @@ def _score_pair(
     time_limit: float | None,
 ) -> dict:
     """All per-pair scores of :func:`summarize` (``index``: the pair's place, for messages)."""
-    r = edit_distance(gp, gt, node_label=node_label, edge_label=edge_label, time_limit=time_limit)
+    try:
+        r = edit_distance(gp, gt, node_label=node_label, edge_label=edge_label, time_limit=time_limit)
+    except (TypeError, ValueError) as err:  # say which pair: g1 is predicted[i], g2 is true[i]
+        text = str(err).replace("of g1", f"of predicted[{index}]").replace("of g2", f"of true[{index}]")
+        raise type(err)(f"pair {index}: {text}") from err
     n_pred = gp.number_of_nodes()
     item: dict[str, Any] = {
         "ged": r.value,

@@ -124,3 +124,18 @@ def test_the_scan_finds_an_unsafe_write():
     safe = ast.parse("def f(p, fig):\n    with atomic_open(p, binary=True) as fh:\n        fig.savefig(fh)\n"
                      "    buf = io.BytesIO()\n    fig.savefig(buf)\n")
     assert _unsafe_writes(safe) == []
+
+
+@pytest.mark.skipif(os.name != "posix", reason="POSIX permission bits and symbolic links")
+def test_overwriting_keeps_the_mode_and_writes_through_a_symlink(tmp_path):
+    from gwpred._utils import atomic_write_text
+
+    target = tmp_path / "summary.json"
+    target.write_text("old", encoding="utf-8")
+    os.chmod(target, 0o640)
+    atomic_write_text(target, "new")
+    assert target.read_text(encoding="utf-8") == "new" and (target.stat().st_mode & 0o777) == 0o640
+    link = tmp_path / "latest.json"
+    link.symlink_to(target)
+    atomic_write_text(link, "newer")
+    assert link.is_symlink() and target.read_text(encoding="utf-8") == "newer"

@@ -1164,7 +1164,7 @@ def test_summarize_in_parallel_without_generator_support(monkeypatch, capsys):
 def test_summarize_in_parallel_reports_worker_errors():
     g = _g()
     del g.nodes[1]["label"]
-    with pytest.raises(ValueError, match=r"node 1 of g1 has no 'label' attribute"):
+    with pytest.raises(ValueError, match=r"pair 1: node 1 of predicted\[1\] has no 'label' attribute"):
         summarize([_g(), g], [_g(), _g()], n_jobs=2)
 
 
