@@ -1154,6 +1154,66 @@ def save_archive(path: StrPath, arrays: Mapping[str, np.ndarray], manifest: Mapp
                     np.lib.format.write_array(member, np.asanyarray(arr), allow_pickle=False)
 
 
+#: A member larger than this that expands more than _MAX_RATIO times is refused (a
+#: decompression bomb: deflate tops out near 1032:1, reached only by constant data).
+_BOMB_BYTES = 2**30
+_MAX_RATIO = 500
+
+
+def _check_member_sizes(p: Path, where: str, read_errors: tuple) -> None:
+    """Refuse, before anything is allocated, members whose sizes cannot be true or cannot fit.
+
+    Each member's ``.npy`` header declares a shape and dtype: their byte count must fit in
+    the member's uncompressed size (else the file is damaged or forged), the archive's
+    uncompressed total must fit in half of this machine's memory, and a large member may not
+    expand like a decompression bomb.
+    """
+    from .weights import default_memory_limit
+
+    try:
+        with zipfile.ZipFile(p) as zf:
+            infos = zf.infolist()
+            total = sum(i.file_size for i in infos)
+            limit = default_memory_limit()
+            if total > limit:
+                raise ValueError(
+                    f"{where} would expand to {total / 2**30:.1f} GiB, more than half of this machine's memory "
+                    f"({limit / 2**30:.1f} GiB); load it on a machine with more memory"
+                )
+            for info in infos:
+                name = info.filename.removesuffix(".npy")
+                if info.file_size > _BOMB_BYTES and info.file_size > _MAX_RATIO * max(info.compress_size, 1):
+                    raise ValueError(
+                        f"{where}: member {name!r} would expand from {info.compress_size:,} to {info.file_size:,} "
+                        "bytes, more than any array gwpred writes; refused as a damaged file or a decompression bomb"
+                    )
+                try:
+                    with zf.open(info) as fh:
+                        version = np.lib.format.read_magic(fh)
+                        if version == (1, 0):
+                            shape, _, dtype = np.lib.format.read_array_header_1_0(fh)
+                        else:
+                            shape, _, dtype = np.lib.format.read_array_header_2_0(fh)
+                except read_errors as err:
+                    raise ValueError(
+                        f"{where}: member {name!r} could not be read ({type(err).__name__}: {err}); "
+                        "the file is corrupted or truncated: save the model again"
+                    ) from err
+                declared = math.prod(shape) * dtype.itemsize
+                if declared > info.file_size:
+                    raise ValueError(
+                        f"{where}: member {name!r} declares {declared:,} bytes of data but holds at most "
+                        f"{info.file_size:,}; the file is damaged or was not written by gwpred: save the model again"
+                    )
+    except ValueError:
+        raise
+    except read_errors as err:
+        raise ValueError(
+            f"{where} could not be opened as .npz ({err}); the file may be truncated or corrupted, "
+            "or it is not a gwpred model"
+        ) from err
+
+
 def load_archive(path: StrPath) -> tuple[dict[str, np.ndarray], dict[str, Any]]:
     """Load a gwpred model archive written by :func:`save_archive`.
 
@@ -1208,6 +1268,7 @@ def load_archive(path: StrPath) -> tuple[dict[str, np.ndarray], dict[str, Any]]:
         zipfile.BadZipFile, zlib.error, ValueError, EOFError, OSError, KeyError,
         SyntaxError, tokenize.TokenError,
     )
+    _check_member_sizes(p, where, read_errors)
     try:
         npz = np.load(p, allow_pickle=False)
     except read_errors as err:

@@ -487,3 +487,37 @@ def test_file_written_before_weight_models_keeps_the_dense_solve(tmp_path, small
     loaded = load_model(tmp_path / "old.npz")
     assert loaded.weight_model == "dense" and loaded.weight_model_ == "dense" and loaded.local_size == 500
     assert node_link(loaded.predict(Xq)) == expected
+
+
+def _forged(path, name, data: bytes, compress: bool = True) -> None:
+    # an .npz written with Python's zipfile: one member whose bytes we choose
+    import zipfile
+
+    method = zipfile.ZIP_DEFLATED if compress else zipfile.ZIP_STORED
+    with zipfile.ZipFile(path, "w", compression=method) as zf:
+        zf.writestr(name + ".npy", data)
+
+
+def test_members_that_cannot_be_true_are_refused_before_reading(tmp_path):
+    # Sizes read from the .npy header (NumPy's format, numpy.lib.format) and the zip directory
+    # (Python's zipfile), before any array is allocated.
+    from io import BytesIO
+
+    buf = BytesIO()
+    np.lib.format.write_array_header_1_0(buf, {"descr": "<f8", "fortran_order": False, "shape": (10**9,)})
+    _forged(tmp_path / "claims.npz", "inputs", buf.getvalue() + b"\0" * 64)  # says 8 GB, holds 64 bytes
+    with pytest.raises(ValueError, match=r"member 'inputs' declares 8,000,000,000 bytes of data but holds at most"):
+        load_model(tmp_path / "claims.npz")
+    # a member of zeros that expands more than any array gwpred writes (a decompression bomb); the
+    # guard reads the zip directory, so a small "bomb" stands in with the limits lowered
+    import gwpred.io as gio
+
+    _forged(tmp_path / "bomb.npz", "inputs", b"\0" * 4_000_000)
+    old = gio._BOMB_BYTES
+    gio._BOMB_BYTES = 1_000_000
+    try:
+        with pytest.raises(ValueError, match=r"member 'inputs' would expand from [\d,]+ to 4,000,000 bytes.*"
+                                             r"decompression bomb"):
+            load_model(tmp_path / "bomb.npz")
+    finally:
+        gio._BOMB_BYTES = old
