@@ -817,6 +817,36 @@ def read_features(
     return (X, ids) if return_ids else X
 
 
+def _column_cells(path: StrPath, column: str, kind: str, option: str) -> tuple[list[tuple[int, str]], str]:
+    """(line number, cell) of one column: every line of a ``.txt``, or the column headed
+    ``column`` of a ``.csv``/``.tsv`` (blank rows skipped); also the file's name for messages."""
+    p = Path(path)
+    ext = _extension(p, (".txt", ".csv", ".tsv"), kind)
+    _require_file(p, kind)
+    where = repr(str(p))
+    try:
+        text = p.read_text(encoding="utf-8")
+    except UnicodeDecodeError as err:
+        raise ValueError(f"{where} is not UTF-8 text ({err}); save the file as UTF-8") from err
+    lines = text.splitlines()
+    if ext == ".txt":
+        return list(enumerate(lines, start=1)), where
+    rows = [(k, r) for k, r in enumerate(csv.reader(lines, delimiter="," if ext == ".csv" else "\t"), start=1) if r]
+    if not rows:
+        raise ValueError(f"{where} is empty; it needs a header row with a {column!r} column")
+    header = [h.strip().lower() for h in rows[0][1]]
+    if column.lower() not in header:
+        raise ValueError(f"{where} has no {column!r} column (header: {rows[0][1]}); name the column or pass "
+                         f"its header with {option}")
+    j = header.index(column.lower())
+    cells = []
+    for k, r in rows[1:]:
+        if len(r) != len(header):
+            raise ValueError(f"{where} line {k} has {len(r)} columns, expected {len(header)}")
+        cells.append((k, r[j]))
+    return cells, where
+
+
 def read_ids(path: StrPath, column: str = "id") -> list[str]:
     """Read sample ids, one per input row, from a file of their own.
 
@@ -847,33 +877,9 @@ def read_ids(path: StrPath, column: str = "id") -> list[str]:
     ...     read_ids(p)
     ['mol-a', 'mol-b']
     """
-    p = Path(path)
-    ext = _extension(p, (".txt", ".csv", ".tsv"), "id")
-    _require_file(p, "id")
-    where = repr(str(p))
-    try:
-        text = p.read_text(encoding="utf-8")
-    except UnicodeDecodeError as err:
-        raise ValueError(f"{where} is not UTF-8 text ({err}); save the file as UTF-8") from err
-    lines = text.splitlines()
-    while lines and not lines[-1].strip():
-        lines.pop()  # a trailing blank line is not an id
-    if ext == ".txt":
-        pairs = list(enumerate(lines, start=1))
-    else:
-        rows = list(csv.reader(lines, delimiter="," if ext == ".csv" else "\t"))
-        if not rows:
-            raise ValueError(f"{where} is empty; it needs a header row with a {column!r} column")
-        header = [h.strip().lower() for h in rows[0]]
-        if column.lower() not in header:
-            raise ValueError(f"{where} has no {column!r} column (header: {rows[0]}); name the column "
-                             "or pass its header")
-        j = header.index(column.lower())
-        pairs = []
-        for k, r in enumerate(rows[1:], start=2):
-            if len(r) != len(header):
-                raise ValueError(f"{where} line {k} has {len(r)} columns, expected {len(header)}")
-            pairs.append((k, r[j]))
+    pairs, where = _column_cells(path, column, "id", "the id column's header")
+    while pairs and not pairs[-1][1].strip():
+        pairs.pop()  # a trailing blank line is not an id
     ids = []
     for lineno, value in pairs:
         value = value.strip()
@@ -916,37 +922,8 @@ def read_formulas(path: StrPath, column: str = "formula") -> list[str | None]:
     ...     read_formulas(p)
     ['C2H6O', None]
     """
-    p = Path(path)
-    ext = _extension(p, (".csv", ".tsv", ".txt"), "formula")
-    _require_file(p, "formula")
-    where = repr(str(p))
-    try:
-        text = p.read_text(encoding="utf-8")
-    except UnicodeDecodeError as err:
-        raise ValueError(f"{where} is not UTF-8 text ({err}); save the file as UTF-8") from err
-
-    def cell(v: str) -> str | None:
-        v = v.strip()
-        return None if v in ("", "-") else v
-
-    if ext == ".txt":
-        return [cell(line) for line in text.splitlines()]
-    rows = [r for r in csv.reader(text.splitlines(), delimiter="," if ext == ".csv" else "\t") if r]
-    if not rows:
-        raise ValueError(f"{where} is empty; it needs a header row with a {column!r} column")
-    header = [h.strip().lower() for h in rows[0]]
-    if column.lower() not in header:
-        raise ValueError(
-            f"{where} has no {column!r} column (header: {rows[0]}); name the column or pass its "
-            "header with --formula-column"
-        )
-    j = header.index(column.lower())
-    out = []
-    for k, r in enumerate(rows[1:], start=2):
-        if len(r) != len(header):
-            raise ValueError(f"{where} row {k} has {len(r)} columns, expected {len(header)}")
-        out.append(cell(r[j]))
-    return out
+    cells, _ = _column_cells(path, column, "formula", "--formula-column")
+    return [None if v.strip() in ("", "-") else v.strip() for _, v in cells]
 
 
 def write_features(path: StrPath, X: np.ndarray, ids: Sequence[str] | None = None) -> None:

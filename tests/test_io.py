@@ -798,7 +798,7 @@ def test_read_formulas_errors(tmp_path):
     with pytest.raises(ValueError, match="has no 'formula' column"):
         read_formulas(p)
     p.write_text("id,formula\na,CH4,extra\n", encoding="utf-8")
-    with pytest.raises(ValueError, match="row 2 has 3 columns, expected 2"):
+    with pytest.raises(ValueError, match="line 2 has 3 columns, expected 2"):
         read_formulas(p)
     p.write_text("", encoding="utf-8")
     with pytest.raises(ValueError, match="is empty"):
