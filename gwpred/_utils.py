@@ -429,3 +429,17 @@ def renamed_keyword(old: str, new: str, old_value: Any, new_value: Any, default:
     warnings.warn(f"{old}= is now called {new}=; the old name will be removed in the next release",
                   FutureWarning, stacklevel=3)
     return old_value
+
+
+def half_physical_memory() -> int:
+    """Half of the machine's physical memory in bytes (8 GB where it cannot be read).
+
+    Returns
+    -------
+    int
+    """
+    try:
+        total = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (AttributeError, ValueError, OSError):
+        total = -1
+    return int(total // 2) if total > 0 else 8 * 2**30

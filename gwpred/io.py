@@ -45,7 +45,7 @@ import numpy as np
 from networkx.readwrite.graphml import GraphMLReader, GraphMLWriter
 
 from . import _version, chem
-from ._utils import StrPath, atomic_open
+from ._utils import StrPath, atomic_open, half_physical_memory
 
 __all__ = [
     "ARCHIVE_FORMAT",
@@ -1145,13 +1145,11 @@ def _check_member_sizes(p: Path, where: str, read_errors: tuple) -> None:
     uncompressed total must fit in half of this machine's memory, and a large member may not
     expand like a decompression bomb.
     """
-    from .weights import default_memory_limit
-
     try:
         with zipfile.ZipFile(p) as zf:
             infos = zf.infolist()
             total = sum(i.file_size for i in infos)
-            limit = default_memory_limit()
+            limit = half_physical_memory()
             if total > limit:
                 raise ValueError(
                     f"{where} would expand to {total / 2**30:.1f} GiB, more than half of this machine's memory "

@@ -17,7 +17,6 @@ about graphs.
 
 from __future__ import annotations
 
-import os
 from typing import Any, Callable
 
 import numpy as np
@@ -26,7 +25,7 @@ from numpy.typing import ArrayLike, NDArray
 from scipy.linalg import cho_factor, cho_solve
 from threadpoolctl import threadpool_limits
 
-from ._utils import progress_bar
+from ._utils import half_physical_memory, progress_bar
 
 __all__ = [
     "KERNELS",
@@ -265,11 +264,7 @@ def default_memory_limit() -> int:
     >>> default_memory_limit() > 0
     True
     """
-    try:
-        total = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
-    except (AttributeError, ValueError, OSError):
-        total = -1
-    return int(total // 2) if total > 0 else 8 * 2**30
+    return half_physical_memory()
 
 
 def _check_method_and_ridge(method: str, ridge: float) -> None:
