@@ -9,6 +9,16 @@
 
 from .estimator import BarycenterGraphPredictor
 from .files import load_model, save_model
+from .hypotheses import Hypothesis, HypothesisCalibration, HypothesisList, calibrate_hypotheses
 from .steps import SoftGraph
 
-__all__ = ["BarycenterGraphPredictor", "SoftGraph", "load_model", "save_model"]
+__all__ = [
+    "BarycenterGraphPredictor",
+    "Hypothesis",
+    "HypothesisCalibration",
+    "HypothesisList",
+    "SoftGraph",
+    "calibrate_hypotheses",
+    "load_model",
+    "save_model",
+]

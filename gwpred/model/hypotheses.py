@@ -1,0 +1,829 @@
+r"""The k best hypotheses for an input: a generated pool, scored, deduplicated, calibrated.
+
+For one input ``x`` (its kept training graphs :math:`y_i` and weights
+:math:`w_i(x)`, a :class:`~gwpred.model.steps.Neighbourhood`), the pool holds,
+with no candidate library:
+
+``decoding``
+    the ordinary prediction (what ``predict`` returns);
+``free``
+    the same barycenter decoded without an anchor (``decoding="free"``;
+    without a formula only: with one, every decoding is the formula's integer
+    program);
+``anchor``
+    barycenters started from each of the ``n_anchors`` highest-weight
+    neighbours (of the formula's size when one is given; else at that
+    neighbour's own size), each decoded as edits of its anchor;
+``size``
+    barycenters one node smaller and one larger than the voted size (only
+    without a formula, which fixes the size);
+``neighbour``
+    the kept training graphs themselves (with a formula, those that match it;
+    for molecules, those that obey the valence rules);
+``edit``
+    a local search: from the ``n_expand`` best-scored members, every valid
+    single edit (one bond order up and another down, which also opens or
+    closes a ring or moves a bond; a whole bond moved; two atoms of different
+    elements swapped, or, without a formula, one atom relabelled), scored,
+    for ``n_rounds`` rounds, each expanding the best members not yet expanded.
+
+Members are deduplicated by Weisfeiler-Lehman hash, then by label-preserving
+isomorphism (networkx).  Each member is scored with the output-kernel score
+:math:`\sum_i w_i(x)\, k(y_i, c)` of :func:`gwpred.ranking.rank_candidates`
+(``scorer="kernel"``, run on the input's own candidate list);
+``output_kernel="both"`` averages the WL and the fingerprint kernels.  The
+list is the ``k`` best by score.
+
+Molecules: with the valence rules on (``model.valence_``) or a formula, every
+member obeys valences and is connected (when the training graphs are); with a
+formula, every member has exactly its heavy atoms and, when the formula gives
+hydrogens, that many implicit hydrogens.
+
+Confidence
+----------
+A :class:`HypothesisCalibration` (from :func:`calibrate_hypotheses` on
+held-out inputs with known graphs) maps a score to the observed rate at which
+hypotheses of that score were the exact graph (isotonic regression,
+scikit-learn), so confidence is a probability estimate, non-decreasing in the
+score.  Without one, ``confidence`` is the raw score (in ``[0, 1]``, same
+order) and the lists say ``calibrated=False``: a ranking aid, not a
+probability.  Generated molecules are hypotheses to check, never results.
+"""
+
+from __future__ import annotations
+
+import warnings
+from collections.abc import Sequence
+from dataclasses import dataclass, replace
+from typing import Any, Protocol
+
+import networkx as nx
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+from sklearn.base import BaseEstimator
+from sklearn.isotonic import IsotonicRegression
+
+from .._utils import has_extra, progress_bar
+from ..codec import LabelSpace, TrainingSet
+from ..formula import Formula, formula_matches
+from ..ranking import CandidateLibrary, rank_candidates
+from ..wl import LabelIds, canonical_order, graph_ids, wl_graph_hashes
+from .steps import (
+    Neighbourhood,
+    Settings,
+    choose_size,
+    decode_query,
+    formula_counts,
+    neighbourhood,
+    solve_barycenters,
+)
+
+__all__ = [
+    "OUTPUT_KERNELS",
+    "Hypothesis",
+    "HypothesisCalibration",
+    "HypothesisList",
+    "calibrate_hypotheses",
+    "calibration_from",
+    "expected_calibration_error",
+    "generate_hypotheses",
+    "recalibrated",
+    "single_edits",
+]
+
+#: Output kernels of the hypothesis score (``"both"``: mean of the two; ``"auto"``:
+#: ``"fingerprint"`` for molecules when RDKit is installed, else ``"wl"``).
+OUTPUT_KERNELS = ("auto", "wl", "fingerprint", "both")
+
+
+@dataclass(frozen=True)
+class Hypothesis:
+    """One generated graph for an input.
+
+    Attributes
+    ----------
+    graph : networkx.Graph
+        Nodes ``0..n-1`` labeled like the training graphs.
+    score : float
+        Output-kernel score :math:`\\sum_i w_i(x) k(y_i, c)` (higher is better).
+    confidence : float
+        In ``[0, 1]``, non-decreasing in ``score``: the calibrated probability
+        that this is the exact graph, or the raw score when uncalibrated.
+    source : str
+        Which part of the pool found it first: ``decoding``, ``free``,
+        ``anchor``, ``size``, ``neighbour`` or ``edit``.
+    """
+
+    graph: nx.Graph
+    score: float
+    confidence: float
+    source: str
+
+
+class HypothesisList(list):
+    """The hypotheses of one input, best first (a list of :class:`Hypothesis`).
+
+    Attributes
+    ----------
+    requested : int
+        The ``k`` asked for.
+    note : str
+        Empty, or why the list is shorter than ``k`` (the pool held fewer
+        distinct graphs).
+    calibrated : bool
+        Whether confidences come from a :class:`HypothesisCalibration`.
+    """
+
+    def __init__(self, items: Sequence[Hypothesis], requested: int, note: str = "", calibrated: bool = False) -> None:
+        super().__init__(items)
+        self.requested = requested
+        self.note = note
+        self.calibrated = calibrated
+
+
+@dataclass(frozen=True)
+class HypothesisCalibration:
+    """Score -> probability of an exact match, a non-decreasing step function.
+
+    Attributes
+    ----------
+    scores : ndarray of shape (m,)
+        Increasing score thresholds (scikit-learn's ``IsotonicRegression.X_thresholds_``).
+    probabilities : ndarray of shape (m,)
+        Non-decreasing exact-match rates at those scores (``y_thresholds_``);
+        linear in between, constant outside.
+    options : dict
+        Pool and score options it was fitted with; hypotheses calibrated by it
+        should use the same.
+    n_hypotheses : int
+        Hypotheses it was fitted on.
+    """
+
+    scores: NDArray[np.float64]
+    probabilities: NDArray[np.float64]
+    options: dict
+    n_hypotheses: int
+
+    def __call__(self, scores: ArrayLike) -> NDArray[np.float64]:
+        """Confidences of scores (in ``[0, 1]``, non-decreasing in the score)."""
+        s = np.asarray(scores, dtype=np.float64)
+        return np.clip(np.interp(s, self.scores, self.probabilities), 0.0, 1.0)
+
+
+class HypothesisModel(Protocol):
+    """What :func:`calibrate_hypotheses` reads of a fitted estimator."""
+
+    node_label: str
+    edge_label: str | None
+
+    def predict_hypotheses(self, X: ArrayLike, top_k: int = 10, formulas: Any = None, **options: Any) -> list:
+        """Hypothesis lists per input."""
+        ...
+
+
+# --------------------------------------------------------------------------- scoring through ranking
+class _FixedNeighbours(BaseEstimator):
+    """A fitted model as :mod:`gwpred.ranking` reads it, with each input's neighbours given in
+    advance: ``X`` holds row numbers, so ranking never recomputes the weights."""
+
+    def __init__(self, model: Any, indices: NDArray[np.int64], weights: NDArray[np.float64]) -> None:
+        self.model, self.indices, self.weights = model, indices, weights
+        self.training_ = model.training_
+        self.labels_ = model.labels_
+        self.alpha = model.alpha
+        self.node_label = model.node_label
+        self.edge_label = model.edge_label
+        self.progress = False
+        self.n_jobs = 1
+        self._indices, self._weights = indices, weights
+
+    def __sklearn_is_fitted__(self) -> bool:
+        return True
+
+    def fit(self, X: Any = None, y: Any = None) -> _FixedNeighbours:
+        """Nothing to fit: a view of a fitted model (scikit-learn's fitted check wants the method)."""
+        return self
+
+    def neighbors(self, X: ArrayLike) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
+        rows = np.asarray(X)[:, 0].astype(np.int64)
+        return self._indices[rows], self._weights[rows]
+
+    def predict_barycenters(self, X: ArrayLike, formulas: Any = None) -> list:  # pragma: no cover
+        raise NotImplementedError("hypotheses score with the kernel scorer only")
+
+
+def _kernel_scores(view: _FixedNeighbours, row: int, library: CandidateLibrary, members: list[int],
+                   output_kernel: str) -> NDArray[np.float64]:
+    """Kernel scores of library members for one input row, in the order of ``members``."""
+    kernels = ("wl", "fingerprint") if output_kernel == "both" else (output_kernel,)
+    total = np.zeros(len(members))
+    where = {m: p for p, m in enumerate(members)}
+    for kern in kernels:
+        ranked = rank_candidates(view, [[float(row)]], library, top_k=len(members),
+                                 filter=[np.asarray(members, dtype=np.int64)], output_kernel=kern)[0]
+        for j, s in ranked:
+            total[where[j]] += s / len(kernels)
+    return total
+
+
+# --------------------------------------------------------------------------- graphs as arrays
+@dataclass(frozen=True)
+class _Chem:
+    """Valence facts of a fitted label space, for the local search."""
+
+    valences: NDArray[np.int64]  # per node label
+    order_class: dict[int, int]  # bond order -> edge label index
+    class_order: NDArray[np.int64]  # edge label index -> bond order
+    max_order: int
+
+
+def _chem(settings: Settings) -> _Chem | None:
+    if settings.valences is None or settings.orders is None:
+        return None
+    orders = np.asarray(settings.orders, dtype=np.int64)
+    order_class = {int(o): c for c, o in enumerate(orders.tolist())}
+    top = 0
+    while top + 1 in order_class:  # bond orders 1..top all have an edge label
+        top += 1
+    return _Chem(np.asarray(settings.valences, dtype=np.int64), order_class, orders, top)
+
+
+def _to_arrays(g: nx.Graph, labels: LabelSpace, chem: _Chem) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """Node label indices ``(n,)`` and bond-order matrix ``(n, n)`` of a graph with nodes 0..n-1."""
+    index = {v: i for i, v in enumerate(labels.node_labels_)}
+    edge_index = {v: i for i, v in enumerate(labels.edge_labels_)}
+    n = g.number_of_nodes()
+    cls = np.array([index[g.nodes[v][labels.node_label]] for v in range(n)], dtype=np.int64)
+    O = np.zeros((n, n), dtype=np.int64)
+    for u, v, d in g.edges(data=True):
+        lab = d.get(labels.edge_label) if labels.edge_label is not None else None
+        O[u, v] = O[v, u] = chem.class_order[edge_index.get(lab, 0)]
+    return cls, O
+
+
+def _to_graph(cls: NDArray[np.int64], O: NDArray[np.int64], labels: LabelSpace, chem: _Chem) -> nx.Graph:
+    iu, ju = np.nonzero(np.triu(O, 1))
+    return labels.build_graph(cls, np.stack([iu, ju], 1), [chem.order_class[int(o)] for o in O[iu, ju]])
+
+
+def _connected(O: NDArray[np.int64]) -> bool:
+    n = len(O)
+    seen = np.zeros(n, dtype=bool)
+    seen[0] = True
+    frontier = seen.copy()
+    A = O > 0
+    while frontier.any():
+        frontier = A[frontier].any(0) & ~seen
+        seen |= frontier
+    return bool(seen.all())
+
+
+def _obeys_valence(cls: NDArray[np.int64], O: NDArray[np.int64], chem: _Chem) -> bool:
+    return bool(np.all(O.sum(1) <= chem.valences[cls]) and np.all(O <= chem.max_order))
+
+
+def single_edits(
+    cls: NDArray[np.int64],
+    O: NDArray[np.int64],
+    valences: NDArray[np.int64],
+    *,
+    max_order: int = 3,
+    n_labels: int | None = None,
+    fixed_counts: bool = True,
+    fixed_total: bool = True,
+    connected: bool = True,
+) -> list[tuple[NDArray[np.int64], NDArray[np.int64]]]:
+    """Every valid graph one edit away from a valid one (the local search's moves).
+
+    Parameters
+    ----------
+    cls : ndarray of int, shape (n,)
+        Node label index per node.
+    O : ndarray of int, shape (n, n)
+        Symmetric bond-order matrix (0: no bond).
+    valences : ndarray of int, shape (n_labels,)
+        Largest total bond order per node label.
+    max_order : int, default=3
+        Largest bond order.
+    n_labels : int, optional
+        Node labels to relabel into when ``fixed_counts`` is False (default: ``len(valences)``).
+    fixed_counts : bool, default=True
+        Keep the number of nodes per label (a formula's heavy atoms): atoms are
+        swapped, never relabelled.
+    fixed_total : bool, default=True
+        Keep the total bond order (a formula's hydrogens); otherwise single
+        bond-order changes are also moves.
+    connected : bool, default=True
+        Keep the graph connected.
+
+    Returns
+    -------
+    list of (ndarray, ndarray)
+        ``(cls, O)`` of each edited graph, every one obeying valences (and
+        connected if asked); no two equal as arrays.
+
+    Examples
+    --------
+    >>> O = np.array([[0, 1, 0], [1, 0, 1], [0, 1, 0]])  # C-C-C
+    >>> [int(M.sum()) // 2 for _, M in single_edits(np.zeros(3, dtype=np.int64), O, np.array([4]))]
+    [2, 2]
+
+    Keeping the hydrogens, only the bond moved (C1-C3-C2, C2-C1-C3: propane
+    again, renumbered); without, also C=C-C, C-C=C and cyclopropane.
+    """
+    n = len(cls)
+    free = valences[cls] - O.sum(1)
+    iu, ju = np.triu_indices(n, 1)
+    pairs = list(zip(iu.tolist(), ju.tolist()))
+    bonds = [(i, j) for i, j in pairs if O[i, j] > 0]
+    out: dict[bytes, tuple[NDArray[np.int64], NDArray[np.int64]]] = {}
+
+    def keep(c: NDArray[np.int64], M: NDArray[np.int64], removed: bool) -> None:
+        if removed and connected and n > 1 and not _connected(M):
+            return
+        key = c.tobytes() + M.tobytes()
+        if key not in out:
+            out[key] = (c, M)
+
+    # one bond order up at (a, b), another down at (c, d): ring closing/opening, bond shifts
+    for a, b in pairs:
+        if O[a, b] >= max_order:
+            continue
+        for c, d in bonds:
+            if (c, d) == (a, b):
+                continue
+            f = free.copy()
+            f[[a, b]] -= 1
+            f[[c, d]] += 1
+            if np.any(f < 0):
+                continue
+            M = O.copy()
+            M[a, b] += 1
+            M[b, a] += 1
+            M[c, d] -= 1
+            M[d, c] -= 1
+            keep(cls, M, M[c, d] == 0)
+    # a whole bond of order >= 2 moved to an empty pair
+    for c, d in bonds:
+        o = int(O[c, d])
+        if o < 2:
+            continue  # order-1 moves are covered above
+        for a, b in pairs:
+            if O[a, b] or (a, b) == (c, d):
+                continue
+            f = free.copy()
+            f[[a, b]] -= o
+            f[[c, d]] += o
+            if np.any(f < 0):
+                continue
+            M = O.copy()
+            M[a, b] = M[b, a] = o
+            M[c, d] = M[d, c] = 0
+            keep(cls, M, True)
+    if not fixed_total:  # one bond order up or down alone
+        for a, b in pairs:
+            if O[a, b] < max_order and free[a] > 0 and free[b] > 0:
+                M = O.copy()
+                M[a, b] += 1
+                M[b, a] += 1
+                keep(cls, M, False)
+        for c, d in bonds:
+            M = O.copy()
+            M[c, d] -= 1
+            M[d, c] -= 1
+            keep(cls, M, M[c, d] == 0)
+    load = O.sum(1)
+    if fixed_counts:  # swap two atoms of different labels
+        for a, b in pairs:
+            if cls[a] == cls[b] or load[a] > valences[cls[b]] or load[b] > valences[cls[a]]:
+                continue
+            c = cls.copy()
+            c[a], c[b] = cls[b], cls[a]
+            keep(c, O, False)
+    else:
+        for a in range(n):
+            for lab in range(len(valences) if n_labels is None else n_labels):
+                if lab != cls[a] and load[a] <= valences[lab]:
+                    c = cls.copy()
+                    c[a] = lab
+                    keep(c, O, False)
+    return list(out.values())
+
+
+# --------------------------------------------------------------------------- the pool
+@dataclass(frozen=True)
+class _Variant:
+    row: int
+    hood: Neighbourhood
+    size: int | None  # None: the ordinary size rule (or the formula)
+    source: str
+
+
+def _reordered(hood: Neighbourhood, first: int) -> Neighbourhood:
+    """The same neighbourhood with position ``first`` moved to the front (so it becomes the anchor)."""
+    order = [first] + [p for p in range(len(hood.indices)) if p != first]
+    return Neighbourhood(
+        hood.indices[order], hood.weights[order], [hood.structures[p] for p in order],
+        [hood.features[p] for p in order], [hood.channels[p] for p in order],
+        hood.sizes[order], hood.n_edges[order],
+    )
+
+
+def _variants(row: int, hood: Neighbourhood, formula: Formula | None, settings: Settings,
+              voted: int, n_anchors: int) -> list[_Variant]:
+    out = [_Variant(row, hood, None, "decoding")]
+    n = voted
+    seen = {(n, int(np.flatnonzero(hood.sizes == n)[0]) if np.any(hood.sizes == n) else -1)}
+    for p in range(len(hood.indices)):
+        if sum(v.source == "anchor" for v in out) >= n_anchors:
+            break
+        size = int(hood.sizes[p])
+        if formula is not None and size != n:
+            continue
+        if (size, p) in seen:
+            continue
+        seen.add((size, p))
+        out.append(_Variant(row, _reordered(hood, p), size, "anchor"))
+    if formula is None and not isinstance(settings.n_nodes, int):
+        for size in (n - 1, n + 1):
+            if size >= 1:
+                out.append(_Variant(row, hood, size, "size"))
+    return out
+
+
+def _decode_all(variants: list[_Variant], formulas: Sequence[Formula | None], settings: Settings,
+                counts: Sequence[NDArray[np.int64] | None]) -> list[list[tuple[nx.Graph, str]]]:
+    """Solve every variant's barycenter (in one batch) and decode it; per row, (graph, source) pairs."""
+    # a size-only "counts" array: solve_barycenters reads only its sum (the barycenter's size)
+    sized = [counts[v.row] if v.size is None else np.array([v.size], dtype=np.int64) for v in variants]
+    softs = solve_barycenters([v.hood for v in variants], settings, sized)
+    free = replace(settings, decoding="free")
+    out: list[list[tuple[nx.Graph, str]]] = [[] for _ in formulas]
+    for v, soft in zip(variants, softs):
+        f = formulas[v.row]
+        tries = [(settings, v.source)]
+        if v.source == "decoding" and f is None and settings.decoding != "free":
+            tries.append((free, "free"))
+        for s, source in tries:
+            try:
+                out[v.row].append((decode_query(soft, v.hood, s, f), source))
+            except ValueError:  # no valid graph of that size: the variant adds nothing
+                continue
+    return out
+
+
+def _neighbour_graphs(hood: Neighbourhood, training: TrainingSet, formula: Formula | None,
+                      chem: _Chem | None, labels: LabelSpace, need_valid: bool) -> list[nx.Graph]:
+    out = []
+    for i in hood.indices.tolist():
+        g = training.graph(i)
+        if formula is not None and not formula_matches(g, formula, node_label=labels.node_label,
+                                                       edge_label=labels.edge_label):
+            continue
+        if need_valid and chem is not None and not _obeys_valence(*_to_arrays(g, labels, chem), chem):
+            continue
+        out.append(g)
+    return out
+
+
+# --------------------------------------------------------------------------- one input
+def _certificate(g: nx.Graph, space: LabelIds) -> tuple:
+    """The labeled adjacency in :func:`gwpred.wl.canonical_order`: equal certificates prove two
+    graphs isomorphic (unequal ones are checked with networkx)."""
+    ids = graph_ids(g, space, "hypothesis")
+    order = canonical_order(ids.nodes, ids.adjacency)
+    where = {v: i for i, v in enumerate(order)}
+    edges = sorted((min(where[v], where[u]), max(where[v], where[u]), e)
+                   for v, nbrs in enumerate(ids.adjacency) for u, e in nbrs if v < u)
+    return tuple(ids.nodes[v] for v in order), tuple(edges)
+
+
+def _same(g: nx.Graph, h: nx.Graph, labels: LabelSpace) -> bool:
+    """Label-preserving isomorphism (networkx VF2)."""
+    nm = nx.isomorphism.categorical_node_match(labels.node_label, None)
+    em = nx.isomorphism.categorical_edge_match(labels.edge_label, None) if labels.edge_label else None
+    return nx.is_isomorphic(g, h, node_match=nm, edge_match=em)
+
+
+class _Pool:
+    """One input's distinct candidates, their scores and sources."""
+
+    def __init__(self, view: _FixedNeighbours, row: int, labels: LabelSpace, output_kernel: str) -> None:
+        self.view, self.row, self.labels, self.output_kernel = view, row, labels, output_kernel
+        self.space = LabelIds.of(labels)
+        self.graphs: list[nx.Graph] = []
+        self.sources: list[str] = []
+        self.scores: list[float] = []
+        self.certs: list[tuple | None] = []
+        self.groups: dict[int, list[int]] = {}  # WL hash -> pool positions
+        self.expanded: set[int] = set()
+
+    def _cert(self, m: int) -> tuple:
+        if self.certs[m] is None:
+            self.certs[m] = _certificate(self.graphs[m], self.space)
+        return self.certs[m]  # type: ignore[return-value]
+
+    def _seen(self, g: nx.Graph, group: list[int]) -> bool:
+        """Whether ``g`` is one of the pool graphs of its WL hash: an equal canonical certificate
+        proves it; with none equal, networkx decides (a certificate search may stop early)."""
+        cert = _certificate(g, self.space)
+        if any(self._cert(m) == cert for m in group):
+            return True
+        return any(_same(g, self.graphs[m], self.labels) for m in group)
+
+    def add(self, items: list[tuple[nx.Graph, str]]) -> None:
+        """Score the graphs among ``items`` that are new (WL hash, then isomorphism) and keep them."""
+        if not items:
+            return
+        library = CandidateLibrary([g for g, _ in items])
+        hashes = wl_graph_hashes(library, self.labels).tolist()  # also caches the WL encodings scoring uses
+        fresh: list[int] = []
+        for j, ((g, source), h) in enumerate(zip(items, hashes)):
+            group = self.groups.setdefault(h, [])
+            if group and self._seen(g, group):
+                continue
+            group.append(len(self.graphs))
+            self.graphs.append(g)
+            self.sources.append(source)
+            self.scores.append(np.nan)
+            self.certs.append(None)
+            fresh.append(j)
+        if fresh:
+            scores = _kernel_scores(self.view, self.row, library, fresh, self.output_kernel)
+            self.scores[len(self.scores) - len(fresh) :] = scores.tolist()
+
+    def order(self) -> list[int]:
+        """Positions by decreasing score (ties: first found first)."""
+        return sorted(range(len(self.scores)), key=lambda m: (-round(self.scores[m], 10), m))
+
+
+def _search(pool: _Pool, chem: _Chem, labels: LabelSpace, settings: Settings, formula: Formula | None,
+            n_expand: int, n_rounds: int) -> None:
+    for _ in range(n_rounds):
+        todo = [m for m in pool.order() if m not in pool.expanded][:n_expand]
+        if not todo:
+            return
+        items: list[tuple[nx.Graph, str]] = []
+        for m in todo:
+            pool.expanded.add(m)
+            cls, O = _to_arrays(pool.graphs[m], labels, chem)
+            if not _obeys_valence(cls, O, chem):
+                continue
+            edits = single_edits(
+                cls, O, chem.valences, max_order=chem.max_order, fixed_counts=formula is not None,
+                fixed_total=formula is not None and formula.hydrogens is not None, connected=settings.connect,
+            )
+            items.extend((_to_graph(c, M, labels, chem), "edit") for c, M in edits)
+        pool.add(items)
+
+
+# --------------------------------------------------------------------------- entry points
+def generate_hypotheses(
+    model: Any,
+    indices: NDArray[np.int64],
+    weights: NDArray[np.float64],
+    formulas: Sequence[Formula | None],
+    settings: Settings,
+    *,
+    k: int = 10,
+    output_kernel: str = "auto",
+    n_anchors: int = 3,
+    n_expand: int = 3,
+    n_rounds: int = 2,
+    calibration: HypothesisCalibration | None = None,
+    batch_size: int = 64,
+    progress: bool = False,
+) -> list[HypothesisList]:
+    """The ``k`` best distinct hypotheses per input (see the module notes).
+
+    Called by ``BarycenterGraphPredictor.predict_hypotheses``, which resolves
+    the inputs into neighbours, formulas and settings.
+
+    Parameters
+    ----------
+    model : BarycenterGraphPredictor
+        Fitted; read for its training set, labels and FGW trade-off.
+    indices, weights : ndarray of shape (n_queries, n_neighbors)
+        Kept training graphs of each input and their weights (``model.neighbors(X)``).
+    formulas : sequence of (Formula or None)
+        Per input, a parsed formula.
+    settings : Settings
+        The model's settings, with valence tables when molecules are decoded.
+    k : int, default=10
+        Hypotheses per input.
+    output_kernel : {"auto", "wl", "fingerprint", "both"}, default="auto"
+        Output kernel of the score; ``auto`` is ``fingerprint`` for molecules
+        (valence rules on or a formula given) when RDKit is installed, else
+        ``wl`` (see ``predict_hypotheses`` for the validation numbers: better
+        for fingerprint inputs, mixed for spectra).
+    n_anchors : int, default=3
+        Extra barycenters started from the best-weighted neighbours.
+    n_expand, n_rounds : int, default=3 and 2
+        Local search: members expanded per round, rounds (0: none).
+    calibration : HypothesisCalibration, optional
+        Score -> confidence map; None gives uncalibrated confidences (the raw score).
+    batch_size : int, default=64
+        Inputs whose barycenters are solved together.
+    progress : bool, default=False
+        Progress bar over the inputs.
+
+    Returns
+    -------
+    list of HypothesisList
+
+    Raises
+    ------
+    ValueError
+        For ``k`` < 1, an unknown ``output_kernel`` or negative search sizes.
+    """
+    _check_options(k, output_kernel, n_anchors, n_expand, n_rounds)
+    training: TrainingSet = model.training_
+    labels: LabelSpace = model.labels_
+    view = _FixedNeighbours(model, np.asarray(indices), np.asarray(weights))
+    chem = _chem(settings)
+    molecules = chem is not None and (settings.valence or any(f is not None for f in formulas))
+    if output_kernel == "auto":
+        output_kernel = "fingerprint" if molecules and has_extra("rdkit") else "wl"
+    out: list[HypothesisList] = []
+    rows = list(range(len(indices)))
+    bar = progress_bar(None, progress=progress, total=len(rows), desc="hypotheses", unit="input")
+    for start in range(0, len(rows), batch_size):
+        batch = rows[start : start + batch_size]
+        hoods = [neighbourhood(training, indices[r], weights[r]) for r in batch]
+        fs = [formulas[r] for r in batch]
+        counts = [formula_counts(f, labels) for f in fs]
+        variants: list[_Variant] = []
+        for b, (hood, f, c) in enumerate(zip(hoods, fs, counts)):
+            voted = choose_size(hood, settings.n_nodes, c)
+            variants.extend(_variants(b, hood, f, settings, voted, n_anchors))
+        decoded = _decode_all(variants, fs, settings, counts)
+        for b, r in enumerate(batch):
+            pool = _Pool(view, r, labels, output_kernel)
+            items = decoded[b] + [(g, "neighbour") for g in _neighbour_graphs(
+                hoods[b], training, fs[b], chem, labels, need_valid=molecules)]
+            pool.add(items)
+            if molecules and chem is not None and chem.max_order >= 1:
+                _search(pool, chem, labels, settings, fs[b], n_expand, n_rounds)
+            out.append(_finish(pool, k, calibration))
+            bar.update(1)
+    bar.close()
+    short = sum(bool(h.note) for h in out)
+    if short:
+        warnings.warn(
+            f"{short} of {len(out)} inputs have fewer than top_k={k} distinct hypotheses (their pools were "
+            "smaller); see each list's .note.", UserWarning, stacklevel=3,
+        )
+    return out
+
+
+def _finish(pool: _Pool, k: int, calibration: HypothesisCalibration | None) -> HypothesisList:
+    order = pool.order()[:k]
+    scores = np.array([pool.scores[m] for m in order])
+    conf = calibration(scores) if calibration is not None else np.clip(scores, 0.0, 1.0)
+    items = [Hypothesis(pool.graphs[m], float(s), float(c), pool.sources[m])
+             for m, s, c in zip(order, scores.tolist(), conf.tolist())]
+    note = "" if len(items) >= k else (
+        f"only {len(items)} distinct hypotheses were reachable (top_k={k} asked): the pool held no more"
+    )
+    return HypothesisList(items, k, note, calibration is not None)
+
+
+def _check_options(k: Any, output_kernel: Any, n_anchors: Any, n_expand: Any, n_rounds: Any) -> None:
+    if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or k < 1:
+        raise ValueError(f"top_k must be an integer >= 1 (hypotheses per input); got {k!r}.")
+    if output_kernel not in OUTPUT_KERNELS:
+        raise ValueError(f"output_kernel must be one of {list(OUTPUT_KERNELS)}; got {output_kernel!r}.")
+    for name, value in (("n_anchors", n_anchors), ("n_expand", n_expand), ("n_rounds", n_rounds)):
+        if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 0:
+            raise ValueError(f"{name} must be an integer >= 0; got {value!r}.")
+
+
+# --------------------------------------------------------------------------- calibration
+def _hits(lists: Sequence[Sequence[Hypothesis]], truth: Sequence[nx.Graph], labels: LabelSpace) -> list[list[bool]]:
+    return [[_same(h.graph, t, labels) for h in hyps] for hyps, t in zip(lists, truth)]
+
+
+def calibrate_hypotheses(
+    model: Any,
+    X: ArrayLike,
+    graphs: Sequence[nx.Graph],
+    formulas: Any = None,
+    *,
+    top_k: int = 10,
+    **options: Any,
+) -> HypothesisCalibration:
+    """Fit the score -> P(exact graph) map on held-out inputs whose graphs are known.
+
+    Use inputs the model was **not** fitted on (e.g. a validation part of the
+    training data held out from ``fit``): on training inputs every score would
+    look better than it is.  Every hypothesis of every input counts once:
+    label 1 when it is label-isomorphic to the true graph (networkx), else 0;
+    scikit-learn's ``IsotonicRegression`` (increasing, clipped to ``[0, 1]``)
+    fits the rate against the score.
+
+    Parameters
+    ----------
+    model : BarycenterGraphPredictor
+        Fitted.
+    X : array-like of shape (n_inputs, n_features)
+    graphs : sequence of networkx.Graph
+        The true graph of each input.
+    formulas : list of (str or None), optional
+        As in ``predict_hypotheses``; calibrate with formulas when you will
+        predict with them (scores are higher and hits likelier with a formula).
+    top_k : int, default=10
+    **options
+        Passed to ``predict_hypotheses`` (``output_kernel``, ``n_anchors``, ...).
+
+    Returns
+    -------
+    HypothesisCalibration
+
+    Raises
+    ------
+    ValueError
+        For mismatched lengths or fewer than 2 hypotheses in all.
+    """
+    graphs = list(graphs)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)  # short pools are fine here
+        lists = model.predict_hypotheses(X, top_k=top_k, formulas=formulas, **options)
+    return calibration_from(lists, graphs, model.labels_, {"top_k": top_k, **options})
+
+
+def calibration_from(
+    lists: Sequence[Sequence[Hypothesis]], graphs: Sequence[nx.Graph], labels: LabelSpace, options: dict | None = None
+) -> HypothesisCalibration:
+    """:func:`calibrate_hypotheses` from hypothesis lists already computed for held-out inputs.
+
+    Parameters
+    ----------
+    lists : sequence of sequences of Hypothesis
+        One list per held-out input.
+    graphs : sequence of networkx.Graph
+        Their true graphs.
+    labels : LabelSpace
+        The model's fitted labels (``model.labels_``: attribute names).
+    options : dict, optional
+        Options the lists were made with (kept in the calibration).
+
+    Returns
+    -------
+    HypothesisCalibration
+    """
+    graphs = list(graphs)
+    if len(lists) != len(graphs):
+        raise ValueError(f"there are {len(lists)} hypothesis lists but {len(graphs)} graphs; pass one graph per input.")
+    hits = _hits(lists, graphs, labels)
+    s = np.array([h.score for hyps in lists for h in hyps])
+    y = np.array([v for row in hits for v in row], dtype=np.float64)
+    if len(s) < 2:
+        raise ValueError("calibration needs at least 2 hypotheses; pass more inputs.")
+    iso = IsotonicRegression(y_min=0.0, y_max=1.0, increasing=True, out_of_bounds="clip").fit(s, y)
+    return HypothesisCalibration(
+        np.asarray(iso.X_thresholds_, dtype=np.float64), np.asarray(iso.y_thresholds_, dtype=np.float64),
+        dict(options or {}), len(s),
+    )
+
+
+def recalibrated(lists: Sequence[HypothesisList], calibration: HypothesisCalibration) -> list[HypothesisList]:
+    """The same lists with confidences from ``calibration`` (scores and order unchanged)."""
+    out = []
+    for hyps in lists:
+        conf = calibration([h.score for h in hyps]).tolist()
+        out.append(HypothesisList([replace(h, confidence=float(c)) for h, c in zip(hyps, conf)],
+                                  hyps.requested, hyps.note, True))
+    return out
+
+
+def expected_calibration_error(confidence: ArrayLike, hit: ArrayLike, n_bins: int = 10) -> float:
+    """Expected calibration error: sum over equal-width confidence bins of |rate - mean confidence| x share.
+
+    Parameters
+    ----------
+    confidence : array-like of shape (m,)
+        Values in ``[0, 1]``.
+    hit : array-like of shape (m,)
+        1 where the hypothesis was right.
+    n_bins : int, default=10
+
+    Returns
+    -------
+    float
+
+    Examples
+    --------
+    >>> expected_calibration_error([0.9, 0.9, 0.1, 0.1], [1, 1, 0, 0])
+    0.1
+    """
+    c = np.asarray(confidence, dtype=np.float64)
+    y = np.asarray(hit, dtype=np.float64)
+    if c.shape != y.shape or c.ndim != 1 or c.size == 0:
+        raise ValueError(f"confidence and hit must be 1-d of equal, non-zero length; got {c.shape} and {y.shape}.")
+    bins = np.minimum((c * n_bins).astype(np.int64), n_bins - 1)
+    err = 0.0
+    for b in np.unique(bins):
+        m = bins == b
+        err += m.mean() * abs(y[m].mean() - c[m].mean())
+    return float(round(err, 12))
+

@@ -1,0 +1,192 @@
+"""Tests for gwpred.model.hypotheses and BarycenterGraphPredictor.predict_hypotheses.
+
+Outside references used here:
+
+- QM9 molecules bundled with gwpred (``gwpred.datasets.load_demo``, from the
+  QM9 data of the PyPI package qm9pack): training graphs, inputs, and the true
+  molecules' SMILES.
+- RDKit: ``Chem.MolFromSmiles`` (which sanitises: a molecule RDKit refuses is
+  invalid) and ``rdMolDescriptors.CalcMolFormula`` (hydrogens included), the
+  references for validity and for formula match.
+- networkx ``is_isomorphic`` with categorical label matchers: the reference
+  for "no two hypotheses are the same labeled graph".
+- scikit-learn ``IsotonicRegression``: the reference calibration map.
+- An elementary fact: C2H6O has exactly two constitutional isomers (ethanol
+  and dimethyl ether), so no pool can hold more than two distinct graphs.
+"""
+
+from __future__ import annotations
+
+import itertools
+import warnings
+
+import networkx as nx
+import numpy as np
+import pytest
+from networkx.algorithms.isomorphism import categorical_edge_match, categorical_node_match
+from sklearn.isotonic import IsotonicRegression
+
+from gwpred import BarycenterGraphPredictor
+from gwpred.chem import graph_to_smiles
+from gwpred.datasets import load_demo
+from gwpred.model.hypotheses import (
+    HypothesisList,
+    calibrate_hypotheses,
+    calibration_from,
+    expected_calibration_error,
+    single_edits,
+)
+
+Chem = pytest.importorskip("rdkit.Chem")
+rdMolDescriptors = pytest.importorskip("rdkit.Chem.rdMolDescriptors")
+
+N_TRAIN = 600
+QUERIES = slice(600, 606)
+HELD_OUT = slice(606, 622)
+
+
+@pytest.fixture(scope="module")
+def demo():
+    X, graphs, smiles = load_demo(return_smiles=True)
+    model = BarycenterGraphPredictor(random_state=0).fit(X[:N_TRAIN], graphs[:N_TRAIN])
+    formulas = [rdMolDescriptors.CalcMolFormula(Chem.MolFromSmiles(s)) for s in smiles]  # RDKit, with H
+    return model, X, graphs, formulas
+
+
+@pytest.fixture(scope="module")
+def plain(demo):
+    model, X, _, _ = demo
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        return model.predict_hypotheses(X[QUERIES], top_k=8)
+
+
+@pytest.fixture(scope="module")
+def with_formula(demo):
+    model, X, _, formulas = demo
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        return model.predict_hypotheses(X[QUERIES], top_k=8, formulas=formulas[QUERIES])
+
+
+def same(a: nx.Graph, b: nx.Graph) -> bool:
+    return nx.is_isomorphic(a, b, node_match=categorical_node_match("label", None),
+                            edge_match=categorical_edge_match("label", None))
+
+
+def rdkit_formula(g: nx.Graph) -> str:
+    mol = Chem.MolFromSmiles(graph_to_smiles(g))  # sanitised by RDKit; None when invalid
+    assert mol is not None
+    return rdMolDescriptors.CalcMolFormula(mol)
+
+
+@pytest.mark.parametrize("which", ["plain", "with_formula"])
+def test_distinct_sorted_valid(which, request):
+    lists = request.getfixturevalue(which)
+    for hyps in lists:
+        assert isinstance(hyps, HypothesisList) and 1 <= len(hyps) <= 8
+        scores = [h.score for h in hyps]
+        assert scores == sorted(scores, reverse=True)
+        for a, b in itertools.combinations(hyps, 2):
+            assert not same(a.graph, b.graph)  # networkx: no two label-isomorphic
+        for h in hyps:
+            assert Chem.MolFromSmiles(graph_to_smiles(h.graph)) is not None  # RDKit sanitises it
+            assert 0.0 <= h.confidence <= 1.0
+        assert not hyps.calibrated
+
+
+def test_formula_matches_rdkit(demo, with_formula):
+    _, _, _, formulas = demo
+    for hyps, f in zip(with_formula, formulas[QUERIES]):
+        assert {rdkit_formula(h.graph) for h in hyps} == {f}
+
+
+def test_reproducible(demo, with_formula):
+    model, X, graphs, formulas = demo
+    again = BarycenterGraphPredictor(random_state=0).fit(X[:N_TRAIN], graphs[:N_TRAIN])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        lists = again.predict_hypotheses(X[QUERIES], top_k=8, formulas=formulas[QUERIES])
+    for a, b in zip(lists, with_formula):
+        assert [h.score for h in a] == [h.score for h in b]
+        assert all(nx.utils.graphs_equal(x.graph, y.graph) for x, y in zip(a, b))
+
+
+def test_calibration_monotone_and_isotonic(demo):
+    model, X, graphs, formulas = demo
+    cal = calibrate_hypotheses(model, X[HELD_OUT], graphs[HELD_OUT], formulas[HELD_OUT], top_k=5, n_rounds=1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        lists = model.predict_hypotheses(X[QUERIES], top_k=5, formulas=formulas[QUERIES], n_rounds=1, calibration=cal)
+    pairs = sorted((h.score, h.confidence) for hyps in lists for h in hyps)
+    conf = np.array([c for _, c in pairs])
+    assert np.all((conf >= 0) & (conf <= 1)) and np.all(np.diff(conf) >= -1e-12)
+    assert all(hyps.calibrated for hyps in lists)
+    # scikit-learn's IsotonicRegression on the same held-out hypotheses gives the same map
+    held = model.predict_hypotheses(X[HELD_OUT], top_k=5, formulas=formulas[HELD_OUT], n_rounds=1)
+    s = np.array([h.score for hyps in held for h in hyps])
+    y = np.array([same(h.graph, t) for hyps, t in zip(held, graphs[HELD_OUT]) for h in hyps], dtype=float)
+    iso = IsotonicRegression(y_min=0, y_max=1, out_of_bounds="clip").fit(s, y)
+    probe = np.array([score for score, _ in pairs])
+    np.testing.assert_allclose(cal(probe), iso.predict(probe), atol=1e-12)
+
+
+def test_k_larger_than_pool_returns_fewer_with_a_note(demo):
+    model, X, _, _ = demo
+    with pytest.warns(UserWarning, match="fewer than top_k=20 distinct hypotheses"):
+        lists = model.predict_hypotheses(X[:1], top_k=20, formulas=["C2H6O"])
+    hyps = lists[0]
+    assert 1 <= len(hyps) <= 2  # C2H6O: ethanol and dimethyl ether only
+    assert "only" in hyps.note and hyps.requested == 20
+    assert {rdkit_formula(h.graph) for h in hyps} == {"C2H6O"}
+
+
+def test_single_edits_of_propane():
+    # elementary: one bond added to propane's C-C-C gives propene or cyclopropane (the C3H6
+    # isomers); keeping the hydrogens (total bond order), only propane renumbered remains
+    O = np.array([[0, 1, 0], [1, 0, 1], [0, 1, 0]])
+    carbon = np.zeros(3, dtype=np.int64)
+
+    def as_graph(M):
+        g = nx.from_numpy_array(M, edge_attr="label")
+        nx.set_node_attributes(g, "C", "label")
+        return g
+
+    propane, propene, cyclopropane = as_graph(O), as_graph(O + np.diag([1, 0], 1) + np.diag([1, 0], -1)), \
+        as_graph(np.ones((3, 3), dtype=np.int64) - np.eye(3, dtype=np.int64))
+    kept = [as_graph(M) for _, M in single_edits(carbon, O, np.array([4]))]
+    assert kept and all(same(g, propane) for g in kept)
+    free = [as_graph(M) for _, M in single_edits(carbon, O, np.array([4]), fixed_total=False)]
+    classes = [next(i for i, ref in enumerate((propane, propene, cyclopropane)) if same(g, ref)) for g in free]
+    assert sorted(set(classes)) == [0, 1, 2]
+    for g in free:
+        assert nx.is_connected(g) and all(d <= 4 for _, d in g.degree(weight="label"))
+
+
+def test_expected_calibration_error_direct():
+    conf = np.array([0.05, 0.15, 0.95, 0.95])
+    hit = np.array([0, 1, 1, 0])
+    # bins [0, .1): |0 - .05| x 1/4; [.1, .2): |1 - .15| x 1/4; [.9, 1]: |.5 - .95| x 2/4
+    assert expected_calibration_error(conf, hit) == pytest.approx(0.05 / 4 + 0.85 / 4 + 0.45 / 2)
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "match"),
+    [
+        ({"top_k": 0}, "top_k must be an integer >= 1"),
+        ({"output_kernel": "cosine"}, "output_kernel must be one of"),
+        ({"n_rounds": -1}, "n_rounds must be an integer >= 0"),
+    ],
+)
+def test_errors(demo, kwargs, match):
+    model, X, _, _ = demo
+    with pytest.raises(ValueError, match=match):
+        model.predict_hypotheses(X[:1], **kwargs)
+
+
+def test_calibration_errors(demo, plain):
+    model, _, graphs, _ = demo
+    with pytest.raises(ValueError, match="hypothesis lists but 1 graphs"):
+        calibration_from(plain, graphs[:1], model.labels_)
+    with pytest.raises(ValueError, match="equal, non-zero length"):
+        expected_calibration_error([0.5], [1, 0])
