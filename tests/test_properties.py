@@ -555,6 +555,7 @@ def test_graph_reader_wrong_encoding(suffix: str, graphs: list[nx.Graph], encodi
 
 
 @pytest.mark.parametrize("suffix", GRAPH_SUFFIXES)
+@pytest.mark.filterwarnings("ignore:No key type for id")  # networkx reads a key without a type as text
 @PROPERTY
 @given(graphs=io_graph_lists, data=st.data())
 def test_graph_reader_one_byte_changed(suffix: str, graphs: list[nx.Graph], data: st.DataObject) -> None:

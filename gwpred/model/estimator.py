@@ -185,7 +185,7 @@ class BarycenterGraphPredictor(BaseEstimator):
     >>> def chain(n):
     ...     g = nx.path_graph(n); nx.set_node_attributes(g, "C", "label"); return g
     >>> X = np.arange(6.0).reshape(-1, 1); graphs = [chain(k + 2) for k in range(6)]
-    >>> model = BarycenterGraphPredictor(top_k=1).fit(X, graphs)
+    >>> model = BarycenterGraphPredictor(n_neighbors=1).fit(X, graphs)
     >>> model.predict([[2.0]])[0].number_of_nodes()
     4
     """
@@ -761,7 +761,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         >>> import networkx as nx, numpy as np
         >>> def chain(n):
         ...     g = nx.path_graph(n); nx.set_node_attributes(g, "C", "label"); return g
-        >>> model = BarycenterGraphPredictor(top_k=1).fit(np.arange(4.0).reshape(-1, 1), [chain(n + 2) for n in range(4)])
+        >>> model = BarycenterGraphPredictor(n_neighbors=1).fit(np.arange(4.0).reshape(-1, 1), [chain(n + 2) for n in range(4)])
         >>> [j for j, _ in model.rank([[1.0]], [chain(5), chain(3), chain(2)], top_k=2)[0]]
         [1, 0]
         """
