@@ -71,7 +71,10 @@ def exact_match(
     -----
     Counts, degree sequences and label multisets are compared first, then the
     Weisfeiler-Lehman hashes of networkx [1]_ (computed on string tokens of the labels, so
-    integer labels and missing edge labels work), and only then the VF2 isomorphism test.
+    integer labels and missing edge labels work), and only then the VF2 isomorphism test;
+    graphs of more than 50 nodes use colour refinement and individualisation instead
+    (see :mod:`gwpred.ged`), which stays well under a second on random graphs of thousands
+    of nodes where VF2 takes minutes.
 
     References
     ----------
@@ -269,8 +272,10 @@ def summarize(
     edge_label : hashable, default="label"
         Name of the edge attribute holding the categorical edge label.
     time_limit : float or None, default=None
-        Seconds per edit distance given to the integer program solver; see
-        :func:`edit_distance`.
+        Seconds per edit distance, for the whole call of :func:`edit_distance` (counted
+        from its start; reading the graphs adds a small size-proportional overhead). Pairs
+        of more than 1000 nodes in all get bounds only (``ged_proven`` is False unless they
+        meet); see "Large graphs" in its Notes.
     progress : bool, default=False
         Show a progress bar on standard error, ticking as pairs are scored.
     n_jobs : int, default=1

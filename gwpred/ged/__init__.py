@@ -7,7 +7,8 @@ one more edge type, ``None``.
 
 The graph edit distance is NP-hard. :func:`edit_distance` first tries cheap answers
 (label isomorphism, lower bound equal to upper bound) and only then solves a binary linear
-program with HiGHS; pass ``time_limit`` to bound the cost of a call.
+program with HiGHS; pass ``time_limit`` to bound the cost of a call. Pairs of more than
+1000 nodes in all get bounds only (see "Large graphs" in :func:`edit_distance`).
 :func:`edit_distance_bounds` returns only the cheap bounds.
 
 The solver proceeds by steps, cheapest first, each in its own module, and stops as soon
@@ -15,8 +16,11 @@ as a proven lower bound meets the cost of the best edit path found (see the Note
 :func:`edit_distance`):
 
 - ``_costs``: validated cost arguments, cost tables and cost unit, graphs in index form;
+- ``_colors``: joint colour refinement (Weisfeiler-Lehman) of both graphs;
 - ``_isomorphism``: label isomorphism (distance 0);
-- ``_bounds``: cheap lower bounds and the bipartite upper bound (linear sum assignments);
+- ``_anchor``: a node map grown from anchors along edges, for large graphs;
+- ``_bounds``: cheap lower bounds and the bipartite upper bound (linear sum assignments),
+  and bounds whose cost grows with n + m only, for large graphs;
 - ``_search``: cost of the edit path of a node map, and a local search over node maps;
 - ``_lagrangian``: a Lagrangian lower bound by star problems per node pair;
 - ``_programs``: the binary linear program, its linear relaxation and its solution;

@@ -82,13 +82,23 @@ class Costs:
     # (node_del, node_ins, node_sub, edge_del, edge_ins, edge_sub) when no cost depends on
     # the labels (closed forms apply), edge_sub at most edge_del + edge_ins; else None
     scalar: tuple[float, ...] | None
-    # The same costs per node, edge or pair of them, read from the tables through the codes.
-    node_sub: NDArray[np.float64]  # (n1, n2)
+    # The same costs per node or edge, read from the tables through the codes; the
+    # (n1, n2) and (m1, m2) matrices per pair are properties, built on first use only
+    # (large graphs never build them: 800 MB for two graphs of 10,000 edges).
     node_del: NDArray[np.float64]  # (n1,)
     node_ins: NDArray[np.float64]  # (n2,)
-    edge_sub: NDArray[np.float64]  # (m1, m2)
     edge_del: NDArray[np.float64]  # (m1,)
     edge_ins: NDArray[np.float64]  # (m2,)
+
+    @cached_property
+    def node_sub(self) -> NDArray[np.float64]:
+        """(n1, n2) node substitution costs (0 between equal labels)."""
+        return self.node_sub_t[self.node_a[:, None], self.node_b[None, :]]
+
+    @cached_property
+    def edge_sub(self) -> NDArray[np.float64]:
+        """(m1, m2) edge substitution costs (0 between equal labels)."""
+        return self.edge_sub_t[self.edge_a[:, None], self.edge_b[None, :]]
 
     @cached_property
     def unit(self) -> float | None:
@@ -284,10 +294,8 @@ def pair_costs(spec: _CostSpec, a: Labeled, b: Labeled) -> Costs:
     return Costs(
         ns, nd, ni, es, ed, ei, na, nb, ea, eb,
         scalar=scalar,
-        node_sub=ns[na[:, None], nb[None, :]],
         node_del=nd[na],
         node_ins=ni[nb],
-        edge_sub=es[ea[:, None], eb[None, :]],
         edge_del=ed[ea],
         edge_ins=ei[eb],
     )

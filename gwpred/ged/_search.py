@@ -16,7 +16,7 @@ from numpy.typing import NDArray
 
 from ._costs import Costs, Labeled, node_sub_matrix
 
-__all__ = ["Padded", "PathCost", "local_search", "padded"]
+__all__ = ["MAX_SEARCH_NODES", "Padded", "PathCost", "local_search", "padded"]
 
 
 # --------------------------------------------------------------------------- edit path cost
@@ -45,20 +45,36 @@ def _edge_codes(lab: Labeled, codes: NDArray[np.intp], size: int) -> NDArray[np.
     return m
 
 
+# Largest second graph (nodes) whose edges PathCost looks up in a dense (n2 + 1)**2 table
+# (8 MB at 1000 nodes); larger graphs use sorted edge keys, O(m2) memory.
+_DENSE_LOOKUP_NODES = 1000
+
+
 class PathCost:
     """Cost of the edit path induced by a node map (image or -1 per node of the first graph).
 
     Vectorised: the tables hold costs relative to inserting every node and edge of the
     second graph, and index -1 reads their last row and column, which stand for
-    "deleted". Built once per pair of graphs, then called for each map.
+    "deleted". Built once per pair of graphs, then called for each map. Second graphs of
+    more than ``_DENSE_LOOKUP_NODES`` nodes are read through the label tables and a
+    sorted array of edge keys instead (memory O(n + m), each call O(m1 log m2)).
     """
 
     def __init__(self, a: Labeled, b: Labeled, costs: Costs) -> None:
         n1, n2 = len(a.nodes), len(b.nodes)
-        self.node = np.empty((n1, n2 + 1))
-        self.node[:, :n2] = costs.node_sub - costs.node_ins[None, :]
-        self.node[:, n2] = costs.node_del
-        self.codes2 = _edge_codes(b, costs.edge_b, n2 + 1)
+        self.dense = n2 <= _DENSE_LOOKUP_NODES
+        if self.dense:
+            self.node = np.empty((n1, n2 + 1))
+            self.node[:, :n2] = costs.node_sub - costs.node_ins[None, :]
+            self.node[:, n2] = costs.node_del
+            self.codes2 = _edge_codes(b, costs.edge_b, n2 + 1)
+        else:
+            self.costs = costs
+            eb = np.asarray(b.edges, dtype=np.intp).reshape(-1, 2)
+            keys = eb[:, 0].astype(np.int64) * n2 + eb[:, 1]
+            order = np.argsort(keys)
+            self.keys2, self.hit2 = keys[order], costs.edge_b[order] + 1
+            self.n2 = n2
         ea = np.asarray(a.edges, dtype=np.intp).reshape(-1, 2)
         self.end0, self.end1 = ea[:, 0], ea[:, 1]
         self.codes1 = costs.edge_a + 1
@@ -68,10 +84,26 @@ class PathCost:
         self.base = float(costs.node_ins.sum() + costs.edge_ins.sum())
 
     def __call__(self, image: NDArray[np.intp]) -> float:
-        hit = self.codes2[image[self.end0], image[self.end1]]
-        return float(
-            self.base + self.node[self.rows, image].sum() + self.edge[self.codes1, hit].sum()
-        )
+        if self.dense:
+            hit = self.codes2[image[self.end0], image[self.end1]]
+            node = self.node[self.rows, image]
+        else:
+            c = self.costs
+            kept = image >= 0
+            to = c.node_b[image]  # masked below where image is -1
+            node = np.where(
+                kept, c.node_sub_t[c.node_a, to] - c.node_ins[image], c.node_del
+            )
+            p, q = image[self.end0], image[self.end1]
+            keys = np.minimum(p, q).astype(np.int64) * self.n2 + np.maximum(p, q)
+            at = np.minimum(np.searchsorted(self.keys2, keys), max(len(self.keys2) - 1, 0))
+            found = (p >= 0) & (q >= 0)
+            if len(self.keys2):
+                found &= self.keys2[at] == keys
+                hit = np.where(found, self.hit2[at], 0)
+            else:
+                hit = np.zeros(len(keys), dtype=np.intp)
+        return float(self.base + node.sum() + self.edge[self.codes1, hit].sum())
 
 
 # --------------------------------------------------------------------------- local search
@@ -93,8 +125,8 @@ class Padded:
     n2: int
 
 
-# Largest padded size for the local search: its work per step grows as N**3.
-_MAX_SEARCH_NODES = 150
+#: Largest padded size for the local search: its work per step grows as N**3.
+MAX_SEARCH_NODES = 150
 
 
 def padded(a: Labeled, b: Labeled, costs: Costs) -> Padded:
@@ -148,7 +180,7 @@ def _pairs(big_n: int) -> tuple[NDArray[np.intp], NDArray[np.intp]]:
 
 
 def local_search(
-    pad: Padded,
+    pad: Padded | None,
     image: NDArray[np.intp],
     max_steps: int = 200,
     deadline: float | None = None,
@@ -158,10 +190,13 @@ def local_search(
     The change of cost of every swap (a, b) is computed at once from
     ``q[i, x, c]``, the cost of the edge slot (i, x) when x is sent to c and i stays.
     With a ``deadline`` (a ``time.perf_counter()`` value) the search stops after the
-    step during which it passes, keeping the best map found so far.
+    step during which it passes, keeping the best map found so far. Without ``pad``
+    (graphs too large for it, see ``MAX_SEARCH_NODES``) the map is returned unchanged.
     """
+    if pad is None:
+        return image
     big_n = pad.n1 + pad.n2
-    if big_n < 2 or big_n > _MAX_SEARCH_NODES:
+    if big_n < 2 or big_n > MAX_SEARCH_NODES:
         return image
     perm = _to_perm(image, pad.n2)
     rows, cols = _pairs(big_n)

@@ -17,12 +17,12 @@ import networkx as nx
 import numpy as np
 from numpy.typing import NDArray
 
-from ._bounds import cheap_bounds, closed, label_bound, round_lower, stop_at
+from ._bounds import cheap_bounds, closed, label_bound, linear_bounds, round_lower, stop_at
 from ._costs import CostSpec, Costs, Labeled, check_costs, labeled, pair_costs
 from ._isomorphism import isomorphism
 from ._lagrangian import lagrangian, star_decomposition
-from ._programs import program, relaxation, solve_milp
-from ._search import PathCost, local_search, padded
+from ._programs import program, program_pairs, relaxation, solve_milp
+from ._search import MAX_SEARCH_NODES, PathCost, local_search, padded
 
 __all__ = ["EditDistance", "edit_distance", "edit_distance_bounds", "mapping_dict", "prepare"]
 
@@ -62,6 +62,33 @@ class EditDistance:
 _RESTARTS_FIRST = 0
 _RESTARTS_SECOND = 16
 
+# Size limits (see "Large graphs" in the Notes of edit_distance). The times are from one
+# 2-core machine; benchmarks/bench_ged_limits.py measures the whole calls.
+#: Most nodes (n1 + n2) for every step: above it the Lagrangian bound and the programs
+#: are skipped (the program alone would have n1 * n2 > 250,000 node variables), and the
+#: cheap bounds of linear_bounds come first.
+DENSE_NODES = 1000
+#: Most nodes (n1 + n2) for the cheap bounds' (n1 + n2)**2 assignments above DENSE_NODES
+#: (128 MB per matrix at 4000), when the time left allows them (see _dense_fits).
+MAX_DENSE_BOUND_NODES = 4000
+#: Seconds assumed for those assignments at 1000 nodes, growing as the cube of the size
+#: (their worst case): twice the 0.1 s measured on random graphs at 1000 nodes (0.5 s
+#: at 2050, 2.5 s at 4100: the cube over-estimates there, which is the safe side).
+_DENSE_SECONDS_AT_1000 = 0.2
+#: Most edge pairs (y variables / 2) of the binary program: building it takes about
+#: 1.8 s and 0.9 GB per million pairs before HiGHS starts, so larger programs are not built.
+MAX_PROGRAM_PAIRS = 500_000
+#: Seconds per program entry (n1 * n2 + edge pairs), about twice the measured ones, for
+#: building the program (0.6-1.3 microseconds) and for handing it to HiGHS and back
+#: (about 3 microseconds, outside HiGHS's own clock).
+_PROGRAM_BUILD_SECONDS = 2e-6
+_PROGRAM_HANDOFF_SECONDS = 6e-6
+#: Most nodes plus edges of one graph: the linear-size bounds take about 270 bytes per
+#: node or edge of both graphs (986 MB for two graphs of 600,000 nodes and 1.2 million
+#: edges, 19 s, mostly reading them), besides the networkx graphs themselves, which take
+#: several times that.
+MAX_GRAPH_ITEMS = 2_000_000
+
 
 def _check_time_limit(time_limit: float | None) -> float | None:
     if time_limit is None:
@@ -97,6 +124,17 @@ def prepare(
 ) -> tuple[Labeled, Labeled, Costs]:
     """Validate both graphs and the cost arguments; their index forms and cost tables."""
     spec = check_costs(**cost_kwargs)
+    for g, name in ((g1, "g1"), (g2, "g2")):
+        if isinstance(g, nx.Graph):
+            size = g.number_of_nodes() + g.number_of_edges()
+            if size > MAX_GRAPH_ITEMS:
+                raise ValueError(
+                    f"{name} has {g.number_of_nodes()} nodes and {g.number_of_edges()} edges "
+                    f"({size} in all); edit distances and bounds support at most "
+                    f"{MAX_GRAPH_ITEMS} nodes plus edges per graph (beyond that even the "
+                    "cheap bounds need more than 1 GB besides the graphs); compare smaller "
+                    "graphs, e.g. subgraphs or graphs coarsened by merging nodes"
+                )
     a = labeled(g1, "g1", node_label, edge_label)
     b = labeled(g2, "g2", node_label, edge_label)
     return a, b, pair_costs(spec, a, b)
@@ -143,7 +181,8 @@ def edit_distance_bounds(
         of the incident edge-label multiset cost, optimally assigned).
     upper : float
         Cost of the edit path induced by the bipartite node assignment of Riesen & Bunke [1]_
-        (node cost plus the full incident edge-label cost).
+        (node cost plus the full incident edge-label cost); above 150 nodes in all, or of
+        the anchored node map of :func:`edit_distance` if that is cheaper.
 
     Raises
     ------
@@ -152,7 +191,8 @@ def edit_distance_bounds(
         a cost is not a number, a mapping or a callable (or gives no number).
     ValueError
         If a node has no label, a graph has a self-loop, a cost is negative or not finite,
-        or a cost mapping has no entry for a label (pair) of the graphs.
+        a cost mapping has no entry for a label (pair) of the graphs, or a graph has more
+        than ``MAX_GRAPH_ITEMS`` (2,000,000) nodes plus edges.
 
     See Also
     --------
@@ -163,6 +203,11 @@ def edit_distance_bounds(
     Both bounds cost one or two linear sum assignments of size
     :math:`(n_1 + n_2) \times (n_1 + n_2)`. The branch bound is described in [2]_. When all
     costs are integers, the lower bound is rounded up to an integer.
+
+    Pairs of more than 1000 nodes in all first get the linear-size bounds of
+    :func:`edit_distance` (see "Large graphs" there), then, up to 4000 nodes, the bounds
+    above as well (the better of each is returned); larger pairs get the linear-size
+    bounds only. A graph of more than 2,000,000 nodes plus edges raises ValueError.
 
     References
     ----------
@@ -193,7 +238,10 @@ def edit_distance_bounds(
             edge_sub_cost=edge_sub_cost,
         ),
     )
-    lower, upper, _ = cheap_bounds(a, b, costs)
+    if len(a.nodes) + len(b.nodes) > DENSE_NODES:
+        lower, upper, _ = _large_bounds(a, b, costs, PathCost(a, b, costs), None)
+    else:
+        lower, upper, _ = cheap_bounds(a, b, costs)
     return float(lower), float(upper)
 
 
@@ -243,12 +291,14 @@ def edit_distance(
     edge_del_cost, edge_ins_cost, edge_sub_cost : float, mapping or callable, default=1.0
         The same for edges; an edge without the label attribute has label ``None``.
     time_limit : float or None, default=None
-        Seconds for the search steps (local searches, linear relaxation, integer
-        program), counted from the start of the call; the cheap steps before them (label
-        isomorphism test, bounds) always run, and each search step stops within about one
-        step of its own once the time is up. When time runs out the result has
-        ``exact=False`` and brackets the distance with ``lower`` and ``upper``. None means
-        no limit; the integer program may then take long on large unrelated graphs.
+        Seconds for the whole call, counted from its start. Steps look at the clock
+        between (and inside) their stages and skip what they cannot finish in the time
+        left; the rest is a fixed overhead that grows with the graphs: reading them
+        (1 to 5 microseconds per node or edge) and steps that cannot be interrupted
+        (under 0.3 s up to 1000 nodes in all, see "Large graphs" below). When time runs
+        out the result has ``exact=False`` and brackets the distance with ``lower`` and
+        ``upper``. None means no limit; the integer program may then take long on large
+        unrelated graphs, and large graphs still get bounds only.
 
     Returns
     -------
@@ -264,8 +314,9 @@ def edit_distance(
         ``time_limit`` is not a number.
     ValueError
         If a node has no label, a graph has a self-loop, a cost is negative or not finite,
-        a cost mapping has no entry for a label (pair) of the graphs, or ``time_limit`` is
-        not positive.
+        a cost mapping has no entry for a label (pair) of the graphs, ``time_limit`` is
+        not positive, or a graph has more than ``MAX_GRAPH_ITEMS`` (2,000,000) nodes plus
+        edges.
 
     See Also
     --------
@@ -318,6 +369,36 @@ def edit_distance(
     An edge substitution costs ``min(edge_sub_cost, edge_del_cost + edge_ins_cost)``, since
     an edit path may delete and re-insert an edge instead (networkx does the same).
 
+    **Large graphs.** The steps above need matrices of :math:`(n_1 + n_2)^2` entries, and
+    the program of step 4 has :math:`n_1 n_2` node variables and one edge variable pair per
+    pair of edges, so their time and memory grow much faster than the graphs. The limits,
+    with what happens beyond them:
+
+    - More than 1000 nodes in all (``DENSE_NODES``): steps 3-5 are skipped and the result
+      is a pair of bounds (``exact=False`` unless they meet). The lower bound is the label
+      multiset bound, with the edge part raised to a degree bound (each edge deletion or
+      insertion changes two degrees; sorted degree sequences pair at least cost); the
+      upper bound is the edit path of an anchored node map: nodes of equal colour after
+      three rounds of Weisfeiler-Lehman refinement [4]_ are paired, starting from colours
+      unique in both graphs and growing along the edges. Both take time and memory in
+      O((n + m) log(n + m)); on two 5000-node graphs about 0.15 s and 15 MB. Up to 4000
+      nodes in all, the bounds of step 2 are added when the time left allows their
+      assignments (estimated as 0.2 s at 1000 nodes, growing as the cube: 1.7 s at 2000).
+    - Label isomorphism of graphs of more than 50 nodes is tested by colour refinement and
+      individualisation (a candidate node map checked edge by edge) instead of VF2, which
+      took over 3 minutes on two copies of a 5000-node graph (0.1 s now); with a time
+      limit it gets half of it, the bounds the rest.
+    - Programs with more than 500,000 edge pairs (``MAX_PROGRAM_PAIRS``, about 0.5 GB to
+      build) are never built; with a time limit, a program is built only when building it
+      and handing it to HiGHS (measured at about 4 microseconds per entry, assumed 8) fit
+      in the time left.
+    - A graph of more than 2,000,000 nodes plus edges (``MAX_GRAPH_ITEMS``) is refused
+      with a ValueError: the linear-size bounds alone would need more than 1 GB (about
+      270 bytes per node or edge), besides the networkx graphs.
+
+    Graphs of up to 50 nodes each (sparse ones, such as molecules) are below every limit:
+    they take steps 1-5 as described.
+
     References
     ----------
     .. [1] J. Lerouge, Z. Abu-Aisheh, R. Raveaux, P. Héroux and S. Adam, "New binary linear
@@ -345,6 +426,8 @@ def edit_distance(
     >>> r.value, r.exact
     (1.0, True)
     """
+    time_limit = _check_time_limit(time_limit)
+    t0 = time.perf_counter()
     a, b, costs = prepare(
         g1,
         g2,
@@ -359,30 +442,32 @@ def edit_distance(
             edge_sub_cost=edge_sub_cost,
         ),
     )
-    time_limit = _check_time_limit(time_limit)
-    t0 = time.perf_counter()
-
     deadline = None if time_limit is None else t0 + time_limit
 
     def remaining() -> float | None:
         return None if deadline is None else deadline - time.perf_counter()
 
-    iso = isomorphism(a, b)
+    # Large graphs that look alike may need a long isomorphism search: it gets half of
+    # the time, the bounds the rest (graphs of up to SMALL_NODES nodes ignore it).
+    iso = isomorphism(a, b, None if time_limit is None else t0 + 0.5 * time_limit)
     if iso is not None:
         image = np.array([iso[i] for i in range(len(a.nodes))], dtype=np.intp)
         return EditDistance(0.0, 0.0, 0.0, True, mapping_dict(a, b, image))
 
     n1, n2 = len(a.nodes), len(b.nodes)
+    path_cost = PathCost(a, b, costs)
+    if n1 + n2 > DENSE_NODES:
+        return _result(*_large_bounds(a, b, costs, path_cost, deadline), a, b)
     # With a cost unit and small stars, the Lagrangian step replaces the cheap bounds: its
     # first step is a bound of the same kind, and it goes on from there.
     stars = star_decomposition(a, b, costs) if costs.unit is not None else None
-    path_cost = PathCost(a, b, costs)
     if stars is None:
-        lower, upper, image = cheap_bounds(a, b, costs, path_cost)
+        lower, upper, image = cheap_bounds(a, b, costs, path_cost, deadline)
     else:
         lower, upper, image = round_lower(label_bound(a, b, costs), costs, False), math.inf, None
     if stars is not None or not closed(lower, upper):
-        pad = padded(a, b, costs)
+        # the local search's padded graphs only where it runs (3 (n1 + n2)**2 entries)
+        pad = padded(a, b, costs) if n1 + n2 <= MAX_SEARCH_NODES else None
 
         def consider(candidate: NDArray[np.intp] | None) -> None:
             nonlocal upper, image
@@ -411,9 +496,12 @@ def edit_distance(
         else:
             consider(image)
         restarts(_RESTARTS_FIRST)
-        if not closed(lower, upper):
+        entries = _program_entries(a, b, costs)
+        if not closed(lower, upper) and entries is not None and _program_fits(entries, remaining()):
             prog = program(a, b, costs)
             left = remaining()
+            if left is not None:
+                left -= entries * _PROGRAM_HANDOFF_SECONDS  # spent outside HiGHS's clock
             lp_seconds = 0.0
             if left is None or left > 0:
                 started = time.perf_counter()
@@ -427,8 +515,8 @@ def edit_distance(
                 # HiGHS checks its clock between the steps of the integer program, and its
                 # first step re-solves the relaxation: keep 1.5 times the time of one
                 # relaxation in reserve (overruns of up to 1.15 times it were measured on
-                # 25-35-node graphs).
-                left -= 1.5 * lp_seconds
+                # 25-35-node graphs), and the hand-off time.
+                left -= 1.5 * lp_seconds + entries * _PROGRAM_HANDOFF_SECONDS
             if not closed(lower, upper) and (left is None or left > 0):
                 outcome = solve_milp(prog, n1, n2, costs, upper, left)
                 if outcome.image is not None:
@@ -440,6 +528,54 @@ def edit_distance(
                     if cost <= outcome.optimal + 1e-6 * max(1.0, abs(outcome.optimal)):
                         lower = upper
                 lower = max(lower, round_lower(outcome.lower, costs))
+    return _result(lower, upper, image, a, b)
+
+
+def _large_bounds(
+    a: Labeled, b: Labeled, costs: Costs, path_cost: PathCost, deadline: float | None
+) -> tuple[float, float, NDArray[np.intp]]:
+    """Bounds of a pair of more than ``DENSE_NODES`` nodes, and the best node map found.
+
+    The linear-size bounds first; then, when they do not meet and the pair is small
+    enough for the time left (see :func:`_dense_fits`), the cheap bounds as well.
+    """
+    lower, upper, image = linear_bounds(a, b, costs, path_cost, deadline)
+    left = None if deadline is None else deadline - time.perf_counter()
+    if not closed(lower, upper) and _dense_fits(len(a.nodes) + len(b.nodes), left):
+        low, up, other = cheap_bounds(a, b, costs, path_cost, deadline, anchor=image)
+        lower = max(lower, low)
+        if up < upper:
+            upper, image = up, other
+    return lower, upper, image
+
+
+def _dense_fits(nodes: int, left: float | None) -> bool:
+    """Whether the cheap bounds' assignments of ``nodes`` (n1 + n2) nodes fit memory and time."""
+    if nodes > MAX_DENSE_BOUND_NODES:
+        return False
+    return left is None or _DENSE_SECONDS_AT_1000 * (nodes / 1000) ** 3 <= left
+
+
+def _program_entries(a: Labeled, b: Labeled, costs: Costs) -> int | None:
+    """n1 * n2 + edge pairs of the binary program, or None above ``MAX_PROGRAM_PAIRS`` pairs."""
+    pairs = program_pairs(a, b, costs)
+    return None if pairs > MAX_PROGRAM_PAIRS else len(a.nodes) * len(b.nodes) + pairs
+
+
+def _program_fits(entries: int, left: float | None) -> bool:
+    """Whether to build the binary program: it fits memory and, likely, the time left.
+
+    With a time limit, building it and handing it to HiGHS and back must take (at the
+    per-entry times above) less than the time left.
+    """
+    setup = entries * (_PROGRAM_BUILD_SECONDS + _PROGRAM_HANDOFF_SECONDS)
+    return left is None or setup < left
+
+
+def _result(
+    lower: float, upper: float, image: NDArray[np.intp] | None, a: Labeled, b: Labeled
+) -> EditDistance:
+    """The EditDistance of the bounds and the best node map found."""
     exact = closed(lower, upper)
     lower = upper if exact else min(lower, upper)
     return EditDistance(
