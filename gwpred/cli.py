@@ -314,8 +314,9 @@ def cmd_predict(args: argparse.Namespace) -> int:
     if out.suffix.lower() in MOLECULE_EXTENSIONS and not model.valence_:
         # the file format never changes the prediction: refuse rather than decode differently
         raise UsageError(f"--out {args.out}: molecule files hold valid molecules only, but {args.model} decodes "
-                         "without valence rules (fitted with --valence off, or its labels are not element "
-                         "symbols and bond orders); write .jsonl or .graphml, or refit with --valence auto")
+                         "without valence rules (fitted with --valence off, as every model saved before gwpred 0.2 "
+                         "is, or its labels are not element symbols and bond orders); write .jsonl or .graphml, "
+                         "or refit with --valence auto")
     graphs = model.predict(X, formulas=formulas)
     for r, g in enumerate(graphs):
         if ids is not None:
