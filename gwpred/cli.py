@@ -379,6 +379,7 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
 def _item_columns(pred: list, true: list, node_label: str, edge_label: str | None) -> list[dict[str, str]]:
     """Per pair: the sample id, and for molecules the formulas and SMILES of both graphs."""
     from ._utils import has_extra
+    from .chem import graph_to_smiles  # RDKit itself is imported only when a SMILES is made
     from .formula import ELEMENTS, graph_formula
 
     molecular = edge_label is not None and all(
@@ -394,8 +395,6 @@ def _item_columns(pred: list, true: list, node_label: str, edge_label: str | Non
                 row[f"formula_{name}"] = graph_formula(g, node_label=node_label, edge_label=edge_label,
                                                        hydrogens=False) + " (invalid)"
         for name, g in (("predicted", p), ("true", t)) if smiles else ():
-            from .chem import graph_to_smiles
-
             try:
                 row[f"smiles_{name}"] = graph_to_smiles(g, node_label=node_label, edge_label=edge_label)
             except (ValueError, TypeError):
