@@ -36,6 +36,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import ot
+from scipy.optimize import linear_sum_assignment
 from numpy.typing import ArrayLike, NDArray
 
 __all__ = [
@@ -52,6 +53,9 @@ __all__ = [
 ]
 
 Array = NDArray[np.float64]
+
+#: Solvers of the barycenters' transport steps (see ``fgw_barycenter``).
+TRANSPORTS = ("assignment", "simplex")
 
 try:  # the C network simplex behind ``ot.emd``, without its per-call overhead
     from ot.lp.emd_wrap import emd_c as _emd_c
@@ -270,12 +274,14 @@ def _cg_batch(
     tol_rel: float,
     tol_abs: float,
     sizes: NDArray[np.int64] | None = None,
+    transport: str = "simplex",
 ) -> tuple[Array, Array, NDArray[np.int64], NDArray[np.bool_]]:
     r"""Conditional gradient for S FGW problems sharing the first graph.
 
     Shapes: ``M (S, n, m)``, ``C1 (n, n)`` shared or ``(S, n, n)`` one per
     problem, ``C2 (S, m, m)``, ``p (n,)``, ``q (S, m)``, ``G (S, n, m)``; graph
-    ``s`` uses its first ``sizes[s]`` columns (the rest have zero mass).
+    ``s`` uses its first ``sizes[s]`` columns (the rest have zero mass); ``transport``
+    as in :func:`fgw_barycenter`.
     Returns plans, objective values, iteration counts and convergence flags.
 
     With :math:`L(G) = c - 2 C_1 G C_2` (``c`` the marginal term of the square
@@ -311,17 +317,34 @@ def _cg_batch(
         for j, s in enumerate(rows.tolist()):
             qs_bal[s] = block[j]
     lp = _emd_c if _emd_c is not None else _emd_plan
+    # square problems with uniform masses on both sides: the LP's vertices are
+    # permutations (Birkhoff), solved as assignments when asked
+    assign = [False] * S
+    if transport == "assignment" and bool(np.all(p == p[0])) and n in ks:
+        rows = np.flatnonzero(sizes == n)
+        square = np.all(q[rows, :n] == p[0], axis=1)  # uniform second marginal, already balanced
+        for s in rows[square].tolist():
+            assign[s] = True
+    rows_n = np.arange(n)
     every = True  # all problems still active: plain views instead of fancy-index copies
     while active.size:
         sel = slice(None) if every else active
         # gradient (1-a) M + 2a (constC - 2 C1 G C2); one exact LP per problem
         grad = linM[sel] + alpha * (2.0 * (constC[sel] - CGC[sel]))
-        for j, s in enumerate(active.tolist()):
+        act = active.tolist()
+        perm_rows, perms = [], []
+        for j, s in enumerate(act):
             k = ks[s]
-            if k == m:  # the common case: no padding, a plain row of the stack
+            if assign[s]:  # an assignment: only the permutation is kept, written below at once
+                perm_rows.append(s)
+                perms.append(linear_sum_assignment(grad[j, :, :k])[1])
+            elif k == m:  # the common case: no padding, a plain row of the stack
                 target[s] = lp(p, qs_bal[s], grad[j], 100_000, 1, None, None)[0]
             else:
                 target[s, :, :k] = lp(p, qs_bal[s], np.ascontiguousarray(grad[j, :, :k]), 100_000, 1, None, None)[0]
+        if perm_rows:
+            target[perm_rows] = 0.0
+            target[np.asarray(perm_rows)[:, None], rows_n, np.asarray(perms)] = p
         Ga = G[sel]
         dG = target[sel] - Ga
         dC = (C1[sel] if stacked else C1) @ dG @ twoC2[sel]
@@ -457,6 +480,7 @@ def fgw_barycenter(
     fixed_structure: bool = False,
     init_from: int | None = None,
     restarts: int = 2,
+    transport: str = "assignment",
 ) -> BarycenterResult:
     r"""FGW barycenter of weighted graphs with fixed size and node masses.
 
@@ -525,6 +549,15 @@ def fgw_barycenter(
         better.  Twice the work in those iterations; it escapes local minima
         (lower objective), while warm starts alone keep the barycenter close
         to where it started.
+    transport : {"assignment", "simplex"}, default="assignment"
+        Solver of each step's exact transport problem.  ``simplex``: POT's
+        network simplex (``ot.emd``) for every problem.  ``assignment``: a
+        square problem with uniform masses on both sides (a barycenter and an
+        input graph of its size, the common case) has an optimal plan that is
+        a scaled permutation (Birkhoff), found by scipy's
+        ``linear_sum_assignment`` in about a quarter of the time; other
+        problems use the network simplex.  Both return optimal plans; they
+        differ only in which of several optimal plans they pick (ties).
 
     Returns
     -------
@@ -587,7 +620,7 @@ def fgw_barycenter(
     batch = _barycenters(
         Cs, Fs, qs, sizes, np.zeros(S, dtype=np.int64), w, C[None], F[None], h, T,
         np.array([-1 if init_from is None else init_from]), alpha, max_outer, tol_outer, max_inner,
-        tol_inner, fixed_features, fixed_structure, int(restarts),
+        tol_inner, fixed_features, fixed_structure, int(restarts), _check_transport(transport),
     )
     history = [float(v) for v in batch.history[: batch.n_outer[0], 0]]
     return BarycenterResult(
@@ -652,6 +685,7 @@ def _barycenters(
     fixed_features: bool,
     fixed_structure: bool,
     restarts: int,
+    transport: str,
 ) -> BatchResult:
     """Outer loop of :func:`fgw_barycenter` for many barycenters at once (inputs checked)."""
     Q, n = C.shape[0], C.shape[1]
@@ -675,11 +709,12 @@ def _barycenters(
         starts = _segments(own)
         qsel = own[starts]
         Ts, values, _, _ = _cg_batch(
-            M[sel], C[own], Cs[sel], h, qs[sel], T[sel], alpha, max_inner, tol_inner, 0.0, sizes[sel]
+            M[sel], C[own], Cs[sel], h, qs[sel], T[sel], alpha, max_inner, tol_inner, 0.0, sizes[sel], transport
         )
         if 1 < it <= 1 + restarts:  # also solve from the product plan; keep the better
             T2, values2, _, _ = _cg_batch(
-                M[sel], C[own], Cs[sel], h, qs[sel], product[sel], alpha, max_inner, tol_inner, 0.0, sizes[sel]
+                M[sel], C[own], Cs[sel], h, qs[sel], product[sel], alpha, max_inner, tol_inner, 0.0, sizes[sel],
+                transport,
             )
             better = values2 < values
             Ts[better], values[better] = T2[better], values2[better]
@@ -723,6 +758,7 @@ def fgw_barycenter_batch(
     fixed_features: bool = False,
     fixed_structure: bool = False,
     restarts: int = 2,
+    transport: str = "assignment",
 ) -> BatchResult:
     r"""Many FGW barycenters of one size at once, each of its own weighted input graphs.
 
@@ -753,7 +789,7 @@ def fgw_barycenter_batch(
     sizes : array-like of int, shape (P,), default=None
         Real nodes of each input graph (its first ones); None counts the
         non-zero masses.
-    alpha, max_outer, tol_outer, max_inner, tol_inner, fixed_features, fixed_structure, restarts
+    alpha, max_outer, tol_outer, max_inner, tol_inner, fixed_features, fixed_structure, restarts, transport
         As in :func:`fgw_barycenter`.
     init_plans : {"product", "features"}, default="product"
         First plans, as in :func:`fgw_barycenter`.
@@ -846,8 +882,14 @@ def fgw_barycenter_batch(
         T = h[None, :, None] * qs[:, None, :]
     return _barycenters(
         Cs, Fs, qs, k, own, w, C, F, h, T, start, alpha, int(max_outer), tol_outer, int(max_inner),
-        tol_inner, fixed_features, fixed_structure, int(restarts),
+        tol_inner, fixed_features, fixed_structure, int(restarts), _check_transport(transport),
     )
+
+
+def _check_transport(transport: str) -> str:
+    if transport not in TRANSPORTS:
+        raise ValueError(f"transport must be one of {list(TRANSPORTS)}; got {transport!r}.")
+    return transport
 
 
 def _initial_plans(

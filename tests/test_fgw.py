@@ -27,6 +27,7 @@ import networkx as nx
 import numpy as np
 import ot
 import pytest
+from scipy.optimize import linear_sum_assignment
 
 from gwpred.datasets import load_demo
 from gwpred.fgw import (
@@ -837,3 +838,59 @@ def test_batch_errors(change, match):
     kwargs.update(change)
     with pytest.raises(ValueError, match=match):
         fgw_barycenter_batch(**kwargs)
+
+
+# --------------------------------------------------------------------------
+# transport="assignment": square uniform steps solved by scipy's assignment solver
+# --------------------------------------------------------------------------
+def test_assignment_steps_are_optimal_transport_plans(qm9_graphs):
+    # Reference: POT's exact transport value ot.emd2 on the same linearised cost. A square
+    # problem with uniform masses has a permutation among its optimal plans (Birkhoff-von
+    # Neumann theorem, textbook linear programming), so scipy's assignment must reach emd2's
+    # value, ties included: QM9 structures give many equal costs.
+    rng = np.random.default_rng(5)
+    checked = 0
+    for _ in range(60):
+        a, b = rng.choice(len(qm9_graphs), 2, replace=False)
+        (C1, F1), (C2, F2) = _graph_arrays(qm9_graphs[a]), _graph_arrays(qm9_graphs[b])
+        if len(C1) != len(C2):
+            continue
+        n = len(C1)
+        p = np.full(n, 1.0 / n)
+        M = feature_costs(F1, F2)
+        G0 = ot.emd(p, p, rng.random((n, n)))  # a permutation plan, as warm starts often are
+        constC = ot.gromov.init_matrix(C1, C2, p, p, "square_loss")[0]
+        grad = 0.1 * M + 1.8 * (constC - 2.0 * C1 @ G0 @ C2)  # the solver's gradient at alpha 0.9
+        rows, cols = linear_sum_assignment(grad)
+        assert grad[rows, cols].sum() / n == pytest.approx(ot.emd2(p, p, grad), abs=1e-12)
+        # the whole solve: a coupling whose objective, evaluated by POT, is the value returned
+        T, value, _, _ = _cg_batch(M[None], C1, C2[None], p, p[None], G0[None], 0.9, 100, 1e-9, 0.0,
+                                   None, "assignment")
+        _assert_marginals(T[0], p, p)
+        assert _pot_objective_at(M, C1, C2, p, p, 0.9, T[0]) == pytest.approx(float(value[0]), abs=1e-12)
+        checked += 1
+    assert checked >= 5
+
+
+@pytest.mark.parametrize("alpha", [0.5, 0.9])
+def test_assignment_and_simplex_barycenters_agree_without_ties(alpha):
+    # Reference: the network-simplex path (POT's ot.emd for every step). With continuous random
+    # structures and features, ties between transport plans have probability zero, so both
+    # solvers take the same steps and the barycenters agree to rounding.
+    rng = np.random.default_rng(17)
+    for _ in range(5):
+        n = int(rng.integers(3, 9))
+        Cs = [_structure(rng, n, "weighted") for _ in range(4)]
+        Fs = [_features(rng, n, "normal") for _ in range(4)]
+        w = rng.dirichlet(np.ones(4))
+        a = fgw_barycenter(Cs, Fs, w, Cs[0], Fs[0], alpha=alpha, transport="assignment")
+        b = fgw_barycenter(Cs, Fs, w, Cs[0], Fs[0], alpha=alpha, transport="simplex")
+        np.testing.assert_allclose(a.structure, b.structure, atol=1e-9)
+        np.testing.assert_allclose(a.features, b.features, atol=1e-9)
+        assert a.objective == pytest.approx(b.objective, abs=1e-10)
+
+
+def test_unknown_transport_is_refused():
+    C = np.array([[0.0, 1.0], [1.0, 0.0]])
+    with pytest.raises(ValueError, match=r"transport must be one of \['assignment', 'simplex'\]"):
+        fgw_barycenter([C], [np.eye(2)], [1.0], C, np.eye(2), transport="hungarian")
