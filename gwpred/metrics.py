@@ -29,6 +29,7 @@ __all__ = [
     "edit_distance",
     "edit_distance_bounds",
     "exact_match",
+    "expected_calibration_error",
     "hit_rank",
     "summarize",
 ]
@@ -418,3 +419,39 @@ def summarize(
         }
     summary["items"] = items
     return summary
+
+
+def expected_calibration_error(confidence: ArrayLike, hit: ArrayLike, n_bins: int = 10) -> float:
+    """Expected calibration error: sum over equal-width confidence bins of |rate - mean confidence| x share.
+
+    The usual reliability measure of probabilistic classifiers (Naeini et al.,
+    AAAI 2015; Guo et al., ICML 2017), here for "this graph is the true one".
+
+    Parameters
+    ----------
+    confidence : array-like of shape (m,)
+        Values in ``[0, 1]``.
+    hit : array-like of shape (m,)
+        1 where the hypothesis was right.
+    n_bins : int, default=10
+
+    Returns
+    -------
+    float
+
+    Examples
+    --------
+    >>> expected_calibration_error([0.9, 0.9, 0.1, 0.1], [1, 1, 0, 0])
+    0.1
+    """
+    c = np.asarray(confidence, dtype=np.float64)
+    y = np.asarray(hit, dtype=np.float64)
+    if c.shape != y.shape or c.ndim != 1 or c.size == 0:
+        raise ValueError(f"confidence and hit must be 1-d of equal, non-zero length; got {c.shape} and {y.shape}.")
+    bins = np.minimum((c * n_bins).astype(np.int64), n_bins - 1)
+    err = 0.0
+    for b in np.unique(bins):
+        m = bins == b
+        err += m.mean() * abs(y[m].mean() - c[m].mean())
+    return float(round(err, 12))
+

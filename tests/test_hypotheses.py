@@ -17,6 +17,7 @@ Outside references used here:
 
 from __future__ import annotations
 
+import copy
 import itertools
 import warnings
 
@@ -29,12 +30,16 @@ from sklearn.isotonic import IsotonicRegression
 from gwpred import BarycenterGraphPredictor
 from gwpred.chem import graph_to_smiles
 from gwpred.datasets import load_demo
+from gwpred.io import load_archive, save_archive
+from gwpred.model import load_model, save_model
 from gwpred.model.hypotheses import (
     HypothesisList,
     calibrate_hypotheses,
     calibration_from,
     expected_calibration_error,
+    list_features,
     single_edits,
+    within_one,
 )
 
 Chem = pytest.importorskip("rdkit.Chem")
@@ -118,17 +123,92 @@ def test_calibration_monotone_and_isotonic(demo):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UserWarning)
         lists = model.predict_hypotheses(X[QUERIES], top_k=5, formulas=formulas[QUERIES], n_rounds=1, calibration=cal)
-    pairs = sorted((h.score, h.confidence) for hyps in lists for h in hyps)
-    conf = np.array([c for _, c in pairs])
-    assert np.all((conf >= 0) & (conf <= 1)) and np.all(np.diff(conf) >= -1e-12)
     assert all(hyps.calibrated for hyps in lists)
+    for hyps in lists:  # down a list, confidences never rise; "within GED 1" is at least "exact"
+        conf = np.array([h.confidence for h in hyps])
+        near = np.array([h.confidence_near for h in hyps])
+        assert np.all((conf >= 0) & (conf <= 1) & (near <= 1)) and np.all(near >= conf)
+        assert np.all(np.diff(conf) <= 1e-12) and np.all(np.diff(near) <= 1e-12)
+    # monotone in the score it calibrates, u = score + margin_weight * margin
+    u = np.concatenate([list_features([h.score for h in hyps]) @ [1.0, cal.margin_weight] for hyps in lists])
+    conf = np.array([h.confidence for hyps in lists for h in hyps])
+    assert np.all(np.diff(conf[np.argsort(u, kind="stable")]) >= -1e-12)
     # scikit-learn's IsotonicRegression on the same held-out hypotheses gives the same map
-    held = model.predict_hypotheses(X[HELD_OUT], top_k=5, formulas=formulas[HELD_OUT], n_rounds=1)
-    s = np.array([h.score for hyps in held for h in hyps])
+    held = model.predict_hypotheses(X[HELD_OUT], top_k=5, formulas=formulas[HELD_OUT], n_rounds=1, calibration=False)
+    u_held = np.concatenate([list_features([h.score for h in hyps]) @ [1.0, cal.margin_weight] for hyps in held])
     y = np.array([same(h.graph, t) for hyps, t in zip(held, graphs[HELD_OUT]) for h in hyps], dtype=float)
-    iso = IsotonicRegression(y_min=0, y_max=1, out_of_bounds="clip").fit(s, y)
-    probe = np.array([score for score, _ in pairs])
-    np.testing.assert_allclose(cal(probe), iso.predict(probe), atol=1e-12)
+    iso = IsotonicRegression(y_min=0, y_max=1, out_of_bounds="clip").fit(u_held, y)
+    np.testing.assert_allclose(conf, iso.predict(u), atol=1e-12)
+    assert cal.n_inputs == 16 and cal.options["formulas"] is True
+
+
+def test_within_one_matches_networkx(demo, with_formula):
+    # Reference: networkx graph_edit_distance with upper_bound=1 (None when no edit path of
+    # cost <= 1 exists), uniform costs, labels compared by the categorical matchers
+    model, _, graphs, _ = demo
+    pairs = [(h.graph, t) for hyps, t in zip(with_formula, graphs[QUERIES]) for h in hyps]
+    t = graphs[0]
+    pairs += [(t, t)]
+    for u, v in list(t.edges)[:3]:  # one bond removed, one bond order changed: distance 1
+        g = t.copy()
+        g.remove_edge(u, v)
+        pairs.append((g, t))
+        h = t.copy()
+        h.edges[u, v]["label"] = 2 if h.edges[u, v]["label"] == 1 else 1
+        pairs.append((h, t))
+    near = 0
+    for g, truth in pairs:
+        ref = nx.graph_edit_distance(g, truth, node_match=categorical_node_match("label", None),
+                                     edge_match=categorical_edge_match("label", None), upper_bound=1)
+        assert within_one(g, truth, model.labels_) == (ref is not None)
+        near += ref is not None
+    assert 4 <= near < len(pairs)
+
+
+def test_model_calibrate_save_and_load(demo, tmp_path):
+    model, X, graphs, formulas = demo
+    model = copy.deepcopy(model)  # the module's fixture stays uncalibrated
+    model.calibrate(X[HELD_OUT], graphs[HELD_OUT], top_k=5, n_rounds=1)
+    assert set(model.hypothesis_calibration_) == {"plain", "formula"}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        mixed = [formulas[600], None]
+        lists = model.predict_hypotheses(X[600:602], top_k=5, formulas=mixed, n_rounds=1)
+        raw = model.predict_hypotheses(X[600:602], top_k=5, formulas=mixed, n_rounds=1, calibration=False)
+    assert all(h.calibrated for h in lists) and not any(h.calibrated for h in raw)
+    # each input uses the map of its own case: with a formula, or without
+    for hyps, case in zip(lists, ("formula", "plain")):
+        expected = model.hypothesis_calibration_[case]([h.score for h in hyps])
+        np.testing.assert_array_equal([h.confidence for h in hyps], expected)
+    path = tmp_path / "m.npz"
+    save_model(model, path)
+    back = load_model(path)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        again = back.predict_hypotheses(X[600:602], top_k=5, formulas=mixed, n_rounds=1)
+    for a, b in zip(lists, again):
+        assert [(h.score, h.confidence, h.confidence_near) for h in a] == [
+            (h.score, h.confidence, h.confidence_near) for h in b]
+    # a damaged calibration is refused with the file named, never used
+    arrays, manifest = load_archive(path)
+    manifest["hypothesis_calibration"]["plain"]["probabilities"][0] = 1.5
+    save_archive(tmp_path / "bad.npz", arrays, manifest)
+    with pytest.raises(ValueError, match=r"bad\.npz.*rates be non-decreasing in \[0, 1\]"):
+        load_model(tmp_path / "bad.npz")
+    # refitting drops a calibration made for the old training set
+    model.fit(X[:50], graphs[:50])
+    assert not hasattr(model, "hypothesis_calibration_")
+
+
+def test_fit_with_calibration_share(demo):
+    _, X, graphs, _ = demo
+    model = BarycenterGraphPredictor(random_state=0).fit(X[:120], graphs[:120], calibration_share=0.1)
+    assert set(model.hypothesis_calibration_) == {"plain", "formula"}
+    assert model.hypothesis_calibration_["plain"].n_inputs == 12 and model.n_train_ == 120
+    with pytest.raises(ValueError, match=r"calibration_share must be a number in \[0, 0.5\]"):
+        BarycenterGraphPredictor().fit(X[:20], graphs[:20], calibration_share=0.7)
+    with pytest.raises(ValueError, match="hold out at least 2"):
+        BarycenterGraphPredictor().fit(X[:10], graphs[:10], calibration_share=0.05)
 
 
 def test_k_larger_than_pool_returns_fewer_with_a_note(demo):

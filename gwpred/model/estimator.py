@@ -15,7 +15,7 @@ from typing import Any
 import networkx as nx
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from sklearn.base import BaseEstimator
+from sklearn.base import BaseEstimator, clone
 from sklearn.utils import check_random_state
 from sklearn.utils.validation import check_is_fitted
 
@@ -25,7 +25,7 @@ from ..ged import edit_distance
 from ..parallel import N_JOBS_RULE, batch_slices, parallel_map
 from ..ranking import rank_candidates
 from ..weights import KERNELS, KernelRidgeWeights, LocalRidgeWeights
-from .hypotheses import HypothesisCalibration, HypothesisList, generate_hypotheses
+from .hypotheses import HypothesisCalibration, HypothesisList, calibrate_cases, generate_hypotheses
 from .steps import (
     DECODERS,
     Settings,
@@ -273,7 +273,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         self.top_k = top_k
 
     # ----------------------------------------------------------------- fit
-    def fit(self, X: ArrayLike, y: list[nx.Graph]) -> BarycenterGraphPredictor:
+    def fit(self, X: ArrayLike, y: list[nx.Graph], *, calibration_share: float = 0.0) -> BarycenterGraphPredictor:
         """Learn label categories, encode the training graphs and fit the weights.
 
         Parameters
@@ -290,6 +290,15 @@ class BarycenterGraphPredictor(BaseEstimator):
             files and ``gwpred fit`` set it), the ids are kept as
             ``training_ids_`` (saved with the model; reports name the training
             graphs a prediction leaned on by them).
+        calibration_share : float, default=0.0
+            When in ``(0, 0.5]``, also calibrate the confidences of
+            :meth:`predict_hypotheses`: that share of the training pairs
+            (drawn with ``random_state``) is held out, a copy of the model is
+            fitted on the rest and calibrated on them (:meth:`calibrate`), then the model
+            is fitted on all pairs and keeps that calibration.  The held-out
+            copy is a little weaker than the final model, so confidences lean
+            low.  Costs one :meth:`predict_hypotheses` call per held-out pair,
+            twice for molecules (with and without formulas).
 
         Returns
         -------
@@ -299,7 +308,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         Raises
         ------
         ValueError
-            For invalid parameters, non-finite inputs, mismatched lengths,
+            For a ``calibration_share`` outside ``[0, 0.5]`` or leaving fewer
+            than 2 pairs on either side; for invalid parameters, non-finite inputs, mismatched lengths,
             empty graphs, self-loops or unlabeled nodes; for
             ``weight_model="local"`` with ``kernel="precomputed"``; for a dense
             solve whose (n, n) kernel and factor would exceed half the
@@ -320,10 +330,31 @@ class BarycenterGraphPredictor(BaseEstimator):
                 f"X has {X.shape[0]} rows but {len(graphs)} graphs were given; "
                 "pass one graph per input row."
             )
+        share = calibration_share
+        if isinstance(share, bool) or not isinstance(share, (int, float, np.floating)) or not 0.0 <= share <= 0.5:
+            raise ValueError(f"calibration_share must be a number in [0, 0.5]; got {share!r}.")
         labels = LabelSpace(self.node_label, self.edge_label, handle_unknown=self.handle_unknown).fit(graphs)
         ids = [g.graph.get("id") if isinstance(g, nx.Graph) else None for g in graphs]
         training_ids = [str(i) for i in ids] if all(i is not None for i in ids) else None
-        return self.fit_encoded(X, TrainingSet.encode(graphs, labels), training_ids=training_ids)
+        calibration = self._held_out_calibration(X, graphs, float(share)) if share > 0 else None
+        self.fit_encoded(X, TrainingSet.encode(graphs, labels), training_ids=training_ids)
+        if calibration is not None:
+            self.hypothesis_calibration_ = calibration
+        return self
+
+    def _held_out_calibration(self, X: Any, graphs: list[nx.Graph], share: float) -> dict:
+        """``fit(calibration_share=share)``: calibrate a copy fitted without a held-out share."""
+        n = len(graphs)
+        n_val = int(round(share * n))
+        if n_val < 2 or n - n_val < 2:
+            raise ValueError(
+                f"calibration_share={share} of {n} training pairs holds out {n_val}; hold out at least 2 and "
+                "keep at least 2 (a larger share or more pairs)."
+            )
+        val = np.sort(check_random_state(self.random_state).permutation(n)[:n_val])
+        rest = np.setdiff1d(np.arange(n), val)
+        part = clone(self).fit(X[rest], [graphs[i] for i in rest.tolist()])
+        return part.calibrate(X[val], [graphs[i] for i in val.tolist()]).hypothesis_calibration_
 
     def fit_encoded(
         self,
@@ -368,6 +399,7 @@ class BarycenterGraphPredictor(BaseEstimator):
             )
         weight_model = self._resolve_weight_model(X.shape[0])
         self.training_ = training
+        self.__dict__.pop("hypothesis_calibration_", None)  # made for the previous training set
         self.training_ids_ = None if training_ids is None else [str(i) for i in training_ids]
         self.labels_ = training.labels
         self.sizes_ = training.sizes
@@ -570,7 +602,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         top_k: int = 10,
         formulas: Any = None,
         *,
-        calibration: HypothesisCalibration | None = None,
+        calibration: HypothesisCalibration | bool | None = None,
         output_kernel: str = "auto",
         n_anchors: int = 3,
         n_expand: int = 3,
@@ -594,10 +626,16 @@ class BarycenterGraphPredictor(BaseEstimator):
         formulas : list of (str or None), default=None
             As in :meth:`predict`: every hypothesis then has the formula's
             heavy atoms (and hydrogens when given).
-        calibration : HypothesisCalibration, optional
-            From :func:`gwpred.model.hypotheses.calibrate_hypotheses` on held-out
-            inputs: confidences become exact-match probabilities.  Without
-            it, confidence is the raw score (``calibrated=False`` on each list).
+        calibration : HypothesisCalibration or False, optional
+            None (default): the model's own calibration when it has one
+            (:meth:`calibrate`, or ``fit(calibration_share=...)``; its map for
+            inputs with a formula or without, as each input has); a
+            :class:`~gwpred.model.hypotheses.HypothesisCalibration` from
+            :func:`~gwpred.model.hypotheses.calibrate_hypotheses`: used for
+            every input; False: none.  Calibrated confidences are
+            probabilities of the exact graph (``.confidence``) and of a graph
+            within edit distance 1 (``.confidence_near``); uncalibrated ones
+            are the raw score (``calibrated=False`` on each list).
         output_kernel : {"auto", "wl", "fingerprint", "both"}, default="auto"
             Output kernel of the score: ``auto`` is ``fingerprint`` for
             molecules when RDKit is installed, else ``wl``.  On a QM9
@@ -624,9 +662,51 @@ class BarycenterGraphPredictor(BaseEstimator):
         settings = self._settings(self.valence_ or any(f is not None for f in parsed))
         return generate_hypotheses(
             self, idx, w, parsed, settings, k=top_k, output_kernel=output_kernel, n_anchors=n_anchors,
-            n_expand=n_expand, n_rounds=n_rounds, calibration=calibration, batch_size=self.batch_size,
-            progress=self.progress,
+            n_expand=n_expand, n_rounds=n_rounds, batch_size=self.batch_size, progress=self.progress,
+            calibration=getattr(self, "hypothesis_calibration_", None) if calibration is None else (
+                calibration or None),
         )
+
+    def calibrate(
+        self, X: ArrayLike, y: list[nx.Graph], *, top_k: int = 10, **options: Any
+    ) -> BarycenterGraphPredictor:
+        """Calibrate the confidences of :meth:`predict_hypotheses` on held-out pairs.
+
+        Fits :func:`~gwpred.model.hypotheses.calibrate_hypotheses` on inputs
+        the model was not fitted on, once without formulas and, for molecules
+        (``valence_`` on), once with each true graph's own formula (heavy atoms
+        and hydrogens, :func:`gwpred.formula.graph_formula`), and keeps both as
+        ``hypothesis_calibration_`` (``{"plain": ..., "formula": ...}``, saved
+        with the model).  Refitting the model drops it.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_inputs, n_features)
+            Held-out inputs (never the training inputs: their scores look
+            better than new inputs' would).
+        y : list of networkx.Graph
+            Their true graphs.
+        top_k : int, default=10
+            Hypotheses per input, as you will ask for them.
+        **options
+            Passed to :meth:`predict_hypotheses` (``output_kernel``, ...).
+
+        Returns
+        -------
+        BarycenterGraphPredictor
+            ``self``.
+
+        Raises
+        ------
+        ValueError
+            For mismatched lengths or fewer than 2 hypotheses in all.
+        """
+        check_is_fitted(self, "weights_")
+        graphs = [y] if isinstance(y, nx.Graph) else list(y)
+        settings = self._settings(True) if self.valence_ else None
+        out = calibrate_cases(self, X, graphs, settings, top_k=top_k, **options)
+        self.hypothesis_calibration_ = out
+        return self
 
     def predict_weighted(
         self, indices: ArrayLike, weights: ArrayLike, formulas: Any = None

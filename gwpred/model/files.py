@@ -19,6 +19,7 @@ from .._utils import StrPath
 from ..codec import LabelSpace, TrainingSet
 from ..io import load_archive, save_archive
 from .estimator import BarycenterGraphPredictor
+from .hypotheses import HypothesisCalibration
 
 __all__ = ["load_model", "save_model"]
 
@@ -37,8 +38,8 @@ def _plain(value: Any) -> Any:
 def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
     """Save a fitted :class:`~gwpred.BarycenterGraphPredictor` as a model archive.
 
-    The archive holds the constructor parameters, label categories and training
-    ids (JSON manifest), the training graphs as flat integer arrays, and the training
+    The archive holds the constructor parameters, label categories, training
+    ids and the hypothesis calibration when there is one (JSON manifest), the training graphs as flat integer arrays, and the training
     inputs (or the training kernel matrix with ``kernel="precomputed"``);
     kernel factorisations are recomputed on loading.  Inputs are stored as
     the weight model holds them: float64, or, for 0/1 inputs of a local
@@ -94,6 +95,9 @@ def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
         "gamma": gamma if np.isfinite(gamma) else None,
         "training_ids": getattr(model, "training_ids_", None),
     }
+    calibration = getattr(model, "hypothesis_calibration_", None)
+    if calibration:  # confidences of predict_hypotheses (absent from files of earlier releases)
+        manifest["hypothesis_calibration"] = {case: cal.to_dict() for case, cal in calibration.items()}
     save_archive(path, arrays, manifest)
 
 
@@ -161,6 +165,11 @@ def load_model(path: StrPath) -> BarycenterGraphPredictor:
             raise ValueError("training_ids must be a list of text ids")
         model.fit_encoded(arrays["inputs"], TrainingSet.encode(graphs, labels), gamma=manifest["gamma"],
                           training_ids=ids)
+        stored = manifest.get("hypothesis_calibration")
+        if stored is not None:
+            if not isinstance(stored, dict) or not stored or set(stored) - {"plain", "formula"}:
+                raise ValueError("hypothesis_calibration must map 'plain' and/or 'formula' to a calibration")
+            model.hypothesis_calibration_ = {case: HypothesisCalibration.from_dict(d) for case, d in stored.items()}
     except (KeyError, IndexError, TypeError, ValueError) as err:
         raise ValueError(f"{where} has inconsistent contents ({err}); it may be corrupted.") from err
     return model

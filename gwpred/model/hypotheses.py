@@ -65,7 +65,9 @@ from sklearn.isotonic import IsotonicRegression
 
 from .._utils import has_extra, progress_bar
 from ..codec import LabelSpace, TrainingSet
-from ..formula import Formula, formula_matches
+from ..formula import Formula, formula_matches, graph_formula
+from ..ged import edit_distance, edit_distance_bounds
+from ..metrics import expected_calibration_error
 from ..ranking import CandidateLibrary, rank_candidates
 from ..wl import LabelIds, canonical_order, graph_ids, wl_graph_hashes
 from .steps import (
@@ -83,12 +85,15 @@ __all__ = [
     "Hypothesis",
     "HypothesisCalibration",
     "HypothesisList",
+    "calibrate_cases",
     "calibrate_hypotheses",
     "calibration_from",
     "expected_calibration_error",
     "generate_hypotheses",
+    "list_features",
     "recalibrated",
     "single_edits",
+    "within_one",
 ]
 
 #: Output kernels of the hypothesis score (``"both"``: mean of the two; ``"auto"``:
@@ -107,17 +112,22 @@ class Hypothesis:
     score : float
         Output-kernel score :math:`\\sum_i w_i(x) k(y_i, c)` (higher is better).
     confidence : float
-        In ``[0, 1]``, non-decreasing in ``score``: the calibrated probability
+        In ``[0, 1]``, non-increasing down the list: the calibrated probability
         that this is the exact graph, or the raw score when uncalibrated.
     source : str
         Which part of the pool found it first: ``decoding``, ``free``,
         ``anchor``, ``size``, ``neighbour`` or ``edit``.
+    confidence_near : float
+        In ``[0, 1]``: the calibrated probability that this graph is within
+        graph edit distance 1 of the true graph (at least ``confidence``), or
+        the raw score when uncalibrated.
     """
 
     graph: nx.Graph
     score: float
     confidence: float
     source: str
+    confidence_near: float = float("nan")
 
 
 class HypothesisList(list):
@@ -141,33 +151,114 @@ class HypothesisList(list):
         self.calibrated = calibrated
 
 
+def list_features(scores: ArrayLike) -> NDArray[np.float64]:
+    """Score and margin of each hypothesis of one list, best first: shape (m, 2).
+
+    The margin of the first is its lead over the second (over 0 when alone);
+    of every other, its (negative) distance to the first.
+    """
+    s = np.asarray(scores, dtype=np.float64).ravel()
+    if s.size == 0:
+        return np.zeros((0, 2))
+    runner_up = s[1] if s.size > 1 else 0.0
+    margin = s - s[0]
+    margin[0] = s[0] - runner_up
+    return np.stack([s, margin], 1)
+
+
+def _step_map(x: ArrayLike, y: ArrayLike) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Isotonic (increasing) fit of rates ``y`` in ``[0, 1]`` against ``x``: thresholds and values."""
+    iso = IsotonicRegression(y_min=0.0, y_max=1.0, increasing=True, out_of_bounds="clip")
+    iso.fit(np.asarray(x, dtype=np.float64), np.asarray(y, dtype=np.float64))
+    return np.asarray(iso.X_thresholds_, dtype=np.float64), np.asarray(iso.y_thresholds_, dtype=np.float64)
+
+
 @dataclass(frozen=True)
 class HypothesisCalibration:
-    """Score -> probability of an exact match, a non-decreasing step function.
+    r"""Hypothesis lists -> probabilities of the exact graph and of a graph within GED 1.
+
+    A hypothesis with score :math:`s` and list margin :math:`g` (see
+    :func:`list_features`: the top one's lead over the second, the others'
+    distance to the top) is mapped through :math:`u = s + eta g`, then two
+    non-decreasing step functions of :math:`u` fitted by isotonic regression
+    (scikit-learn) on held-out inputs: the rate of exact matches and the rate
+    of graphs within edit distance 1.  Down a list :math:`u` decreases, so
+    confidences never increase; :math:`eta` (``margin_weight``) is chosen
+    by two-fold cross-validation of the Brier score over the inputs.
 
     Attributes
     ----------
-    scores : ndarray of shape (m,)
-        Increasing score thresholds (scikit-learn's ``IsotonicRegression.X_thresholds_``).
-    probabilities : ndarray of shape (m,)
-        Non-decreasing exact-match rates at those scores (``y_thresholds_``);
-        linear in between, constant outside.
+    scores, probabilities : ndarray of shape (m,)
+        Thresholds of :math:`u` and exact-match rates there (linear in
+        between, constant outside).
+    near_scores, near_probabilities : ndarray of shape (m2,)
+        The same for "within GED 1" (never below the exact-match rate).
+    margin_weight : float
+        :math:`\beta`.
     options : dict
-        Pool and score options it was fitted with; hypotheses calibrated by it
-        should use the same.
-    n_hypotheses : int
-        Hypotheses it was fitted on.
+        Pool and score options it was fitted with (``top_k``, ``formulas``:
+        whether formulas were given, ...); use it on lists made alike.
+    n_hypotheses, n_inputs : int
+        Hypotheses and inputs it was fitted on.
     """
 
     scores: NDArray[np.float64]
     probabilities: NDArray[np.float64]
+    near_scores: NDArray[np.float64]
+    near_probabilities: NDArray[np.float64]
+    margin_weight: float
     options: dict
     n_hypotheses: int
+    n_inputs: int
+
+    def _u(self, scores: ArrayLike) -> NDArray[np.float64]:
+        f = list_features(scores)
+        return f[:, 0] + self.margin_weight * f[:, 1]
 
     def __call__(self, scores: ArrayLike) -> NDArray[np.float64]:
-        """Confidences of scores (in ``[0, 1]``, non-decreasing in the score)."""
-        s = np.asarray(scores, dtype=np.float64)
-        return np.clip(np.interp(s, self.scores, self.probabilities), 0.0, 1.0)
+        """Exact-match confidences of one list's scores, best first (in ``[0, 1]``, non-increasing)."""
+        return np.clip(np.interp(self._u(scores), self.scores, self.probabilities), 0.0, 1.0)
+
+    def near(self, scores: ArrayLike) -> NDArray[np.float64]:
+        """Within-GED-1 confidences of one list's scores, best first (at least :meth:`__call__`'s)."""
+        near = np.clip(np.interp(self._u(scores), self.near_scores, self.near_probabilities), 0.0, 1.0)
+        return np.maximum(near, self(scores))
+
+    def to_dict(self) -> dict:
+        """JSON-ready form (model files)."""
+        return {
+            "scores": self.scores.tolist(), "probabilities": self.probabilities.tolist(),
+            "near_scores": self.near_scores.tolist(), "near_probabilities": self.near_probabilities.tolist(),
+            "margin_weight": float(self.margin_weight), "options": dict(self.options),
+            "n_hypotheses": int(self.n_hypotheses), "n_inputs": int(self.n_inputs),
+        }
+
+    @classmethod
+    def from_dict(cls, data: Any) -> HypothesisCalibration:
+        """Inverse of :meth:`to_dict`, checked: equal lengths, finite, increasing thresholds,
+        non-decreasing rates in ``[0, 1]``.
+
+        Raises
+        ------
+        ValueError
+            When any of those fails (a damaged or hand-edited model file).
+        """
+        try:
+            arrays = [np.asarray(data[k], dtype=np.float64)
+                      for k in ("scores", "probabilities", "near_scores", "near_probabilities")]
+            beta = float(data["margin_weight"])
+            options, n_h, n_i = dict(data["options"]), int(data["n_hypotheses"]), int(data["n_inputs"])
+        except (KeyError, TypeError, ValueError) as err:
+            raise ValueError(f"a hypothesis calibration needs thresholds, rates and counts ({err})") from err
+        for x, y in (arrays[:2], arrays[2:]):
+            if (x.ndim != 1 or x.shape != y.shape or x.size == 0 or not np.all(np.isfinite(x))
+                    or not np.all(np.isfinite(y)) or np.any(np.diff(x) <= 0) or np.any(np.diff(y) < 0)
+                    or y.min() < 0 or y.max() > 1):
+                raise ValueError("a hypothesis calibration's thresholds must increase and its rates be "
+                                 "non-decreasing in [0, 1], of equal lengths")
+        if not np.isfinite(beta) or beta < 0:
+            raise ValueError(f"margin_weight must be finite and >= 0; got {beta}")
+        return cls(*arrays, beta, options, n_h, n_i)
 
 
 class HypothesisModel(Protocol):
@@ -590,7 +681,7 @@ def generate_hypotheses(
     n_anchors: int = 3,
     n_expand: int = 3,
     n_rounds: int = 2,
-    calibration: HypothesisCalibration | None = None,
+    calibration: HypothesisCalibration | dict[str, HypothesisCalibration] | None = None,
     batch_size: int = 64,
     progress: bool = False,
 ) -> list[HypothesisList]:
@@ -620,8 +711,11 @@ def generate_hypotheses(
         Extra barycenters started from the best-weighted neighbours.
     n_expand, n_rounds : int, default=3 and 2
         Local search: members expanded per round, rounds (0: none).
-    calibration : HypothesisCalibration, optional
-        Score -> confidence map; None gives uncalibrated confidences (the raw score).
+    calibration : HypothesisCalibration or dict, optional
+        Score -> confidence map for every input, or one per case:
+        ``{"plain": ..., "formula": ...}`` (inputs without / with a formula; a
+        missing key leaves those inputs uncalibrated).  None gives
+        uncalibrated confidences (the raw score).
     batch_size : int, default=64
         Inputs whose barycenters are solved together.
     progress : bool, default=False
@@ -664,7 +758,9 @@ def generate_hypotheses(
             pool.add(items)
             if molecules and chem is not None and chem.max_order >= 1:
                 _search(pool, chem, labels, settings, fs[b], n_expand, n_rounds)
-            out.append(_finish(pool, k, calibration))
+            cal = calibration.get("formula" if fs[b] is not None else "plain") if isinstance(
+                calibration, dict) else calibration
+            out.append(_finish(pool, k, cal))
             bar.update(1)
     bar.close()
     short = sum(bool(h.note) for h in out)
@@ -679,9 +775,12 @@ def generate_hypotheses(
 def _finish(pool: _Pool, k: int, calibration: HypothesisCalibration | None) -> HypothesisList:
     order = pool.order()[:k]
     scores = np.array([pool.scores[m] for m in order])
-    conf = calibration(scores) if calibration is not None else np.clip(scores, 0.0, 1.0)
-    items = [Hypothesis(pool.graphs[m], float(s), float(c), pool.sources[m])
-             for m, s, c in zip(order, scores.tolist(), conf.tolist())]
+    if calibration is not None and len(order):
+        conf, near = calibration(scores), calibration.near(scores)
+    else:
+        conf = near = np.clip(scores, 0.0, 1.0)
+    items = [Hypothesis(pool.graphs[m], float(s), float(c), pool.sources[m], float(c2))
+             for m, s, c, c2 in zip(order, scores.tolist(), conf.tolist(), near.tolist())]
     note = "" if len(items) >= k else (
         f"only {len(items)} distinct hypotheses were reachable (top_k={k} asked): the pool held no more"
     )
@@ -703,6 +802,43 @@ def _hits(lists: Sequence[Sequence[Hypothesis]], truth: Sequence[nx.Graph], labe
     return [[_same(h.graph, t, labels) for h in hyps] for hyps, t in zip(lists, truth)]
 
 
+def within_one(g: nx.Graph, truth: nx.Graph, labels: LabelSpace, time_limit: float = 1.0) -> bool:
+    """Whether ``g`` is within graph edit distance 1 of ``truth`` (uniform costs).
+
+    Counts and cheap bounds settle most pairs; the rest go to
+    :func:`gwpred.ged.edit_distance` with ``time_limit`` seconds, and a pair
+    it cannot settle counts as not near (its upper bound is above 1).
+    """
+    if (abs(g.number_of_nodes() - truth.number_of_nodes()) + abs(g.number_of_edges() - truth.number_of_edges())) > 2:
+        return False
+    keys = {"node_label": labels.node_label, "edge_label": labels.edge_label}
+    lower, upper = edit_distance_bounds(g, truth, **keys)
+    if lower > 1 or upper <= 1:
+        return upper <= 1
+    return edit_distance(g, truth, time_limit=time_limit, **keys).upper <= 1
+
+
+def _brier(features: list[NDArray[np.float64]], hits: list[NDArray[np.float64]], beta: float) -> float:
+    """Two-fold (even / odd inputs) Brier score of the isotonic exact-match map at margin weight ``beta``."""
+    u = [f[:, 0] + beta * f[:, 1] for f in features]
+    total, count = 0.0, 0
+    for fold in (0, 1):
+        fit = [i for i in range(len(u)) if i % 2 != fold and len(u[i])]
+        test = [i for i in range(len(u)) if i % 2 == fold and len(u[i])]
+        if not fit or not test:
+            return np.inf
+        x, y = _step_map(np.concatenate([u[i] for i in fit]), np.concatenate([hits[i] for i in fit]))
+        for i in test:
+            p = np.interp(u[i], x, y)
+            total += float(np.sum((p - hits[i]) ** 2))
+            count += len(p)
+    return total / max(count, 1)
+
+
+#: Margin weights tried by :func:`calibration_from`.
+MARGIN_WEIGHTS = (0.0, 0.25, 0.5, 1.0, 2.0, 4.0, 8.0)
+
+
 def calibrate_hypotheses(
     model: Any,
     X: ArrayLike,
@@ -712,14 +848,14 @@ def calibrate_hypotheses(
     top_k: int = 10,
     **options: Any,
 ) -> HypothesisCalibration:
-    """Fit the score -> P(exact graph) map on held-out inputs whose graphs are known.
+    """Fit the hypothesis confidences on held-out inputs whose graphs are known.
 
-    Use inputs the model was **not** fitted on (e.g. a validation part of the
-    training data held out from ``fit``): on training inputs every score would
-    look better than it is.  Every hypothesis of every input counts once:
-    label 1 when it is label-isomorphic to the true graph (networkx), else 0;
-    scikit-learn's ``IsotonicRegression`` (increasing, clipped to ``[0, 1]``)
-    fits the rate against the score.
+    Use inputs the model was **not** fitted on (a validation part held out
+    from ``fit``): on training inputs every score would look better than it
+    is.  See :class:`HypothesisCalibration` for the map and
+    :func:`calibration_from` for the labels.  Fit one calibration for lists
+    made with formulas and another for lists made without:
+    their scores differ (``BarycenterGraphPredictor.calibrate`` does both).
 
     Parameters
     ----------
@@ -729,8 +865,7 @@ def calibrate_hypotheses(
     graphs : sequence of networkx.Graph
         The true graph of each input.
     formulas : list of (str or None), optional
-        As in ``predict_hypotheses``; calibrate with formulas when you will
-        predict with them (scores are higher and hits likelier with a formula).
+        As in ``predict_hypotheses``.
     top_k : int, default=10
     **options
         Passed to ``predict_hypotheses`` (``output_kernel``, ``n_anchors``, ...).
@@ -747,83 +882,93 @@ def calibrate_hypotheses(
     graphs = list(graphs)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UserWarning)  # short pools are fine here
-        lists = model.predict_hypotheses(X, top_k=top_k, formulas=formulas, **options)
-    return calibration_from(lists, graphs, model.labels_, {"top_k": top_k, **options})
+        lists = model.predict_hypotheses(X, top_k=top_k, formulas=formulas, calibration=False, **options)
+    given = formulas is not None and any(f is not None for f in formulas)
+    return calibration_from(lists, graphs, model.labels_, {"top_k": top_k, "formulas": given, **options})
+
+
+def calibrate_cases(
+    model: Any, X: ArrayLike, graphs: Sequence[nx.Graph], settings: Settings | None, *, top_k: int = 10,
+    **options: Any,
+) -> dict[str, HypothesisCalibration]:
+    """``BarycenterGraphPredictor.calibrate``: one calibration without formulas and, for molecules
+    (``settings`` with valence tables), one with each true graph's own formula.
+
+    Returns
+    -------
+    dict
+        ``{"plain": ...}``, plus ``"formula"`` for molecules.
+    """
+    graphs = list(graphs)
+    out = {"plain": calibrate_hypotheses(model, X, graphs, None, top_k=top_k, **options)}
+    if settings is not None and settings.valences is not None:
+        labels: LabelSpace = model.labels_
+        valences = dict(zip(labels.node_labels_, settings.valences))
+        formulas = [graph_formula(g, node_label=labels.node_label, edge_label=labels.edge_label, valences=valences)
+                    for g in graphs]
+        out["formula"] = calibrate_hypotheses(model, X, graphs, formulas, top_k=top_k, **options)
+    return out
 
 
 def calibration_from(
-    lists: Sequence[Sequence[Hypothesis]], graphs: Sequence[nx.Graph], labels: LabelSpace, options: dict | None = None
+    lists: Sequence[Sequence[Hypothesis]],
+    graphs: Sequence[nx.Graph],
+    labels: LabelSpace,
+    options: dict | None = None,
+    *,
+    time_limit: float = 1.0,
 ) -> HypothesisCalibration:
     """:func:`calibrate_hypotheses` from hypothesis lists already computed for held-out inputs.
+
+    Every hypothesis of every input counts once: 1 when it is
+    label-isomorphic to the true graph (networkx), else 0; and, for the
+    second map, 1 when it is within edit distance 1 (:func:`within_one`).
 
     Parameters
     ----------
     lists : sequence of sequences of Hypothesis
-        One list per held-out input.
+        One list per held-out input, best first.
     graphs : sequence of networkx.Graph
         Their true graphs.
     labels : LabelSpace
         The model's fitted labels (``model.labels_``: attribute names).
     options : dict, optional
         Options the lists were made with (kept in the calibration).
+    time_limit : float, default=1.0
+        Seconds per edit distance of the "within 1" labels.
 
     Returns
     -------
     HypothesisCalibration
+
+    Raises
+    ------
+    ValueError
+        For mismatched lengths or fewer than 2 hypotheses in all.
     """
     graphs = list(graphs)
     if len(lists) != len(graphs):
         raise ValueError(f"there are {len(lists)} hypothesis lists but {len(graphs)} graphs; pass one graph per input.")
-    hits = _hits(lists, graphs, labels)
-    s = np.array([h.score for hyps in lists for h in hyps])
-    y = np.array([v for row in hits for v in row], dtype=np.float64)
-    if len(s) < 2:
+    if sum(len(h) for h in lists) < 2:
         raise ValueError("calibration needs at least 2 hypotheses; pass more inputs.")
-    iso = IsotonicRegression(y_min=0.0, y_max=1.0, increasing=True, out_of_bounds="clip").fit(s, y)
-    return HypothesisCalibration(
-        np.asarray(iso.X_thresholds_, dtype=np.float64), np.asarray(iso.y_thresholds_, dtype=np.float64),
-        dict(options or {}), len(s),
-    )
+    features = [list_features([h.score for h in hyps]) for hyps in lists]
+    hits = [np.array(row, dtype=np.float64) for row in _hits(lists, graphs, labels)]
+    near = [np.array([bool(e) or within_one(h.graph, t, labels, time_limit) for h, e in zip(hyps, row)],
+                     dtype=np.float64) for hyps, row, t in zip(lists, hits, graphs)]
+    beta = min(MARGIN_WEIGHTS, key=lambda b: (round(_brier(features, hits, b), 12), b))
+    u = np.concatenate([f[:, 0] + beta * f[:, 1] for f in features])
+    x, y = _step_map(u, np.concatenate(hits))
+    xn, yn = _step_map(u, np.concatenate(near))
+    return HypothesisCalibration(x, y, xn, yn, float(beta), dict(options or {}), len(u), len(lists))
 
 
 def recalibrated(lists: Sequence[HypothesisList], calibration: HypothesisCalibration) -> list[HypothesisList]:
     """The same lists with confidences from ``calibration`` (scores and order unchanged)."""
     out = []
     for hyps in lists:
-        conf = calibration([h.score for h in hyps]).tolist()
-        out.append(HypothesisList([replace(h, confidence=float(c)) for h, c in zip(hyps, conf)],
-                                  hyps.requested, hyps.note, True))
+        scores = [h.score for h in hyps]
+        conf = calibration(scores).tolist() if hyps else []
+        near = calibration.near(scores).tolist() if hyps else []
+        out.append(HypothesisList([replace(h, confidence=float(c), confidence_near=float(c2))
+                                   for h, c, c2 in zip(hyps, conf, near)], hyps.requested, hyps.note, True))
     return out
-
-
-def expected_calibration_error(confidence: ArrayLike, hit: ArrayLike, n_bins: int = 10) -> float:
-    """Expected calibration error: sum over equal-width confidence bins of |rate - mean confidence| x share.
-
-    Parameters
-    ----------
-    confidence : array-like of shape (m,)
-        Values in ``[0, 1]``.
-    hit : array-like of shape (m,)
-        1 where the hypothesis was right.
-    n_bins : int, default=10
-
-    Returns
-    -------
-    float
-
-    Examples
-    --------
-    >>> expected_calibration_error([0.9, 0.9, 0.1, 0.1], [1, 1, 0, 0])
-    0.1
-    """
-    c = np.asarray(confidence, dtype=np.float64)
-    y = np.asarray(hit, dtype=np.float64)
-    if c.shape != y.shape or c.ndim != 1 or c.size == 0:
-        raise ValueError(f"confidence and hit must be 1-d of equal, non-zero length; got {c.shape} and {y.shape}.")
-    bins = np.minimum((c * n_bins).astype(np.int64), n_bins - 1)
-    err = 0.0
-    for b in np.unique(bins):
-        m = bins == b
-        err += m.mean() * abs(y[m].mean() - c[m].mean())
-    return float(round(err, 12))
-
