@@ -12,6 +12,7 @@ import importlib
 import json
 import sys
 import time
+import warnings
 from collections.abc import Sequence
 from contextlib import ExitStack
 from pathlib import Path
@@ -286,7 +287,7 @@ def cmd_fit(args: argparse.Namespace) -> int:
         for g, i in zip(graphs, ids):
             g.graph["id"] = i  # kept by the model: reports name the training graphs by them
     t0 = time.perf_counter()
-    model = BarycenterGraphPredictor(**_model_params(args)).fit(X, graphs)
+    model = BarycenterGraphPredictor(**_model_params(args)).fit(X, graphs, calibration_share=args.calibration_share)
     save_model(model, args.model)
     print(f"fitted on {len(graphs)} graphs in {time.perf_counter() - t0:.1f} s; "
           f"node labels {model.labels_.node_labels_}, edge labels {model.labels_.edge_labels_}")
@@ -317,6 +318,8 @@ def cmd_predict(args: argparse.Namespace) -> int:
                          "without valence rules (fitted with --valence off, as every model saved before gwpred 0.2 "
                          "is, or its labels are not element symbols and bond orders); write .jsonl or .graphml, "
                          "or refit with --valence auto")
+    if args.hypotheses is not None:
+        return _write_hypotheses(args, model, X, ids, formulas)
     graphs = model.predict(X, formulas=formulas)
     for r, g in enumerate(graphs):
         if ids is not None:
@@ -326,6 +329,31 @@ def cmd_predict(args: argparse.Namespace) -> int:
     write_graphs(args.out, graphs)
     print(f"{len(graphs)} predicted graphs written to {args.out}")
     print(CAUTION, file=sys.stderr)  # with the results, not inside them (stdout may be a data pipe)
+    return 0
+
+
+def _write_hypotheses(args: argparse.Namespace, model: Any, X: Any, ids: list[str] | None,
+                      formulas: list[str | None] | None) -> int:
+    """``predict --hypotheses K``: the K best generated graphs per input, best first."""
+    from .io import write_hypotheses
+
+    if args.hypotheses < 1:
+        raise UsageError(f"--hypotheses must be at least 1 (graphs per input); got {args.hypotheses}")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", UserWarning)
+        lists = model.predict_hypotheses(X, top_k=args.hypotheses, formulas=formulas)
+    write_hypotheses(args.out, lists, ids, formulas)
+    short = sum(bool(h.note) for h in lists)
+    print(f"{sum(len(h) for h in lists)} hypotheses for {len(lists)} inputs (up to {args.hypotheses} each, best "
+          f"first) written to {args.out}")
+    if short:
+        print(f"{short} inputs have fewer: their pools held no more distinct graphs")
+    if not any(h.calibrated for h in lists):
+        print("confidences are raw scores, not probabilities: fit with --calibration-share to calibrate them")
+    for w in caught:
+        if "fewer than top_k" not in str(w.message):
+            print(f"warning: {w.message}", file=sys.stderr)
+    print(CAUTION, file=sys.stderr)
     return 0
 
 
@@ -512,6 +540,38 @@ class _TrainingGraphs:
         return g
 
 
+def _read_hypotheses(path: str) -> tuple[list, dict] | None:
+    """A ``predict --hypotheses`` JSON Lines file as (first hypotheses, ranked lists); None for other files."""
+    from .io import read_ranked
+
+    p = Path(path)
+    if p.suffix.lower() != ".jsonl" or not p.is_file():
+        return None
+    with open(p, encoding="utf-8") as fh:
+        first = next((line for line in fh if line.strip()), "")
+    try:
+        record = json.loads(first)
+    except json.JSONDecodeError:
+        return None  # read_graphs says what is wrong with it
+    if not isinstance(record, dict) or "ranked" not in record:
+        return None
+    ranked = read_ranked(p)
+    if sorted(ranked) != list(range(len(ranked))):
+        raise UsageError(f"{path}: rows must number the inputs 0..{len(ranked) - 1}, each once")
+    first_graphs = []
+    for r in range(len(ranked)):
+        if not ranked[r]:
+            raise UsageError(f"{path}: row {r} has no hypothesis, so there is no prediction to report for it")
+        first_graphs.append(ranked[r][0].graph.copy())
+    with open(p, encoding="utf-8") as fh:  # the inputs' ids go with their first hypotheses
+        for line in fh:
+            if line.strip():
+                rec = json.loads(line)
+                if rec.get("id") is not None:
+                    first_graphs[rec["row"]].graph["id"] = rec["id"]
+    return first_graphs, ranked
+
+
 def cmd_report(args: argparse.Namespace) -> int:
     from .io import read_graphs, read_ranked
     from .model import load_model
@@ -528,14 +588,18 @@ def cmd_report(args: argparse.Namespace) -> int:
     for name, value, least in (("--limit", args.limit, 1), ("--drawings", args.drawings, 0), ("--top-k", args.top_k, 0)):
         if value is not None and value < least:
             raise UsageError(f"{name} must be at least {least}; got {value}")
-    pred = read_graphs(args.predictions)
+    hypotheses = _read_hypotheses(args.predictions)
+    if hypotheses is not None and args.ranked:
+        raise UsageError(f"{args.predictions} holds generated hypotheses (predict --hypotheses): it gives both the "
+                         "predictions (each input's first hypothesis) and the ranked lists; drop --ranked")
+    pred = read_graphs(args.predictions) if hypotheses is None else hypotheses[0]
     truth = read_graphs(args.truth) if args.truth else None
     if truth is not None and len(pred) != len(truth):
         raise UsageError(
             f"{args.predictions} holds {len(pred)} graphs but {args.truth} holds {len(truth)}; "
             "they must be in the same order, one prediction per true graph."
         )
-    ranked = read_ranked(args.ranked) if args.ranked else None
+    ranked = read_ranked(args.ranked) if args.ranked else None if hypotheses is None else hypotheses[1]
     t0 = time.perf_counter()
     extra: dict = {}
     notes: list[str] = []
@@ -689,6 +753,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--graphs", required=True, help="training graphs, one per input row: .jsonl (node-link) or .graphml; "
                    "molecules as .smi, .sdf or .mol (needs RDKit: pip install 'gwpred[chem]')")
     p.add_argument("--model", required=True, help="model file to write (.npz)")
+    p.add_argument("--calibration-share", type=float, default=0.0, metavar="SHARE",
+                   help="hold out this share of the pairs (at most 0.5) to calibrate the confidences of "
+                        "predict --hypotheses, then fit on all (default: 0, no calibration; costs about "
+                        "0.5 s per held-out pair, twice for molecules)")
     _add_model_options(p)
     _add_id_options(p)
     common(p)
@@ -704,6 +772,10 @@ def build_parser() -> argparse.ArgumentParser:
                         ".csv/.tsv with a formula column, or .txt with one per line; an empty cell leaves a row free")
     p.add_argument("--formula-column", default="formula",
                    help="header of the formula column in --formulas (default: formula)")
+    p.add_argument("--hypotheses", type=int, metavar="K",
+                   help="write the K best distinct generated graphs per input instead of one, best first, with "
+                        "scores and confidences (.jsonl: one record per input, readable by report --ranked; "
+                        ".sdf/.graphml/.smi: one record per hypothesis named ID#RANK)")
     parallel(p, "the per-input predictions", "the model's own, 1 unless set")
     _add_id_options(p)
     common(p)

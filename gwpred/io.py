@@ -65,6 +65,7 @@ __all__ = [
     "graph_to_json_line",
     "RankedCandidate",
     "read_ranked",
+    "write_hypotheses",
     "write_ranked",
 ]
 
@@ -1359,11 +1360,14 @@ class RankedCandidate:
         The candidate's index in its source list, when known.
     score : float or None
         Its score (best first in the list), when known.
+    confidence : float or None
+        A generated hypothesis's confidence (:func:`write_hypotheses`), when known.
     """
 
     graph: nx.Graph
     candidate: int | None = None
     score: float | None = None
+    confidence: float | None = None
 
 
 def write_ranked(
@@ -1425,6 +1429,86 @@ def write_ranked(
     with atomic_open(target, binary=False) as fh:
         for line in lines:
             fh.write(line + "\n")
+
+
+def write_hypotheses(
+    path: StrPath,
+    lists: Sequence[Sequence[Any]],
+    ids: Sequence[str] | None = None,
+    formulas: Sequence[str | None] | None = None,
+) -> None:
+    """Write generated hypotheses (``predict_hypotheses``), best first per input.
+
+    ``.jsonl``: one object per input, in the layout of :func:`write_ranked`
+    (so :func:`read_ranked` and ``gwpred report --ranked`` read it):
+    ``{"row": i, "id": ..., "formula_given": ..., "calibrated": bool, "note": ...,
+    "ranked": [{"rank": 1, "score": s, "confidence": p, "confidence_near": p1,
+    "source": ..., "graph": <node-link record>}, ...]}``.
+    ``.sdf``, ``.graphml`` and ``.smi``: one record per hypothesis, named
+    ``<id>#<rank>`` (the row number when there are no ids), with the input's
+    id, the rank, score, confidences and source as graph attributes (SD data
+    fields in SDF; SMILES keeps only the name).  The file is replaced
+    atomically.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Target file; the extension selects the format.
+    lists : sequence of sequences of Hypothesis
+        One list per input (items with ``graph``, ``score``, ``confidence``,
+        ``confidence_near`` and ``source``; the list's ``calibrated`` and
+        ``note`` attributes are written when present).
+    ids : sequence of str, optional
+        The inputs' sample ids.
+    formulas : sequence of (str or None), optional
+        Formulas given per input (written as ``formula_given``).
+
+    Raises
+    ------
+    ValueError
+        For an unsupported extension or ``ids``/``formulas`` of the wrong length;
+        as :func:`write_graphs` for graphs the format cannot hold.
+    """
+    target = Path(path)
+    ext = _extension(target, GRAPH_EXTENSIONS, "graph")
+    for name, values in (("ids", ids), ("formulas", formulas)):
+        if values is not None and len(values) != len(lists):
+            raise ValueError(f"{name} has {len(values)} entries but there are {len(lists)} hypothesis lists; "
+                             "give one per input")
+    if ext == ".jsonl":
+        lines = []
+        for r, hyps in enumerate(lists):
+            record: dict[str, Any] = {"row": r}
+            if ids is not None:
+                record["id"] = str(ids[r])
+            if formulas is not None and formulas[r] is not None:
+                record["formula_given"] = formulas[r]
+            record["calibrated"] = bool(getattr(hyps, "calibrated", False))
+            record["note"] = str(getattr(hyps, "note", ""))
+            record["ranked"] = [
+                {"rank": k, "score": float(h.score), "confidence": float(h.confidence),
+                 "confidence_near": float(h.confidence_near), "source": str(h.source),
+                 "graph": json.loads(graph_to_json_line(h.graph, k - 1))}
+                for k, h in enumerate(hyps, start=1)
+            ]
+            lines.append(json.dumps(record, allow_nan=False, ensure_ascii=False))
+        with atomic_open(target, binary=False) as fh:
+            for line in lines:
+                fh.write(line + "\n")
+        return
+    flat = []
+    for r, hyps in enumerate(lists):
+        name = str(ids[r]) if ids is not None else str(r)
+        for k, h in enumerate(hyps, start=1):
+            g = h.graph.copy()
+            g.graph.clear()
+            g.graph.update(id=f"{name}#{k}", input_id=name, row=r, rank=k, score=float(h.score),
+                           confidence=float(h.confidence), confidence_near=float(h.confidence_near),
+                           source=str(h.source), calibrated=int(bool(getattr(hyps, "calibrated", False))))
+            if formulas is not None and formulas[r] is not None:
+                g.graph["formula_given"] = formulas[r]
+            flat.append(g)
+    write_graphs(target, flat)
 
 
 def read_ranked(path: StrPath) -> dict[int, list[RankedCandidate]]:
@@ -1497,4 +1581,8 @@ def _ranked_item(item: Any, where: str) -> RankedCandidate:
     cand = item.get("candidate")
     if cand is not None and (isinstance(cand, bool) or not isinstance(cand, int)):
         raise ValueError(f"{where}: candidate must be an int or null, got {cand!r}")
-    return RankedCandidate(graph_from_record(item["graph"], where), cand, None if score is None else float(score))
+    conf = item.get("confidence")
+    if conf is not None and (isinstance(conf, bool) or not isinstance(conf, (int, float)) or not 0 <= conf <= 1):
+        raise ValueError(f"{where}: confidence must be a number in [0, 1] or null, got {conf!r}")
+    return RankedCandidate(graph_from_record(item["graph"], where), cand, None if score is None else float(score),
+                           None if conf is None else float(conf))

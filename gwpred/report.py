@@ -35,7 +35,7 @@ from ._utils import CAUTION, atomic_write_text, has_extra, progress_bar, renamed
 from .chem import check_molecule, graph_to_mol
 from .formula import ELEMENTS, graph_formula
 from .io import RankedCandidate, read_ranked, write_ranked
-from .metrics import TOP_K, edit_distance, exact_match, hit_rank, summarize
+from .metrics import TOP_K, edit_distance, exact_match, expected_calibration_error, hit_rank, summarize
 from .plot import (
     EDIT_COLOURS,
     alignment_edits,
@@ -1062,6 +1062,47 @@ def _ged_histogram(summary: dict, svgs: _Svgs) -> str:
     return svgs.figure(fig)
 
 
+def _top_confidences(items: list[_Item]) -> tuple[NDArray[np.float64], NDArray[np.float64]] | None:
+    """Confidence of each item's first hypothesis and whether it is the truth (items with both)."""
+    pairs = [
+        (float(it.candidates[0].confidence), it.hit_rank == 1)
+        for it in items
+        if it.true is not None and it.candidates and getattr(it.candidates[0], "confidence", None) is not None
+    ]
+    if len(pairs) < 2:
+        return None
+    return np.array([c for c, _ in pairs]), np.array([h for _, h in pairs], dtype=np.float64)
+
+
+def _reliability(conf: NDArray[np.float64], hit: NDArray[np.float64], svgs: _Svgs) -> str:
+    """Accuracy-coverage curve and reliability diagram of the first hypotheses."""
+    n = len(conf)
+    order = np.argsort(-conf, kind="stable")
+    coverage = np.arange(1, n + 1) / n
+    fig = _figure(7.0, 2.3, (0.55, 0.5, 0.15, 0.25), wspace=0.45)
+    left, right = fig.subplots(1, 2)
+    left.plot(coverage, np.cumsum(hit[order]) / np.arange(1, n + 1), color="#0072B2", label="exact, observed")
+    left.plot(coverage, np.cumsum(conf[order]) / np.arange(1, n + 1), color="#D55E00", linestyle="--",
+              label="mean confidence")
+    left.set_xlabel("share of items kept (most confident first)", fontsize=8)
+    left.set_ylabel("first hypothesis exact", fontsize=8)
+    left.legend(fontsize=7, frameon=False)
+    bins = np.minimum((conf * 10).astype(int), 9)
+    used = np.unique(bins)
+    right.plot([0, 1], [0, 1], color="#999999", linewidth=0.8)
+    right.scatter([conf[bins == b].mean() for b in used], [hit[bins == b].mean() for b in used],
+                  s=[12 + 4 * np.sum(bins == b) for b in used], color="#0072B2")
+    right.set_xlabel("confidence (10 bins; area: items)", fontsize=8)
+    right.set_ylabel("observed rate", fontsize=8)
+    for ax in (left, right):
+        ax.set_xlim(0, 1)
+        ax.set_ylim(0, 1.02)
+        ax.tick_params(labelsize=7)
+        for side in ("top", "right"):
+            ax.spines[side].set_visible(False)
+    return svgs.figure(fig)
+
+
 def _cell(text: str, value: Any = None, cls: str = "") -> str:
     attr = f' data-v="{value!r}"' if value is not None else ""
     klass = f' class="{cls}"' if cls else ""
@@ -1597,8 +1638,10 @@ def _candidate_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
     heads = []
     for k, c in enumerate(shown):
         name = _graph_name(c.graph)
-        head = f"candidate #{k + 1}" + (f" {name}" if name else "")
+        confidence = getattr(c, "confidence", None)  # generated hypotheses carry one
+        head = ("hypothesis" if confidence is not None else "candidate") + f" #{k + 1}" + (f" {name}" if name else "")
         head += f", score {c.score:.3g}" if c.score is not None else ""
+        head += f", confidence {100 * confidence:.0f}%" if confidence is not None else ""
         if item.true is not None and exact_match(
             c.graph, item.true, node_label=opts.node_label, edge_label=opts.edge_label
         ):
@@ -1953,6 +1996,18 @@ def build_report(
                 _ged_histogram(summary, svgs),
                 "How many items have each graph edit distance "
                 "(uniform costs: each node or edge inserted, deleted or relabeled costs 1)",
+            )
+        )
+    reliable = _top_confidences(items)
+    if reliable is not None:
+        conf, hit = reliable
+        parts.append(
+            _figure_html(
+                _reliability(conf, hit, svgs),
+                f"Can the confidence be trusted? First hypotheses of {len(conf)} items: expected calibration "
+                f"error {expected_calibration_error(conf, hit):.3f} (0 is perfect). Left: how often the first "
+                "hypothesis is exact among the items with the highest confidence; right: observed rate per "
+                "confidence bin (on the grey line when calibrated)",
             )
         )
     parts.append("<h2>Items</h2>")

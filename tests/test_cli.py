@@ -22,6 +22,7 @@ Outside references used here:
 from __future__ import annotations
 
 import csv
+import itertools
 import json
 import os
 import subprocess
@@ -749,3 +750,47 @@ def test_report_with_the_model_shows_heat_maps_and_neighbours(capsys, tmp_path, 
                        "--model and --features go together")
     expect_usage_error(capsys, ["report", pred, "--out", tmp_path / "x.html", "--model", files["model"],
                                 "--features", files["train_x"], "-q"], "give the inputs the predictions were made from")
+
+
+def test_predict_hypotheses_files_and_report(capsys, tmp_path, files, demo):
+    # References: RDKit reads the SDF back (SDMolSupplier: titles and data fields), networkx
+    # is_isomorphic tells that no two hypotheses of an input are the same molecule, and the
+    # JSON Lines file is read by the standard json module as well as by report --ranked.
+    Chem = pytest.importorskip("rdkit.Chem")
+    Xtr, Gtr, _, truth = demo
+    model = tmp_path / "m.npz"
+    code, stdout, _ = run(capsys, "fit", "--features", str(files["train_x"]), "--graphs", str(files["train_gj"]),
+                          "--model", str(model), "--calibration-share", "0.1", "-q", *MODEL_OPTS)
+    assert code == 0
+    out = tmp_path / "hyps.jsonl"
+    code, stdout, stderr = run(capsys, "predict", "--model", str(model), "--features", str(files["test_x"]),
+                               "--out", str(out), "--hypotheses", "4", "-q")
+    assert code == 0 and "best first" in stdout and "hypotheses" in stderr  # the caution line
+    records = [json.loads(line) for line in out.read_text(encoding="utf-8").splitlines()]
+    assert [r["row"] for r in records] == list(range(len(truth)))
+    for r in records:
+        assert r["calibrated"] is True and 1 <= len(r["ranked"]) <= 4
+        assert [h["rank"] for h in r["ranked"]] == list(range(1, len(r["ranked"]) + 1))
+        scores = [h["score"] for h in r["ranked"]]
+        assert scores == sorted(scores, reverse=True)
+        assert all(0 <= h["confidence"] <= h["confidence_near"] <= 1 for h in r["ranked"])
+        graphs = [nx.node_link_graph(h["graph"], edges="edges") for h in r["ranked"]]
+        assert not any(same_labeled_graph(a, b) for a, b in itertools.combinations(graphs, 2))
+    sdf = tmp_path / "hyps.sdf"
+    code, _, _ = run(capsys, "predict", "--model", str(model), "--features", str(files["test_x"]),
+                     "--out", str(sdf), "--hypotheses", "4", "-q")
+    assert code == 0
+    mols = [m for m in Chem.SDMolSupplier(str(sdf))]
+    assert all(m is not None for m in mols) and len(mols) == sum(len(r["ranked"]) for r in records)
+    assert mols[0].GetProp("_Name") == f"{records[0]['id']}#1" and mols[0].GetProp("rank") == "1"
+    assert mols[0].GetProp("input_id") == records[0]["id"]
+    assert float(mols[0].GetProp("confidence")) == pytest.approx(records[0]["ranked"][0]["confidence"])
+    # the report shows them like ranked candidates, with the confidence plot against the truth
+    page = tmp_path / "r.html"
+    code, _, _ = run(capsys, "report", str(out), "--model", str(model), "--features", str(files["test_x"]),
+                     "--truth", str(files["truth"]), "--out", str(page), "-q")
+    assert code == 0
+    html = page.read_text(encoding="utf-8")
+    assert "hypothesis #1" in html and "expected calibration error" in html
+    expect_usage_error(capsys, ["predict", "--model", str(model), "--features", str(files["test_x"]), "--out",
+                                str(out), "--hypotheses", "0"], "--hypotheses must be at least 1")
