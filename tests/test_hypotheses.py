@@ -270,3 +270,36 @@ def test_calibration_errors(demo, plain):
         calibration_from(plain, graphs[:1], model.labels_)
     with pytest.raises(ValueError, match="equal, non-zero length"):
         expected_calibration_error([0.5], [1, 0])
+
+
+@pytest.mark.parametrize("keep", [True, False])
+def test_scores_are_weighted_tanimoto_without_self_terms(demo, keep):
+    # Reference: RDKit Morgan fingerprints (radius 2, 2048 bits) and DataStructs' Tanimoto
+    # similarity, weighted by the model's own neighbour weights. Without self terms, a
+    # hypothesis equal (networkx isomorphism) to some of the input's training graphs is scored
+    # by the others only: sum over the rest of w_i T(y_i, c), divided by their total weight.
+    from rdkit import DataStructs
+    from rdkit.Chem import rdFingerprintGenerator
+
+    model, X, _, _ = demo
+    gen = rdFingerprintGenerator.GetMorganGenerator(radius=2, fpSize=2048)
+
+    def fp(g):
+        return gen.GetFingerprint(Chem.MolFromSmiles(graph_to_smiles(g)))
+
+    idx, w = model.neighbors(X[QUERIES])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        lists = model.predict_hypotheses(X[QUERIES], top_k=40, output_kernel="fingerprint",
+                                         keep_self_terms=keep)
+    equal_seen = 0
+    for hyps, ii, ww in zip(lists, idx, w):
+        train = [model.training_.graph(int(i)) for i in ii]
+        for h in hyps:
+            sims = np.array([DataStructs.TanimotoSimilarity(fp(h.graph), fp(t)) for t in train])
+            other = np.array([keep or not same(h.graph, t) for t in train])
+            equal_seen += int((~other).any())
+            expected = (ww[other] @ sims[other]) / ww[other].sum()
+            assert h.score == pytest.approx(expected, abs=1e-9)
+    if not keep:
+        assert equal_seen > 0  # some hypotheses were training graphs: the rule was exercised

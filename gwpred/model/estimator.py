@@ -607,6 +607,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         n_anchors: int = 3,
         n_expand: int = 3,
         n_rounds: int = 2,
+        keep_self_terms: bool = False,
     ) -> list[HypothesisList]:
         """Up to ``k`` distinct graphs per input, best first, each with a score and a confidence.
 
@@ -645,6 +646,10 @@ class BarycenterGraphPredictor(BaseEstimator):
             top-1 but 29% vs 17% top-10: choose by measurement for your data.
         n_anchors, n_expand, n_rounds : int, default=3, 3 and 2
             Extra anchors; members expanded per round and rounds of the local search.
+        keep_self_terms : bool, default=False
+            Whether a hypothesis equal to one of the input's training graphs
+            keeps that graph's own term in its score (see
+            :func:`~gwpred.model.hypotheses.generate_hypotheses`).
 
         Returns
         -------
@@ -662,7 +667,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         settings = self._settings(self.valence_ or any(f is not None for f in parsed))
         return generate_hypotheses(
             self, idx, w, parsed, settings, k=top_k, output_kernel=output_kernel, n_anchors=n_anchors,
-            n_expand=n_expand, n_rounds=n_rounds, batch_size=self.batch_size, progress=self.progress,
+            n_expand=n_expand, n_rounds=n_rounds, keep_self_terms=keep_self_terms, batch_size=self.batch_size,
+            progress=self.progress,
             calibration=getattr(self, "hypothesis_calibration_", None) if calibration is None else (
                 calibration or None),
         )

@@ -596,12 +596,42 @@ def _same(g: nx.Graph, h: nx.Graph, labels: LabelSpace) -> bool:
     return nx.is_isomorphic(g, h, node_match=nm, edge_match=em)
 
 
+def _drop_self_terms(score: float, own_weight: float) -> float:
+    r"""The score of a candidate equal to training graphs of total weight ``own_weight``, without their terms.
+
+    With :math:`S` the input's training graphs label-isomorphic to the
+    candidate :math:`c` (so :math:`k(y_j, c) = 1` for :math:`j \in S`, for
+    the normalised WL kernel and fingerprint Tanimoto alike),
+
+    .. math::
+
+        \frac{\sum_{i \notin S} w_i k(y_i, c)}{\sum_{i \notin S} w_i}
+        = \frac{\text{score} - w_S}{1 - w_S},
+
+    the agreement of the *other* training graphs with ``c``: a training graph
+    no longer outranks new graphs merely for agreeing with itself (the usual
+    leave-one-out correction of a kernel mean).  A candidate equal to every
+    weighted graph keeps its score.
+    """
+    if own_weight <= 0.0 or own_weight >= 1.0 - 1e-12:
+        return score
+    return (score - own_weight) / (1.0 - own_weight)
+
+
 class _Pool:
     """One input's distinct candidates, their scores and sources."""
 
-    def __init__(self, view: _FixedNeighbours, row: int, labels: LabelSpace, output_kernel: str) -> None:
+    def __init__(self, view: _FixedNeighbours, row: int, labels: LabelSpace, output_kernel: str,
+                 own: list[tuple[nx.Graph, float]] | None = None) -> None:
         self.view, self.row, self.labels, self.output_kernel = view, row, labels, output_kernel
         self.space = LabelIds.of(labels)
+        # the input's weighted training graphs, by WL hash: a candidate equal to one of them
+        # loses that graph's own term k(y_j, y_j) = 1 (see _drop_self_terms)
+        self.own: dict[int, list[tuple[nx.Graph, float]]] = {}
+        if own:
+            hashes = wl_graph_hashes(CandidateLibrary([g for g, _ in own]), labels).tolist()
+            for (g, w), h in zip(own, hashes):
+                self.own.setdefault(h, []).append((g, w))
         self.graphs: list[nx.Graph] = []
         self.sources: list[str] = []
         self.scores: list[float] = []
@@ -641,6 +671,9 @@ class _Pool:
             fresh.append(j)
         if fresh:
             scores = _kernel_scores(self.view, self.row, library, fresh, self.output_kernel)
+            for pos, j in enumerate(fresh):
+                same = [w for g, w in self.own.get(hashes[j], []) if _same(items[j][0], g, self.labels)]
+                scores[pos] = _drop_self_terms(float(scores[pos]), float(sum(same)))
             self.scores[len(self.scores) - len(fresh) :] = scores.tolist()
 
     def order(self) -> list[int]:
@@ -682,6 +715,7 @@ def generate_hypotheses(
     n_expand: int = 3,
     n_rounds: int = 2,
     calibration: HypothesisCalibration | dict[str, HypothesisCalibration] | None = None,
+    keep_self_terms: bool = False,
     batch_size: int = 64,
     progress: bool = False,
 ) -> list[HypothesisList]:
@@ -716,6 +750,12 @@ def generate_hypotheses(
         ``{"plain": ..., "formula": ...}`` (inputs without / with a formula; a
         missing key leaves those inputs uncalibrated).  None gives
         uncalibrated confidences (the raw score).
+    keep_self_terms : bool, default=False
+        Score a candidate equal to one of the input's weighted training
+        graphs with that graph's own term :math:`w_j k(y_j, y_j) = w_j`
+        included (True), or without it (False, see ``_drop_self_terms``): on a
+        QM9 validation split without formulas the own terms put a training
+        molecule first for nearly every input.
     batch_size : int, default=64
         Inputs whose barycenters are solved together.
     progress : bool, default=False
@@ -752,7 +792,9 @@ def generate_hypotheses(
             variants.extend(_variants(b, hood, f, settings, voted, n_anchors))
         decoded = _decode_all(variants, fs, settings, counts)
         for b, r in enumerate(batch):
-            pool = _Pool(view, r, labels, output_kernel)
+            own = [] if keep_self_terms else [(training.graph(int(i)), float(w)) for i, w in zip(
+                hoods[b].indices.tolist(), hoods[b].weights.tolist()) if w > 0]
+            pool = _Pool(view, r, labels, output_kernel, own)
             items = decoded[b] + [(g, "neighbour") for g in _neighbour_graphs(
                 hoods[b], training, fs[b], chem, labels, need_valid=molecules)]
             pool.add(items)
