@@ -100,6 +100,7 @@ def _model_params(args: argparse.Namespace) -> dict[str, Any]:
         "edge_label": _edge_label(args),
         "random_state": args.seed,
         "progress": not args.quiet,
+        "predict_with": args.predict_with,
     }
 
 
@@ -145,6 +146,9 @@ def _add_model_options(p: argparse.ArgumentParser, old_top_k: bool = True, kerne
                         "element symbols, edge labels bond orders); auto: on when every training node label "
                         "is an element symbol and every edge label a bond order, off for other graphs; a bare "
                         "--valence means on (default: auto)")
+    g.add_argument("--predict-with", default="decoding", choices=["decoding", "hypotheses"],
+                   help="what predict returns: the decoded barycenter, or the first of the generated hypotheses "
+                        "(more often exact, tens of times slower, one process) (default: decoding)")
     _add_label_options(g)
     g.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
 

@@ -303,3 +303,18 @@ def test_scores_are_weighted_tanimoto_without_self_terms(demo, keep):
             assert h.score == pytest.approx(expected, abs=1e-9)
     if not keep:
         assert equal_seen > 0  # some hypotheses were training graphs: the rule was exercised
+
+
+def test_predict_with_hypotheses_returns_the_first_hypothesis(demo):
+    # the first hypothesis of predict_hypotheses, as predict's answer; the decoding stays the default
+    model, X, _, formulas = demo
+    other = copy.deepcopy(model).set_params(predict_with="hypotheses")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        first = [hyps[0].graph for hyps in model.predict_hypotheses(X[QUERIES], top_k=1, formulas=formulas[QUERIES])]
+    pred = other.predict(X[QUERIES], formulas=formulas[QUERIES])
+    assert all(same(a, b) for a, b in zip(pred, first))
+    assert [rdkit_formula(g) for g in pred] == list(formulas[QUERIES])  # RDKit's formula, hydrogens included
+    assert model.get_params()["predict_with"] == "decoding"
+    with pytest.raises(ValueError, match="predict_with must be 'decoding' or 'hypotheses'"):
+        copy.deepcopy(model).set_params(predict_with="best").predict(X[:1])
