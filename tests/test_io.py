@@ -13,13 +13,14 @@ Reference implementations used as the outside check:
 """
 
 from __future__ import annotations
-import csv
 
+import csv
 import io
 import json
 import os
 import zipfile
 from pathlib import Path
+from types import SimpleNamespace
 
 import networkx as nx
 import numpy as np
@@ -37,6 +38,7 @@ from gwpred.io import (
     save_archive,
     write_features,
     write_graphs,
+    write_hypotheses,
 )
 
 Chem = pytest.importorskip("rdkit.Chem")
@@ -827,3 +829,25 @@ def test_archive_manifest_edits_are_refused(tmp_path: Path) -> None:
     del manifest["manifest_sha256"]
     write_npz(path, arrays, manifest)
     assert load_archive(path)[1]["labels"] == ["N", "C", "O"]
+
+
+def test_write_hypotheses_layouts_and_errors(tmp_path):
+    # Reference: the standard json module and networkx's GraphML reader read the files back.
+    g = nx.path_graph(3)
+    nx.set_node_attributes(g, "C", "label")
+    nx.set_edge_attributes(g, 1, "label")
+    h = SimpleNamespace(graph=g, score=0.5, confidence=0.25, confidence_near=0.5, source="edit")
+    lists = [[h, h], []]
+    write_hypotheses(tmp_path / "h.jsonl", lists, ids=["a", "b"], formulas=["C3H8", None])
+    rows = [json.loads(line) for line in (tmp_path / "h.jsonl").read_text(encoding="utf-8").splitlines()]
+    assert [r["id"] for r in rows] == ["a", "b"] and rows[0]["formula_given"] == "C3H8"
+    assert [x["rank"] for x in rows[0]["ranked"]] == [1, 2] and rows[1]["ranked"] == []
+    write_hypotheses(tmp_path / "h.graphml", lists)
+    back = read_graphs(tmp_path / "h.graphml")
+    assert [b.graph["id"] for b in back] == ["0#1", "0#2"] and back[1].graph["rank"] == 2
+    with pytest.raises(ValueError, match="ids has 1 entries but there are 2 hypothesis lists"):
+        write_hypotheses(tmp_path / "x.jsonl", lists, ids=["a"])
+    with pytest.raises(ValueError, match="unsupported graph file extension|extension"):
+        write_hypotheses(tmp_path / "x.txt", lists)
+    assert not (tmp_path / "x.jsonl").exists()
+
