@@ -3,8 +3,8 @@
 For each input kind (Morgan fingerprints with the Tanimoto kernel; broadened
 spectra with the RBF kernel) and one deterministic split of QM9:
 ``--n-test`` test molecules (never in training), and ``--n-train`` training
-molecules of which the last ``--n-val`` are held out of ``fit`` as the
-validation split.  On the validation split only:
+molecules of which ``--n-val``, drawn at random, are held out of ``fit`` as
+the validation split.  On the validation split only:
 
 * the output kernel of the score is chosen (``wl``, ``fingerprint``,
   ``both``; highest top-1 exact-match rate with formulas, ties to the
@@ -114,7 +114,10 @@ def main() -> None:
     for kind in args.inputs:
         data = load_qm9(features=kind, progress=False)
         train, test = split_indices(len(data), n_train=args.n_train, n_test=args.n_test, random_state=args.seed)
-        fit_idx, val_idx = train[: -args.n_val], train[-args.n_val :]
+        # a random validation part: train is sorted by QM9 index, i.e. by molecule size, so its
+        # tail would hold only the largest molecules
+        held = np.random.default_rng(args.seed).permutation(len(train))
+        fit_idx, val_idx = np.sort(train[held[args.n_val :]]), np.sort(train[held[: args.n_val]])
         gfit = [data.graphs[i] for i in fit_idx]
         model = BarycenterGraphPredictor(kernel=KERNEL[kind], random_state=args.seed).fit(data.X[fit_idx], gfit)
         Xv, gv, fv = data.X[val_idx], [data.graphs[i] for i in val_idx], [data.formulas[i] for i in val_idx]
