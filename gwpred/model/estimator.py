@@ -157,9 +157,10 @@ class BarycenterGraphPredictor(BaseEstimator):
     predict_with : {"decoding", "hypotheses"}, default="decoding"
         What :meth:`predict` returns: the decoded barycenter, or the first of
         :meth:`predict_hypotheses` (scored over a generated pool; on QM9 at
-        10,000 training molecules a lower mean GED and several times the
-        exact matches, but about 0.4 s per input on one process instead of a
-        few ms, and no ``n_jobs``: ``benchmarks/bench_hypotheses.py``).
+        10,000 training molecules exact several times as often, and a lower
+        mean GED except for spectra without a formula, but about 0.5 s per
+        input on one process instead of a few ms, and no ``n_jobs``:
+        ``benchmarks/bench_hypotheses.py``).
     top_k : int, optional
         Old name of ``n_neighbors``; works for one more release, with a
         FutureWarning.
