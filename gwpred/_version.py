@@ -1,3 +1,3 @@
 """The package version (one place; the CLI and model files read it)."""
 
-__version__ = "0.2.0"
+__version__ = "0.3.0.dev0"
