@@ -563,11 +563,11 @@ def _decode_all(variants: list[_Variant], formulas: Sequence[Formula | None], se
     return out
 
 
-def _neighbour_graphs(hood: Neighbourhood, training: TrainingSet, formula: Formula | None,
+def _neighbour_graphs(graphs: list[nx.Graph], formula: Formula | None,
                       chem: _Chem | None, labels: LabelSpace, need_valid: bool) -> list[nx.Graph]:
+    """The input's kept training graphs that may join its pool (formula matched, valences obeyed)."""
     out = []
-    for i in hood.indices.tolist():
-        g = training.graph(i)
+    for g in graphs:
         if formula is not None and not formula_matches(g, formula, node_label=labels.node_label,
                                                        edge_label=labels.edge_label):
             continue
@@ -792,11 +792,11 @@ def generate_hypotheses(
             variants.extend(_variants(b, hood, f, settings, voted, n_anchors))
         decoded = _decode_all(variants, fs, settings, counts)
         for b, r in enumerate(batch):
-            own = [] if keep_self_terms else [(training.graph(int(i)), float(w)) for i, w in zip(
+            kept = [(training.graph(int(i)), float(w)) for i, w in zip(
                 hoods[b].indices.tolist(), hoods[b].weights.tolist()) if w > 0]
-            pool = _Pool(view, r, labels, output_kernel, own)
+            pool = _Pool(view, r, labels, output_kernel, None if keep_self_terms else kept)
             items = decoded[b] + [(g, "neighbour") for g in _neighbour_graphs(
-                hoods[b], training, fs[b], chem, labels, need_valid=molecules)]
+                [g for g, _ in kept], fs[b], chem, labels, need_valid=molecules)]
             pool.add(items)
             if molecules and chem is not None and chem.max_order >= 1:
                 _search(pool, chem, labels, settings, fs[b], n_expand, n_rounds)
