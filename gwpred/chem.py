@@ -31,6 +31,7 @@ from __future__ import annotations
 import numbers
 import os
 import re
+import sys
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from functools import lru_cache
@@ -75,6 +76,9 @@ def rdkit_modules(purpose: str = "this function") -> tuple[Any, Any]:
     The one RDKit check of gwpred: every other module that needs RDKit calls
     this (or a function of this module) first.
     """
+    loaded = sys.modules.get("rdkit"), sys.modules.get("rdkit.Chem"), sys.modules.get("rdkit.rdBase")
+    if all(m is not None for m in loaded):  # the common case, called per molecule: no import machinery
+        return loaded[1], loaded[2]
     return require_extra("rdkit.Chem", purpose), require_extra("rdkit.rdBase", purpose)
 
 
@@ -1052,3 +1056,74 @@ def morgan_fingerprints(
             )
         out[i] = row
     return out
+
+
+def morgan_bits_of_arrays(
+    molecules: Sequence[tuple[Sequence[str], NDArray[np.int64]]], *, radius: int = 2, n_bits: int = 2048
+) -> list[NDArray[np.int32] | None]:
+    """On-bit positions of the Morgan fingerprints of molecules given as arrays.
+
+    The fast path of :func:`morgan_fingerprints` for molecules built in
+    memory (the hypothesis search scores hundreds per input): no networkx
+    graph is built, and each molecule is sanitized as :func:`graph_to_mol`
+    sanitizes (no clean-up, neutral atoms).
+
+    Parameters
+    ----------
+    molecules : sequence of (sequence of str, ndarray)
+        Per molecule, the element symbol of each atom and the symmetric
+        bond-order matrix of shape (n, n) (0: no bond, else 1, 2 or 3).
+    radius, n_bits : int
+        As in :func:`morgan_fingerprints`.
+
+    Returns
+    -------
+    list of (ndarray of int32 or None)
+        Per molecule, the sorted positions of its set bits, equal to
+        ``np.flatnonzero(morgan_fingerprints([graph])[0])`` for the same
+        molecule as a graph; None where RDKit rejects the molecule (use the
+        graph path there, which reports why).
+
+    Examples
+    --------
+    >>> O = np.array([[0, 1, 0], [1, 0, 1], [0, 1, 0]])
+    >>> bits, bad = morgan_bits_of_arrays([(["C", "C", "O"], O), (["F", "F", "F"], O)], n_bits=64)
+    >>> bool((np.flatnonzero(morgan_fingerprints(["CCO"], n_bits=64)[0]) == bits).all()), bad
+    (True, None)
+    """
+    Chem, rdBase = rdkit_modules("morgan_bits_of_arrays")
+    types = _bond_types()
+    generator = _morgan_generator(radius, n_bits)
+    ops = Chem.SanitizeFlags.SANITIZE_ALL  # as _sanitized(..., cleanup=False)
+    ops &= ~Chem.SanitizeFlags.SANITIZE_CLEANUP
+    ops &= ~getattr(Chem.SanitizeFlags, "SANITIZE_CLEANUP_ORGANOMETALLICS", 0)
+    out: list[NDArray[np.int32] | None] = []
+    with rdBase.BlockLogs():
+        for elements, orders in molecules:
+            rw = Chem.RWMol()
+            for symbol in elements:
+                rw.AddAtom(Chem.Atom(symbol))
+            iu, ju = np.nonzero(orders)
+            upper = iu < ju
+            iu, ju = iu[upper], ju[upper]
+            bonds = orders[iu, ju].tolist()
+            if any(o not in types for o in bonds):
+                out.append(None)
+                continue
+            for i, j, o in zip(iu.tolist(), ju.tolist(), bonds):
+                rw.AddBond(i, j, types[o])
+            mol = rw.GetMol()
+            mol.UpdatePropertyCache(strict=False)
+            try:
+                Chem.SanitizeMol(mol, sanitizeOps=ops)
+            except (ValueError, RuntimeError):
+                out.append(None)
+                continue
+            out.append(np.flatnonzero(generator.GetFingerprintAsNumPy(mol)).astype(np.int32))
+    return out
+
+
+@lru_cache(maxsize=8)
+def _morgan_generator(radius: int, n_bits: int) -> Any:
+    rdFingerprintGenerator = require_extra("rdkit.Chem.rdFingerprintGenerator", "Morgan fingerprints")
+    return rdFingerprintGenerator.GetMorganGenerator(radius=radius, fpSize=n_bits)

@@ -530,6 +530,15 @@ def _library_fingerprints(lib: CandidateLibrary, indices: NDArray[np.int64], n_b
     return _sparse_bits([memo[i] for i in idx], n_bits)
 
 
+def remember_fingerprints(library: CandidateLibrary, bits: dict[int, NDArray[np.int32]], n_bits: int = 2048) -> None:
+    """Store Morgan bits computed elsewhere (radius 2, on-bit positions, e.g. from
+    :func:`gwpred.chem.morgan_bits_of_arrays`) as the library's cached fingerprints.
+
+    The caller guarantees that ``bits[i]`` is the fingerprint of ``library.graphs[i]``.
+    """
+    library._memo.setdefault(("fingerprint", 2, n_bits), {}).update(bits)
+
+
 def _wl_rows(encoded: list[tuple], vocabulary: NDArray[np.int64]) -> sp.csr_matrix:
     """Candidate WL rows over the training vocabulary (features unseen in training dropped;
     rows were normalised with all their features)."""

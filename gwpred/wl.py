@@ -39,10 +39,13 @@ __all__ = [
     "array_ids",
     "canonical_order",
     "graph_ids",
+    "remember_wl_encodings",
     "wl_encoder",
+    "wl_encoding",
     "wl_encodings",
     "wl_feature_counts",
     "wl_graph_hashes",
+    "wl_hash",
 ]
 
 #: Per node, its (neighbour position, edge label id) pairs.
@@ -263,11 +266,33 @@ def wl_encoder(
     """
 
     def encode(i: int) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
-        ids = graph_ids(graphs[i], space, f"candidates[{i}]")
-        feats, counts = wl_feature_counts(ids.nodes, ids.adjacency, iterations)
-        return feats, counts / np.linalg.norm(counts)
+        return wl_encoding(graph_ids(graphs[i], space, f"candidates[{i}]"), iterations)
 
     return encode
+
+
+def wl_encoding(ids: IdGraph, iterations: int = 3) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
+    """WL features of one graph and their counts scaled to unit norm (what :func:`wl_encodings` caches)."""
+    feats, counts = wl_feature_counts(ids.nodes, ids.adjacency, iterations)
+    return feats, counts / np.linalg.norm(counts)
+
+
+def wl_hash(encoding: tuple[NDArray[np.int64], NDArray[np.float64]]) -> int:
+    """The 64-bit hash :func:`wl_graph_hashes` gives a graph of this :func:`wl_encoding`."""
+    f, v = encoding
+    return int(np.frombuffer(hashlib.blake2b(f.tobytes() + v.tobytes(), digest_size=8).digest(), dtype=np.int64)[0])
+
+
+def remember_wl_encodings(
+    library: EncodingCache, space: LabelIds, encodings: dict[int, tuple[NDArray[np.int64], NDArray[np.float64]]],
+    iterations: int = 3,
+) -> None:
+    """Store encodings computed elsewhere (e.g. from arrays) as the library's cached ones.
+
+    ``encodings`` maps a library index to its :func:`wl_encoding`; the caller
+    guarantees that each is the encoding of ``library.graphs[index]``.
+    """
+    library.cached(("wl", space.key, iterations), list(encodings), encodings.__getitem__)
 
 
 def wl_encodings(

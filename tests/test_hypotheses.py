@@ -243,6 +243,40 @@ def test_single_edits_of_propane():
         assert nx.is_connected(g) and all(d <= 4 for _, d in g.degree(weight="label"))
 
 
+def test_array_path_equals_graph_path(demo):
+    # The local search hashes, certifies and fingerprints edits from their arrays; each must
+    # equal what the graph path gives for the same edit built as a networkx graph by
+    # LabelSpace.build_graph (reference: networkx graph equality and gwpred's graph path).
+    from gwpred.model.hypotheses import _chem, _edit_ids, _ids_certificate, _to_arrays, _to_graph
+    from gwpred.ranking import CandidateLibrary
+    from gwpred.wl import LabelIds, graph_ids, wl_encoding, wl_graph_hashes, wl_hash
+
+    model, _, graphs, _ = demo
+    chem = _chem(model._settings(True))
+    space = LabelIds.of(model.labels_)
+    checked = 0
+    for g in graphs[600:610]:
+        cls, O = _to_arrays(g, model.labels_, chem)
+        edits = single_edits(cls, O, chem.valences, max_order=chem.max_order, fixed_counts=False,
+                             fixed_total=False)
+        built = [_to_graph(c, M, model.labels_, chem) for c, M in edits]
+        hashes = wl_graph_hashes(CandidateLibrary(built), model.labels_).tolist()
+        for (c, M), h, b in zip(edits, hashes, built):
+            iu, ju = np.nonzero(np.triu(M, 1))
+            ref = model.labels_.build_graph(c, np.stack([iu, ju], 1), [chem.order_class[int(o)] for o in M[iu, ju]])
+            assert nx.utils.graphs_equal(b, ref)
+            ids = _edit_ids(c, M, chem)
+            assert ids == graph_ids(ref, space, "ref")
+            assert wl_hash(wl_encoding(ids, 3)) == h
+            checked += 1
+        # isomorphic edits share a certificate, others differ (networkx is the reference)
+        for (c1, M1), b1, (c2, M2), b2 in itertools.islice(
+                ((*x, *y) for x, y in itertools.combinations(zip(edits, built), 2)), 200):
+            equal = _ids_certificate(_edit_ids(c1, M1, chem)) == _ids_certificate(_edit_ids(c2, M2, chem))
+            assert equal == same(b1, b2)
+    assert checked > 100
+
+
 def test_expected_calibration_error_direct():
     conf = np.array([0.05, 0.15, 0.95, 0.95])
     hit = np.array([0, 1, 1, 0])

@@ -53,8 +53,9 @@ probability.  Generated molecules are hypotheses to check, never results.
 from __future__ import annotations
 
 import warnings
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
+from functools import lru_cache
 from typing import Any, Protocol
 
 import networkx as nx
@@ -68,8 +69,18 @@ from ..codec import LabelSpace, TrainingSet
 from ..formula import Formula, formula_matches, graph_formula
 from ..ged import edit_distance, edit_distance_bounds
 from ..metrics import expected_calibration_error
-from ..ranking import CandidateLibrary, rank_candidates
-from ..wl import LabelIds, canonical_order, graph_ids, wl_graph_hashes
+from ..chem import morgan_bits_of_arrays
+from ..ranking import CandidateLibrary, rank_candidates, remember_fingerprints
+from ..wl import (
+    IdGraph,
+    LabelIds,
+    canonical_order,
+    graph_ids,
+    remember_wl_encodings,
+    wl_encoding,
+    wl_graph_hashes,
+    wl_hash,
+)
 from .steps import (
     Neighbourhood,
     Settings,
@@ -352,21 +363,47 @@ def _to_arrays(g: nx.Graph, labels: LabelSpace, chem: _Chem) -> tuple[NDArray[np
     return cls, O
 
 
+@lru_cache(maxsize=64)
+def _pairs(n: int) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """Upper-triangle index pairs (i < j) of an n-node graph."""
+    return np.triu_indices(n, 1)
+
+
+def _bonds(O: NDArray[np.int64]) -> tuple[list[int], list[int], list[int]]:
+    """Bonded pairs (i < j) of a bond-order matrix and their orders, as lists."""
+    iu, ju = _pairs(len(O))
+    o = O[iu, ju]
+    on = np.flatnonzero(o)
+    return iu[on].tolist(), ju[on].tolist(), o[on].tolist()
+
+
 def _to_graph(cls: NDArray[np.int64], O: NDArray[np.int64], labels: LabelSpace, chem: _Chem) -> nx.Graph:
-    iu, ju = np.nonzero(np.triu(O, 1))
-    return labels.build_graph(cls, np.stack([iu, ju], 1), [chem.order_class[int(o)] for o in O[iu, ju]])
+    """The labeled graph of ``(cls, O)``: equal to ``labels.build_graph`` of its bonds (nodes
+    0..n-1 with their labels, each bond with the edge label of its order), built without
+    that method's checks, which arrays from the search always pass."""
+    node_label, edge_label = labels.node_label, labels.edge_label
+    names, edge_names = labels.node_labels_, labels.edge_labels_
+    g = nx.Graph()
+    g.add_nodes_from((i, {node_label: names[c]}) for i, c in enumerate(cls.tolist()))
+    for i, j, o in zip(*_bonds(O)):
+        lab = edge_names[chem.order_class[o]]
+        if edge_label is None or lab is None:
+            g.add_edge(i, j)
+        else:
+            g.add_edge(i, j, **{edge_label: lab})
+    return g
 
 
 def _connected(O: NDArray[np.int64]) -> bool:
-    n = len(O)
-    seen = np.zeros(n, dtype=bool)
-    seen[0] = True
-    frontier = seen.copy()
-    A = O > 0
-    while frontier.any():
-        frontier = A[frontier].any(0) & ~seen
-        seen |= frontier
-    return bool(seen.all())
+    rows = (O > 0).tolist()
+    seen = {0}
+    stack = [0]
+    while stack:
+        for u, bonded in enumerate(rows[stack.pop()]):
+            if bonded and u not in seen:
+                seen.add(u)
+                stack.append(u)
+    return len(seen) == len(rows)
 
 
 def _obeys_valence(cls: NDArray[np.int64], O: NDArray[np.int64], chem: _Chem) -> bool:
@@ -423,7 +460,18 @@ def single_edits(
     again, renumbered); without, also C=C-C, C-C=C and cyclopropane.
     """
     n = len(cls)
-    free = valences[cls] - O.sum(1)
+    free = (valences[cls] - O.sum(1)).tolist()
+
+    def fits(down: tuple[int, int], up: tuple[int, int], amount: int) -> bool:
+        """Whether every node keeps free valence >= 0 when the pair ``down`` gains
+        ``amount`` bond order and the pair ``up`` gives it back."""
+        change: dict[int, int] = {}
+        for v in down:
+            change[v] = change.get(v, 0) - amount
+        for v in up:
+            change[v] = change.get(v, 0) + amount
+        return all(free[v] + d >= 0 for v, d in change.items())
+
     iu, ju = np.triu_indices(n, 1)
     pairs = list(zip(iu.tolist(), ju.tolist()))
     bonds = [(i, j) for i, j in pairs if O[i, j] > 0]
@@ -441,12 +489,7 @@ def single_edits(
         if O[a, b] >= max_order:
             continue
         for c, d in bonds:
-            if (c, d) == (a, b):
-                continue
-            f = free.copy()
-            f[[a, b]] -= 1
-            f[[c, d]] += 1
-            if np.any(f < 0):
+            if (c, d) == (a, b) or not fits((a, b), (c, d), 1):
                 continue
             M = O.copy()
             M[a, b] += 1
@@ -460,12 +503,7 @@ def single_edits(
         if o < 2:
             continue  # order-1 moves are covered above
         for a, b in pairs:
-            if O[a, b] or (a, b) == (c, d):
-                continue
-            f = free.copy()
-            f[[a, b]] -= o
-            f[[c, d]] += o
-            if np.any(f < 0):
+            if O[a, b] or (a, b) == (c, d) or not fits((a, b), (c, d), o):
                 continue
             M = O.copy()
             M[a, b] = M[b, a] = o
@@ -581,12 +619,25 @@ def _neighbour_graphs(graphs: list[nx.Graph], formula: Formula | None,
 def _certificate(g: nx.Graph, space: LabelIds) -> tuple:
     """The labeled adjacency in :func:`gwpred.wl.canonical_order`: equal certificates prove two
     graphs isomorphic (unequal ones are checked with networkx)."""
-    ids = graph_ids(g, space, "hypothesis")
+    return _ids_certificate(graph_ids(g, space, "hypothesis"))
+
+
+def _ids_certificate(ids: IdGraph) -> tuple:
     order = canonical_order(ids.nodes, ids.adjacency)
     where = {v: i for i, v in enumerate(order)}
     edges = sorted((min(where[v], where[u]), max(where[v], where[u]), e)
                    for v, nbrs in enumerate(ids.adjacency) for u, e in nbrs if v < u)
     return tuple(ids.nodes[v] for v in order), tuple(edges)
+
+
+def _edit_ids(cls: NDArray[np.int64], O: NDArray[np.int64], chem: _Chem) -> IdGraph:
+    """An edited graph as label ids, equal to ``graph_ids(_to_graph(cls, O, ...))`` without the graph."""
+    adjacency: list[list[tuple[int, int]]] = [[] for _ in range(len(cls))]
+    for i, j, o in zip(*_bonds(O)):
+        e = chem.order_class[o]
+        adjacency[i].append((j, e))
+        adjacency[j].append((i, e))
+    return IdGraph(cls.tolist(), adjacency)
 
 
 def _same(g: nx.Graph, h: nx.Graph, labels: LabelSpace) -> bool:
@@ -644,13 +695,20 @@ class _Pool:
             self.certs[m] = _certificate(self.graphs[m], self.space)
         return self.certs[m]  # type: ignore[return-value]
 
-    def _seen(self, g: nx.Graph, group: list[int]) -> bool:
-        """Whether ``g`` is one of the pool graphs of its WL hash: an equal canonical certificate
+    def _seen(self, cert: tuple, graph: Callable[[], nx.Graph], group: list[int]) -> bool:
+        """Whether a graph is one of the pool graphs of its WL hash: an equal canonical certificate
         proves it; with none equal, networkx decides (a certificate search may stop early)."""
-        cert = _certificate(g, self.space)
         if any(self._cert(m) == cert for m in group):
             return True
+        g = graph()
         return any(_same(g, self.graphs[m], self.labels) for m in group)
+
+    def _keep(self, g: nx.Graph, source: str, h: int, cert: tuple | None) -> None:
+        self.groups.setdefault(h, []).append(len(self.graphs))
+        self.graphs.append(g)
+        self.sources.append(source)
+        self.scores.append(np.nan)
+        self.certs.append(cert)
 
     def add(self, items: list[tuple[nx.Graph, str]]) -> None:
         """Score the graphs among ``items`` that are new (WL hash, then isomorphism) and keep them."""
@@ -660,21 +718,56 @@ class _Pool:
         hashes = wl_graph_hashes(library, self.labels).tolist()  # also caches the WL encodings scoring uses
         fresh: list[int] = []
         for j, ((g, source), h) in enumerate(zip(items, hashes)):
-            group = self.groups.setdefault(h, [])
-            if group and self._seen(g, group):
+            group = self.groups.get(h)
+            if group and self._seen(_certificate(g, self.space), lambda g=g: g, group):
                 continue
-            group.append(len(self.graphs))
-            self.graphs.append(g)
-            self.sources.append(source)
-            self.scores.append(np.nan)
-            self.certs.append(None)
+            self._keep(g, source, h, None)
             fresh.append(j)
-        if fresh:
-            scores = _kernel_scores(self.view, self.row, library, fresh, self.output_kernel)
-            for pos, j in enumerate(fresh):
-                same = [w for g, w in self.own.get(hashes[j], []) if _same(items[j][0], g, self.labels)]
-                scores[pos] = _drop_self_terms(float(scores[pos]), float(sum(same)))
-            self.scores[len(self.scores) - len(fresh) :] = scores.tolist()
+        self._score(library, fresh, [hashes[j] for j in fresh])
+
+    def add_edits(self, edits: list[tuple[NDArray[np.int64], NDArray[np.int64]]], chem: _Chem,
+                  source: str = "edit") -> None:
+        """As :meth:`add`, for graphs given as arrays ``(cls, O)`` (the local search's moves): hashes,
+        certificates and fingerprints come from the arrays, and only new graphs are built."""
+        graphs: list[nx.Graph] = []
+        encodings: dict[int, tuple[NDArray[np.int64], NDArray[np.float64]]] = {}
+        arrays: list[tuple[list[str], NDArray[np.int64]]] = []
+        hashes: list[int] = []
+        symbols = [str(v) for v in self.labels.node_labels_]
+        for cls, O in edits:
+            ids = _edit_ids(cls, O, chem)
+            enc = wl_encoding(ids, 3)
+            h = wl_hash(enc)
+            group = self.groups.get(h)
+            cert = None
+            if group:
+                cert = _ids_certificate(ids)
+                if self._seen(cert, lambda: _to_graph(cls, O, self.labels, chem), group):
+                    continue
+            g = _to_graph(cls, O, self.labels, chem)
+            self._keep(g, source, h, cert)
+            encodings[len(graphs)] = enc
+            arrays.append(([symbols[c] for c in ids.nodes], O))
+            graphs.append(g)
+            hashes.append(h)
+        if not graphs:
+            return
+        library = CandidateLibrary(graphs)
+        remember_wl_encodings(library, self.space, encodings, 3)
+        if self.output_kernel in ("fingerprint", "both"):
+            bits = morgan_bits_of_arrays(arrays)
+            remember_fingerprints(library, {j: b for j, b in enumerate(bits) if b is not None})
+        self._score(library, list(range(len(graphs))), hashes)
+
+    def _score(self, library: CandidateLibrary, fresh: list[int], hashes: list[int]) -> None:
+        """Kernel scores of ``library`` members ``fresh``, the pool's last ``len(fresh)`` graphs."""
+        if not fresh:
+            return
+        scores = _kernel_scores(self.view, self.row, library, fresh, self.output_kernel)
+        for pos, (j, h) in enumerate(zip(fresh, hashes)):
+            same = [w for g, w in self.own.get(h, []) if _same(library.graphs[j], g, self.labels)]
+            scores[pos] = _drop_self_terms(float(scores[pos]), float(sum(same)))
+        self.scores[len(self.scores) - len(fresh) :] = scores.tolist()
 
     def order(self) -> list[int]:
         """Positions by decreasing score (ties: first found first)."""
@@ -687,7 +780,7 @@ def _search(pool: _Pool, chem: _Chem, labels: LabelSpace, settings: Settings, fo
         todo = [m for m in pool.order() if m not in pool.expanded][:n_expand]
         if not todo:
             return
-        items: list[tuple[nx.Graph, str]] = []
+        items: list[tuple[NDArray[np.int64], NDArray[np.int64]]] = []
         for m in todo:
             pool.expanded.add(m)
             cls, O = _to_arrays(pool.graphs[m], labels, chem)
@@ -697,8 +790,8 @@ def _search(pool: _Pool, chem: _Chem, labels: LabelSpace, settings: Settings, fo
                 cls, O, chem.valences, max_order=chem.max_order, fixed_counts=formula is not None,
                 fixed_total=formula is not None and formula.hydrogens is not None, connected=settings.connect,
             )
-            items.extend((_to_graph(c, M, labels, chem), "edit") for c, M in edits)
-        pool.add(items)
+            items.extend(edits)
+        pool.add_edits(items, chem)
 
 
 # --------------------------------------------------------------------------- entry points
