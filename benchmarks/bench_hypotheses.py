@@ -11,7 +11,9 @@ the validation split.  On the validation split only:
   earlier), and "agreement with the decoding" (a bonus ``beta`` to the
   hypothesis the ordinary decoding found) is measured as a re-ranking of
   the lists;
-* the calibration map (isotonic regression, scikit-learn) is fitted.
+* the calibration map (isotonic regression, scikit-learn) is fitted, and the
+  mean GED of the first hypothesis and of the ordinary decoding are measured
+  (what ``predict_with="auto"`` decides by).
 
 On the test split, with and without formulas, side by side: 1-NN retrieval,
 ``predict``, and ``predict_hypotheses(k)``: top-1/5/10 exact-match rates
@@ -152,7 +154,12 @@ def main() -> None:
         nearest = [gfit[j] for j in nn]
         for mode, forms in (("formula", ft), ("no formula", None)):
             kern = chosen[mode]
-            cal = calibration_from(val_lists[(mode, kern)], gv, model.labels_, {"output_kernel": kern})
+            val_forms = fv if forms is not None else None
+            cal = calibration_from(val_lists[(mode, kern)], gv, model.labels_, {"output_kernel": kern},
+                                   decoded=model.predict(Xv, formulas=val_forms))
+            print(f"validation, {mode}: mean GED first hypothesis {cal.ged_first:.3f}, decoding "
+                  f"{cal.ged_decoding:.3f} -> predict_with='auto' returns the "
+                  f"{'first hypothesis' if cal.prefers_hypotheses else 'decoding'}")
             t0 = time.perf_counter()
             pred = model.predict(Xt, formulas=forms)
             sec_pred = (time.perf_counter() - t0) / len(Xt)

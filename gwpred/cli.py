@@ -146,9 +146,11 @@ def _add_model_options(p: argparse.ArgumentParser, old_top_k: bool = True, kerne
                         "element symbols, edge labels bond orders); auto: on when every training node label "
                         "is an element symbol and every edge label a bond order, off for other graphs; a bare "
                         "--valence means on (default: auto)")
-    g.add_argument("--predict-with", default="decoding", choices=["decoding", "hypotheses"],
+    g.add_argument("--predict-with", default="auto", choices=["auto", "decoding", "hypotheses"],
                    help="what predict returns: the decoded barycenter, or the first of the generated hypotheses "
-                        "(more often exact, tens of times slower, one process) (default: decoding)")
+                        "(more often exact, tens of times slower, one process); auto takes the first hypothesis "
+                        "where it was closer to the truth on the calibration pairs (fit --calibration-share), "
+                        "else the decoding (default: auto)")
     _add_label_options(g)
     g.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
 

@@ -18,6 +18,7 @@ Outside references used here:
 from __future__ import annotations
 
 import copy
+import dataclasses
 import itertools
 import warnings
 
@@ -189,6 +190,10 @@ def test_model_calibrate_save_and_load(demo, tmp_path):
     for a, b in zip(lists, again):
         assert [(h.score, h.confidence, h.confidence_near) for h in a] == [
             (h.score, h.confidence, h.confidence_near) for h in b]
+    for case, cal in model.hypothesis_calibration_.items():  # the measured GEDs come back too
+        assert np.isfinite(cal.ged_first) and np.isfinite(cal.ged_decoding)
+        assert (back.hypothesis_calibration_[case].ged_first, back.hypothesis_calibration_[case].ged_decoding) == (
+            cal.ged_first, cal.ged_decoding)
     # a damaged calibration is refused with the file named, never used
     arrays, manifest = load_archive(path)
     manifest["hypothesis_calibration"]["plain"]["probabilities"][0] = 1.5
@@ -349,6 +354,38 @@ def test_predict_with_hypotheses_returns_the_first_hypothesis(demo):
     pred = other.predict(X[QUERIES], formulas=formulas[QUERIES])
     assert all(same(a, b) for a, b in zip(pred, first))
     assert [rdkit_formula(g) for g in pred] == list(formulas[QUERIES])  # RDKit's formula, hydrogens included
-    assert model.get_params()["predict_with"] == "decoding"
-    with pytest.raises(ValueError, match="predict_with must be 'decoding' or 'hypotheses'"):
+    # the default, "auto", decodes when the model has no calibration
+    assert model.get_params()["predict_with"] == "auto" and not hasattr(model, "hypothesis_calibration_")
+    decoded = copy.deepcopy(model).set_params(predict_with="decoding").predict(X[QUERIES], formulas=formulas[QUERIES])
+    assert all(same(a, b) for a, b in zip(model.predict(X[QUERIES], formulas=formulas[QUERIES]), decoded))
+    with pytest.raises(ValueError, match=r"predict_with must be one of \['auto', 'decoding', 'hypotheses'\]"):
         copy.deepcopy(model).set_params(predict_with="best").predict(X[:1])
+
+
+def test_auto_follows_the_measured_geds(demo):
+    # "auto": per input, the first hypothesis where its case's calibration measured the lower
+    # mean GED, else the decoding. The GEDs are gwpred.ged's (checked against networkx in
+    # tests/test_ged_limits.py); here they are recomputed pair by pair as the reference.
+    from gwpred.ged import edit_distance
+
+    model, X, graphs, formulas = demo
+    model = copy.deepcopy(model)
+    model.calibrate(X[HELD_OUT], graphs[HELD_OUT], top_k=3, n_rounds=1)
+    plain = model.hypothesis_calibration_["plain"]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        firsts = [h[0].graph for h in model.predict_hypotheses(X[HELD_OUT], top_k=3, n_rounds=1)]
+    decoded = copy.deepcopy(model).set_params(predict_with="decoding").predict(X[HELD_OUT])
+    truth = graphs[HELD_OUT]
+    assert plain.ged_first == pytest.approx(np.mean([edit_distance(a, t).upper for a, t in zip(firsts, truth)]))
+    assert plain.ged_decoding == pytest.approx(np.mean([edit_distance(a, t).upper for a, t in zip(decoded, truth)]))
+    # force the choice both ways: plain inputs -> first hypothesis, formula inputs -> decoding
+    cal = model.hypothesis_calibration_
+    cal["plain"] = dataclasses.replace(cal["plain"], ged_first=1.0, ged_decoding=2.0)
+    cal["formula"] = dataclasses.replace(cal["formula"], ged_first=2.0, ged_decoding=1.0)
+    mixed = [None, formulas[601], None]
+    pred = model.predict(X[600:603], formulas=mixed)
+    by_decoding = copy.deepcopy(model).set_params(predict_with="decoding").predict(X[600:603], formulas=mixed)
+    by_hypotheses = copy.deepcopy(model).set_params(predict_with="hypotheses").predict(X[600:603], formulas=mixed)
+    assert [same(a, b) for a, b in zip(pred, by_hypotheses)][::2] == [True, True]
+    assert same(pred[1], by_decoding[1])

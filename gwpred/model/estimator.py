@@ -27,6 +27,9 @@ from ..parallel import N_JOBS_RULE, batch_slices, parallel_map
 from ..ranking import rank_candidates
 from ..weights import KERNELS, KernelRidgeWeights, LocalRidgeWeights
 from .hypotheses import HypothesisCalibration, HypothesisList, calibrate_cases, generate_hypotheses
+
+#: Values of ``predict_with``.
+PREDICT_WITH = ("auto", "decoding", "hypotheses")
 from .steps import (
     DECODERS,
     Settings,
@@ -154,13 +157,17 @@ class BarycenterGraphPredictor(BaseEstimator):
         paid once per batch.  A batch is also the unit of work of ``n_jobs``
         workers.  ``1`` solves one query at a time; the predictions are the
         same (``benchmarks/bench_batch.py``).
-    predict_with : {"decoding", "hypotheses"}, default="decoding"
-        What :meth:`predict` returns: the decoded barycenter, or the first of
-        :meth:`predict_hypotheses` (scored over a generated pool; on QM9 at
-        10,000 training molecules exact several times as often, and a lower
-        mean GED except for spectra without a formula, but about 0.5 s per
-        input on one process instead of a few ms, and no ``n_jobs``:
-        ``benchmarks/bench_hypotheses.py``).
+    predict_with : {"auto", "decoding", "hypotheses"}, default="auto"
+        What :meth:`predict` returns: the decoded barycenter (``"decoding"``),
+        or the first of :meth:`predict_hypotheses` (``"hypotheses"``: scored
+        over a generated pool; on QM9 exact several times as often, but tens
+        of times slower per input and one process, no ``n_jobs``:
+        ``benchmarks/bench_hypotheses.py``).  ``"auto"`` decides per input
+        from the model's calibration (:meth:`calibrate` or
+        ``fit(calibration_share=...)``): the first hypothesis where, for
+        inputs of that case (with / without a formula), it had the lower mean
+        GED on the held-out pairs, else the decoding; an uncalibrated model
+        decodes.
     top_k : int, optional
         Old name of ``n_neighbors``; works for one more release, with a
         FutureWarning.
@@ -210,7 +217,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         "weight_model": Rule(Options(WEIGHT_MODELS)),
         "local_size": _POSITIVE_INT,
         "batch_size": _POSITIVE_INT,
-        "predict_with": Rule(Options(("decoding", "hypotheses"))),
+        "predict_with": Rule(Options(PREDICT_WITH)),
         "alpha": Rule(Interval(0.0, 1.0)),
         "n_nodes": Rule(Options(("vote",)), Interval(1, np.inf, integer=True)),
         "max_outer": _POSITIVE_INT,
@@ -253,7 +260,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         weight_model: str = "auto",
         local_size: int = 500,
         batch_size: int = 256,
-        predict_with: str = "decoding",
+        predict_with: str = "auto",
         top_k: int | str = "deprecated",
     ) -> None:
         self.kernel = kernel
@@ -605,21 +612,41 @@ class BarycenterGraphPredictor(BaseEstimator):
             that cannot be read, holds elements unseen in training, or that
             no connected molecule of its atoms can have.
         """
-        if self.predict_with not in ("decoding", "hypotheses"):
-            raise ValueError(f"predict_with must be 'decoding' or 'hypotheses'; got {self.predict_with!r}.")
-        if self.predict_with == "decoding":
+        if self.predict_with not in PREDICT_WITH:
+            raise ValueError(f"predict_with must be one of {list(PREDICT_WITH)}; got {self.predict_with!r}.")
+        cal = getattr(self, "hypothesis_calibration_", None) or {}
+        if self.predict_with == "decoding" or (self.predict_with == "auto" and not any(
+                c.prefers_hypotheses for c in cal.values())):
             return self._map(predict_batch, X, formulas, decode=True)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", UserWarning)  # one hypothesis is all that is asked
-            lists = self.predict_hypotheses(X, top_k=1, formulas=formulas, calibration=False)
-        out: list[nx.Graph | None] = [hyps[0].graph if hyps else None for hyps in lists]
-        empty = [r for r, g in enumerate(out) if g is None]
-        if empty:  # no valid pool member: the ordinary path says why (or decodes)
-            rows = check_inputs(X, compact=True)[empty]
-            parsed = None if formulas is None else [list(formulas)[r] for r in empty]
-            for r, g in zip(empty, self._map(predict_batch, rows, parsed, decode=True)):
+        rows = check_inputs(X, compact=True)
+        forms = None if formulas is None else list(formulas)
+        if forms is not None and len(forms) != len(rows):
+            raise ValueError(f"formulas has {len(forms)} entries for {len(rows)} inputs; give one (or None) per row.")
+        by_hypotheses = self._predicts_by_hypotheses(forms, len(rows))
+        out: list[nx.Graph | None] = [None] * len(rows)
+        if by_hypotheses.any():
+            chosen = np.flatnonzero(by_hypotheses)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", UserWarning)  # one hypothesis is all that is asked
+                lists = self.predict_hypotheses(rows[chosen], top_k=1, calibration=False,
+                                                formulas=None if forms is None else [forms[r] for r in chosen])
+            for r, hyps in zip(chosen.tolist(), lists):
+                out[r] = hyps[0].graph if hyps else None
+        rest = [r for r, g in enumerate(out) if g is None]  # decoding, or no valid pool member
+        if rest:  # (then the ordinary path says why, or decodes)
+            parsed = None if forms is None else [forms[r] for r in rest]
+            for r, g in zip(rest, self._map(predict_batch, rows[rest], parsed, decode=True)):
                 out[r] = g
         return out  # type: ignore[return-value]
+
+    def _predicts_by_hypotheses(self, formulas: list | None, n: int) -> NDArray[np.bool_]:
+        """Per input, whether :meth:`predict` returns the first hypothesis (see ``predict_with``)."""
+        if self.predict_with != "auto":
+            return np.full(n, self.predict_with == "hypotheses")
+        cal = getattr(self, "hypothesis_calibration_", None) or {}
+        prefers = {case: c.prefers_hypotheses for case, c in cal.items()}
+        cases = ["plain" if formulas is None or formulas[r] is None else "formula" for r in range(n)]
+        return np.array([prefers.get(case, False) for case in cases], dtype=bool)
 
     def predict_hypotheses(
         self,
@@ -736,7 +763,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         check_is_fitted(self, "weights_")
         graphs = [y] if isinstance(y, nx.Graph) else list(y)
         settings = self._settings(True) if self.valence_ else None
-        out = calibrate_cases(self, X, graphs, settings, top_k=top_k, **options)
+        out = calibrate_cases(self, X, graphs, settings, top_k=top_k,
+                              decode=lambda forms: self._map(predict_batch, X, forms, decode=True), **options)
         self.hypothesis_calibration_ = out
         return self
 

@@ -211,6 +211,11 @@ class HypothesisCalibration:
         whether formulas were given, ...); use it on lists made alike.
     n_hypotheses, n_inputs : int
         Hypotheses and inputs it was fitted on.
+    ged_first, ged_decoding : float
+        Mean graph edit distance to the true graphs, on the calibration
+        inputs, of the first hypothesis and of the ordinary decoding (NaN when
+        not measured); ``predict_with="auto"`` returns the first hypothesis
+        when it was the closer (:attr:`prefers_hypotheses`).
     """
 
     scores: NDArray[np.float64]
@@ -221,6 +226,14 @@ class HypothesisCalibration:
     options: dict
     n_hypotheses: int
     n_inputs: int
+    ged_first: float = float("nan")
+    ged_decoding: float = float("nan")
+
+    @property
+    def prefers_hypotheses(self) -> bool:
+        """Whether the first hypothesis had the lower mean GED on the calibration inputs."""
+        return bool(np.isfinite(self.ged_first) and np.isfinite(self.ged_decoding)
+                    and self.ged_first < self.ged_decoding)
 
     def _u(self, scores: ArrayLike) -> NDArray[np.float64]:
         f = list_features(scores)
@@ -242,6 +255,8 @@ class HypothesisCalibration:
             "near_scores": self.near_scores.tolist(), "near_probabilities": self.near_probabilities.tolist(),
             "margin_weight": float(self.margin_weight), "options": dict(self.options),
             "n_hypotheses": int(self.n_hypotheses), "n_inputs": int(self.n_inputs),
+            "ged_first": float(self.ged_first) if np.isfinite(self.ged_first) else None,
+            "ged_decoding": float(self.ged_decoding) if np.isfinite(self.ged_decoding) else None,
         }
 
     @classmethod
@@ -259,6 +274,8 @@ class HypothesisCalibration:
                       for k in ("scores", "probabilities", "near_scores", "near_probabilities")]
             beta = float(data["margin_weight"])
             options, n_h, n_i = dict(data["options"]), int(data["n_hypotheses"]), int(data["n_inputs"])
+            # optional: files written before these were measured lack them
+            geds = [np.nan if data.get(k) is None else float(data[k]) for k in ("ged_first", "ged_decoding")]
         except (KeyError, TypeError, ValueError) as err:
             raise ValueError(f"a hypothesis calibration needs thresholds, rates and counts ({err})") from err
         for x, y in (arrays[:2], arrays[2:]):
@@ -269,7 +286,9 @@ class HypothesisCalibration:
                                  "non-decreasing in [0, 1], of equal lengths")
         if not np.isfinite(beta) or beta < 0:
             raise ValueError(f"margin_weight must be finite and >= 0; got {beta}")
-        return cls(*arrays, beta, options, n_h, n_i)
+        if any(not np.isnan(g) and not (np.isfinite(g) and g >= 0) for g in geds):
+            raise ValueError(f"ged_first and ged_decoding must be finite and >= 0, or null; got {geds}")
+        return cls(*arrays, beta, options, n_h, n_i, *geds)
 
 
 class HypothesisModel(Protocol):
@@ -981,6 +1000,7 @@ def calibrate_hypotheses(
     formulas: Any = None,
     *,
     top_k: int = 10,
+    decoded: Sequence[nx.Graph] | None = None,
     **options: Any,
 ) -> HypothesisCalibration:
     """Fit the hypothesis confidences on held-out inputs whose graphs are known.
@@ -1002,6 +1022,9 @@ def calibrate_hypotheses(
     formulas : list of (str or None), optional
         As in ``predict_hypotheses``.
     top_k : int, default=10
+    decoded : sequence of networkx.Graph, optional
+        The ordinary decoding of each input, to measure it against the first
+        hypothesis (see :func:`calibration_from`).
     **options
         Passed to ``predict_hypotheses`` (``output_kernel``, ``n_anchors``, ...).
 
@@ -1019,15 +1042,19 @@ def calibrate_hypotheses(
         warnings.simplefilter("ignore", UserWarning)  # short pools are fine here
         lists = model.predict_hypotheses(X, top_k=top_k, formulas=formulas, calibration=False, **options)
     given = formulas is not None and any(f is not None for f in formulas)
-    return calibration_from(lists, graphs, model.labels_, {"top_k": top_k, "formulas": given, **options})
+    return calibration_from(lists, graphs, model.labels_, {"top_k": top_k, "formulas": given, **options},
+                            decoded=decoded)
 
 
 def calibrate_cases(
     model: Any, X: ArrayLike, graphs: Sequence[nx.Graph], settings: Settings | None, *, top_k: int = 10,
-    **options: Any,
+    decode: Callable[[list | None], list[nx.Graph]] | None = None, **options: Any,
 ) -> dict[str, HypothesisCalibration]:
     """``BarycenterGraphPredictor.calibrate``: one calibration without formulas and, for molecules
     (``settings`` with valence tables), one with each true graph's own formula.
+
+    ``decode(formulas)``, when given, is the ordinary decoding of ``X`` (with
+    those formulas, or None), measured against the first hypothesis.
 
     Returns
     -------
@@ -1035,13 +1062,15 @@ def calibrate_cases(
         ``{"plain": ...}``, plus ``"formula"`` for molecules.
     """
     graphs = list(graphs)
-    out = {"plain": calibrate_hypotheses(model, X, graphs, None, top_k=top_k, **options)}
+    out = {"plain": calibrate_hypotheses(model, X, graphs, None, top_k=top_k,
+                                         decoded=None if decode is None else decode(None), **options)}
     if settings is not None and settings.valences is not None:
         labels: LabelSpace = model.labels_
         valences = dict(zip(labels.node_labels_, settings.valences))
         formulas = [graph_formula(g, node_label=labels.node_label, edge_label=labels.edge_label, valences=valences)
                     for g in graphs]
-        out["formula"] = calibrate_hypotheses(model, X, graphs, formulas, top_k=top_k, **options)
+        out["formula"] = calibrate_hypotheses(model, X, graphs, formulas, top_k=top_k,
+                                              decoded=None if decode is None else decode(formulas), **options)
     return out
 
 
@@ -1052,6 +1081,7 @@ def calibration_from(
     options: dict | None = None,
     *,
     time_limit: float = 1.0,
+    decoded: Sequence[nx.Graph] | None = None,
 ) -> HypothesisCalibration:
     """:func:`calibrate_hypotheses` from hypothesis lists already computed for held-out inputs.
 
@@ -1070,7 +1100,12 @@ def calibration_from(
     options : dict, optional
         Options the lists were made with (kept in the calibration).
     time_limit : float, default=1.0
-        Seconds per edit distance of the "within 1" labels.
+        Seconds per edit distance (the "within 1" labels and the mean GEDs).
+    decoded : sequence of networkx.Graph, optional
+        The ordinary decoding of each input (``predict`` with
+        ``predict_with="decoding"``): then the mean GED to the truth of it and
+        of the first hypothesis (the decoding where a list is empty) are
+        measured, each pair exact within ``time_limit`` or else its upper bound.
 
     Returns
     -------
@@ -1082,6 +1117,8 @@ def calibration_from(
         For mismatched lengths or fewer than 2 hypotheses in all.
     """
     graphs = list(graphs)
+    if decoded is not None and len(decoded) != len(graphs):
+        raise ValueError(f"there are {len(decoded)} decoded graphs but {len(graphs)} graphs; pass one per input.")
     if len(lists) != len(graphs):
         raise ValueError(f"there are {len(lists)} hypothesis lists but {len(graphs)} graphs; pass one graph per input.")
     if sum(len(h) for h in lists) < 2:
@@ -1094,7 +1131,21 @@ def calibration_from(
     u = np.concatenate([f[:, 0] + beta * f[:, 1] for f in features])
     x, y = _step_map(u, np.concatenate(hits))
     xn, yn = _step_map(u, np.concatenate(near))
-    return HypothesisCalibration(x, y, xn, yn, float(beta), dict(options or {}), len(u), len(lists))
+    geds = [np.nan, np.nan]
+    if decoded is not None:
+        firsts = [hyps[0].graph if len(hyps) else d for hyps, d in zip(lists, decoded)]
+        geds = [_mean_ged(firsts, graphs, labels, time_limit), _mean_ged(list(decoded), graphs, labels, time_limit)]
+    return HypothesisCalibration(x, y, xn, yn, float(beta), dict(options or {}), len(u), len(lists), *geds)
+
+
+def _mean_ged(graphs: list[nx.Graph], truths: list[nx.Graph], labels: LabelSpace, time_limit: float) -> float:
+    """Mean uniform-cost edit distance, each pair exact within ``time_limit`` s, else its upper bound."""
+    keys = {"node_label": labels.node_label, "edge_label": labels.edge_label}
+    total = 0.0
+    for g, t in zip(graphs, truths):
+        lower, upper = edit_distance_bounds(g, t, **keys)
+        total += upper if lower >= upper else edit_distance(g, t, time_limit=time_limit, **keys).upper
+    return total / max(len(graphs), 1)
 
 
 def recalibrated(lists: Sequence[HypothesisList], calibration: HypothesisCalibration) -> list[HypothesisList]:
