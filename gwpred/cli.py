@@ -60,7 +60,7 @@ class _Names(Sequence):
         return value in self._load()
 
 
-_KERNELS = _Names("weights", "KERNELS", extra=("precomputed",))
+_KERNELS = _Names("weights", "KERNELS", extra=("precomputed", "learned"))
 _DECODERS = _Names("model.steps", "DECODERS")
 _WEIGHT_MODELS = _Names("model.estimator", "WEIGHT_MODELS")
 _SCORERS = _Names("ranking", "SCORERS")
@@ -83,9 +83,23 @@ def _renamed(new: str) -> type[argparse.Action]:
     return Renamed
 
 
+def _json_object(text: str) -> dict[str, Any]:
+    """An option value holding a JSON object."""
+    try:
+        value = json.loads(text)
+    except json.JSONDecodeError as err:
+        raise argparse.ArgumentTypeError(f"not valid JSON ({err}): {text!r}") from err
+    if not isinstance(value, dict):
+        raise argparse.ArgumentTypeError(f"expected a JSON object like '{{\"dim\": 64}}', got {text!r}")
+    return value
+
+
 def _model_params(args: argparse.Namespace) -> dict[str, Any]:
+    if args.embedding is not None and args.kernel != "learned":
+        raise UsageError("--embedding sets the training of --kernel learned; add --kernel learned or drop it")
     return {
         "kernel": args.kernel,
+        "embedding": args.embedding,
         "gamma": args.gamma,
         "ridge": args.ridge,
         "weighting": args.weighting,
@@ -121,6 +135,10 @@ def _add_model_options(p: argparse.ArgumentParser, old_top_k: bool = True, kerne
                        help=argparse.SUPPRESS)
     g.add_argument("--kernel", default="rbf", choices=_KERNELS, metavar="KERNEL",
                    help=f"input kernel: %(choices)s (default: {kernel_default})")
+    g.add_argument("--embedding", type=_json_object, default=None, metavar="JSON",
+                   help="with --kernel learned: training options of the input embedding as a JSON object, e.g. "
+                        "'{\"dim\": 64, \"conv\": [16, 9, 4], \"output_kernel\": \"fingerprint\"}' "
+                        "(needs the neural extra, PyTorch)")
     g.add_argument("--gamma", type=float, default=None,
                    help="rbf/laplacian bandwidth (default: median heuristic)")
     g.add_argument("--ridge", type=float, default=1e-3, help="kernel ridge regularisation (default: 1e-3)")

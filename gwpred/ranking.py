@@ -115,6 +115,8 @@ __all__ = [
     "fgw_candidate_values",
     "prepare_candidates",
     "rank_candidates",
+    "remember_fingerprints",
+    "training_output_features",
     "wl_feature_counts",
     "wl_graph_hashes",
 ]
@@ -614,6 +616,33 @@ def _training_fingerprints(training: TrainingSet, radius: int, n_bits: int) -> s
         graphs = [training.graph(i) for i in range(len(training))]
         training.derived[key] = _sparse_bits(_bits_matrix(graphs, n_bits), n_bits)
     return training.derived[key]
+
+
+def training_output_features(
+    training: TrainingSet, output_kernel: str = "wl", *, wl_iterations: int = 3, fingerprint_bits: int = 2048
+) -> tuple[sp.csr_matrix, str]:
+    """Rows whose similarity is an output kernel between the training graphs (cached per model).
+
+    Parameters
+    ----------
+    training : TrainingSet
+        A fitted model's training graphs (``model.training_``).
+    output_kernel : {"wl", "fingerprint"}, default="wl"
+        ``wl``: unit-norm Weisfeiler-Lehman feature counts, whose dot products
+        are the normalised WL kernel; ``fingerprint``: Morgan bits (radius 2,
+        needs RDKit), whose Tanimoto similarity is the kernel.
+
+    Returns
+    -------
+    rows : scipy.sparse.csr_matrix of shape (n_train, n_features)
+    kind : {"cosine", "tanimoto"}
+        How rows compare.
+    """
+    if output_kernel == "wl":
+        return _training_wl(training, wl_iterations).matrix, "cosine"
+    if output_kernel == "fingerprint":
+        return _training_fingerprints(training, 2, fingerprint_bits), "tanimoto"
+    raise ValueError(f"output_kernel must be 'wl' or 'fingerprint'; got {output_kernel!r}.")
 
 
 def _training_fgw(training: TrainingSet, i: int) -> FGWArrays:

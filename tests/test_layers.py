@@ -26,6 +26,7 @@ LAYERS = {
     "gwpred.codec": 2,
     "gwpred.formula": 2,
     "gwpred.weights": 2,
+    "gwpred.embedding": 2,
     "gwpred.fgw": 2,
     "gwpred.ged": 2,
     "gwpred.wl": 3,

@@ -20,11 +20,12 @@ from sklearn.base import BaseEstimator, clone
 from sklearn.utils import check_random_state
 from sklearn.utils.validation import check_is_fitted
 
-from .._utils import Interval, Options, Rule, Types, check_inputs, renamed_keyword, validate_params
+from .._utils import Interval, Options, Rule, Types, check_inputs, has_extra, renamed_keyword, validate_params
 from ..codec import LabelSpace, TrainingSet
+from ..embedding import InputEmbedding, OutputSimilarity, train_embedding
 from ..ged import edit_distance
 from ..parallel import N_JOBS_RULE, batch_slices, parallel_map
-from ..ranking import rank_candidates
+from ..ranking import rank_candidates, training_output_features
 from ..weights import KERNELS, KernelRidgeWeights, LocalRidgeWeights
 from .hypotheses import HypothesisCalibration, HypothesisList, calibrate_cases, generate_hypotheses
 
@@ -69,9 +70,13 @@ class BarycenterGraphPredictor(BaseEstimator):
 
     Parameters
     ----------
-    kernel : {"rbf", "laplacian", "tanimoto", "cosine", "linear", "precomputed"}, default="rbf"
+    kernel : {"rbf", "laplacian", "tanimoto", "cosine", "linear", "precomputed", "learned"}, default="rbf"
         Input kernel. With ``precomputed``, ``fit`` takes the (n, n) training
         kernel and ``predict`` the (n_queries, n) kernel to the training items.
+        With ``learned``, ``fit`` first trains an embedding of the inputs
+        whose similarities follow the output kernel of the training graphs
+        (:mod:`gwpred.embedding`, PyTorch on the CPU: the ``neural`` extra),
+        then uses the RBF kernel on the embeddings.
     gamma : float or None, default=None
         Bandwidth for ``rbf``/``laplacian``; ``None`` is the median heuristic.
     ridge : float, default=1e-3
@@ -168,6 +173,13 @@ class BarycenterGraphPredictor(BaseEstimator):
         inputs of that case (with / without a formula), it had the lower mean
         GED on the held-out pairs, else the decoding; an uncalibrated model
         decodes.
+    embedding : dict or InputEmbedding, optional
+        With ``kernel="learned"``: training options (``output_kernel``:
+        ``"auto"``, ``"wl"`` or ``"fingerprint"``, and those of
+        :func:`gwpred.embedding.train_embedding`: ``dim``, ``hidden``,
+        ``conv``, ``loss``, ``epochs``, ...), or an embedding already trained,
+        used as it is (no torch needed).  A loaded model holds its trained
+        embedding here.
     top_k : int, optional
         Old name of ``n_neighbors``; works for one more release, with a
         FutureWarning.
@@ -207,7 +219,9 @@ class BarycenterGraphPredictor(BaseEstimator):
 
     #: Allowed values of every constructor parameter, checked when ``fit`` starts.
     _parameter_rules: dict[str, Rule] = {
-        "kernel": Rule(Options((*KERNELS, "precomputed"))),
+        "kernel": Rule(Options((*KERNELS, "precomputed", "learned"))),
+        "embedding": Rule(None, Types((dict, InputEmbedding)),
+                          what="None, a dict of training options or an InputEmbedding", error=TypeError),
         "gamma": Rule(None, Interval(np.finfo(float).tiny), what="a positive number or None"),
         "ridge": _NON_NEGATIVE,
         "weighting": Rule(Options(("ridge", "knn"))),
@@ -261,6 +275,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         local_size: int = 500,
         batch_size: int = 256,
         predict_with: str = "auto",
+        embedding: dict | InputEmbedding | None = None,
         top_k: int | str = "deprecated",
     ) -> None:
         self.kernel = kernel
@@ -288,6 +303,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         self.local_size = local_size
         self.batch_size = batch_size
         self.predict_with = predict_with
+        self.embedding = embedding
         self.top_k = top_k
 
     # ----------------------------------------------------------------- fit
@@ -427,16 +443,47 @@ class BarycenterGraphPredictor(BaseEstimator):
         seed = 0 if self.random_state is None else check_random_state(self.random_state).randint(2**31 - 1)
         gamma = self.gamma if gamma is None else gamma
         self.weight_model_ = weight_model
+        kernel, inputs = self.kernel, X
+        if self.kernel == "learned":  # kernel ridge with an RBF kernel on learned embeddings
+            self.embedding_ = self._input_embedding(X, training, seed)
+            self.inputs_ = X
+            kernel, inputs = "rbf", self.embedding_.transform(X)
+        else:
+            self.__dict__.pop("embedding_", None)
+            self.__dict__.pop("inputs_", None)
         if self.weight_model_ == "local":
             self.weights_ = LocalRidgeWeights(
-                self.kernel, gamma, self.ridge, self.weighting, local_size=self.local_size, random_state=seed
+                kernel, gamma, self.ridge, self.weighting, local_size=self.local_size, random_state=seed
             )
         else:
-            self.weights_ = KernelRidgeWeights(self.kernel, gamma, self.ridge, self.weighting, random_state=seed)
-        self.weights_.fit(X)
+            self.weights_ = KernelRidgeWeights(kernel, gamma, self.ridge, self.weighting, random_state=seed)
+        self.weights_.fit(inputs)
         self.n_train_ = X.shape[0]
         self.n_features_in_ = X.shape[1]
         return self
+
+    def _input_embedding(self, X: NDArray, training: TrainingSet, seed: int) -> InputEmbedding:
+        """``kernel="learned"``: the given embedding, or one trained on ``X`` against the output kernel."""
+        if isinstance(self.embedding, InputEmbedding):
+            if self.embedding.n_features_in != X.shape[1]:
+                raise ValueError(
+                    f"the embedding takes {self.embedding.n_features_in} input columns but X has {X.shape[1]}"
+                )
+            return self.embedding
+        options = dict(self.embedding or {})
+        output_kernel = options.pop("output_kernel", "auto")
+        if output_kernel == "auto":
+            output_kernel = "fingerprint" if molecular_labels(training.labels) and has_extra("rdkit") else "wl"
+        rows, kind = training_output_features(training, output_kernel)
+        similarity = OutputSimilarity.cosine(rows) if kind == "cosine" else OutputSimilarity.tanimoto(rows)
+        options.setdefault("random_state", seed)
+        try:
+            return train_embedding(X, similarity, progress=self.progress, **options)
+        except TypeError as err:
+            raise ValueError(
+                f"embedding options: {err}; the options are output_kernel and those of "
+                "gwpred.embedding.train_embedding (dim, hidden, conv, loss, epochs, ...)"
+            ) from err
 
     def __sklearn_tags__(self) -> Any:
         """scikit-learn >= 1.6 tags: y is required; with ``kernel="precomputed"`` X is pairwise.
@@ -490,6 +537,8 @@ class BarycenterGraphPredictor(BaseEstimator):
                 f"X has {X.shape[1]} columns but the model was fitted with {expected}; "
                 "use the same features (or the kernel to the training items) as in fit."
             )
+        if self.kernel == "learned":
+            X = self.embedding_.transform(X)
         # an input unlike every training input (all kernel values 0) is an error, not graph 0
         if self.weight_model_ == "local":  # the slow part at scale: show it
             return self.weights_.top_weights(X, self._n_neighbors(), progress=self.progress, empty="error")

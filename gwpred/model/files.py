@@ -17,6 +17,7 @@ import numpy as np
 
 from .._utils import StrPath
 from ..codec import LabelSpace, TrainingSet
+from ..embedding import InputEmbedding
 from ..io import load_archive, save_archive
 from .estimator import BarycenterGraphPredictor
 from .hypotheses import HypothesisCalibration
@@ -75,8 +76,12 @@ def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
         "edge_classes": np.concatenate(edge_cls).astype(np.int32),
         "n_nodes": training.sizes.astype(np.int32),
         "n_edges": np.asarray([len(e) for e in edges], dtype=np.int32),
-        "inputs": weights.K_fit_ if model.kernel == "precomputed" else weights.X_fit_,
+        "inputs": weights.K_fit_ if model.kernel == "precomputed" else getattr(model, "inputs_", weights.X_fit_),
     }
+    embedding = getattr(model, "embedding_", None)
+    if embedding is not None:  # kernel="learned": the trained network, as arrays
+        emb_arrays, emb_description = embedding.to_arrays()
+        arrays.update({f"embedding_{k}": v for k, v in emb_arrays.items()})
     gamma = float(weights.gamma_)
     valence = model.get_params().get("valence")
     if isinstance(valence, dict) and not all(isinstance(k, str) for k in valence):
@@ -84,7 +89,9 @@ def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
             "valence tables with non-text labels cannot be stored in a model file (JSON keys are "
             "text); use text node labels, or refit after loading"
         )
-    params = {k: _plain(v) for k, v in model.get_params().items() if k != "top_k"}
+    params = {k: _plain(v) for k, v in model.get_params().items() if k not in ("top_k", "embedding")}
+    # training options are kept; a trained embedding given as the parameter is stored below, as arrays
+    params["embedding"] = model.embedding if isinstance(model.embedding, dict) else None
     if not isinstance(model.top_k, str):  # given under its old name: store the value it stands for
         params["n_neighbors"] = int(model.top_k)
     manifest = {
@@ -95,6 +102,8 @@ def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
         "gamma": gamma if np.isfinite(gamma) else None,
         "training_ids": getattr(model, "training_ids_", None),
     }
+    if embedding is not None:
+        manifest["embedding"] = emb_description
     calibration = getattr(model, "hypothesis_calibration_", None)
     if calibration:  # confidences of predict_hypotheses (absent from files of earlier releases)
         manifest["hypothesis_calibration"] = {case: cal.to_dict() for case, cal in calibration.items()}
@@ -139,6 +148,11 @@ def load_model(path: StrPath) -> BarycenterGraphPredictor:
                 f"parameters {unknown} are unknown to this gwpred; the file may come from a newer "
                 "release: upgrade gwpred"
             )
+        if "embedding" in manifest:  # kernel="learned": the trained embedding is the parameter (no retraining)
+            stored_arrays = {k[len("embedding_"):]: v for k, v in arrays.items() if k.startswith("embedding_")}
+            params["embedding"] = InputEmbedding.from_arrays(stored_arrays, manifest["embedding"])
+        elif params.get("kernel") == "learned":
+            raise ValueError("kernel='learned' but the file holds no embedding")
         model = BarycenterGraphPredictor(**params)
         n_nodes, n_edges = arrays["n_nodes"], arrays["n_edges"]
         node_off = np.concatenate([[0], np.cumsum(n_nodes)])
