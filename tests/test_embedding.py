@@ -227,3 +227,38 @@ def test_learned_kernel_bad_options():
         BarycenterGraphPredictor(kernel="learned", embedding={"width": 3}).fit(X, graphs)
     with pytest.raises(TypeError, match="embedding"):
         BarycenterGraphPredictor(kernel="learned", embedding=[1, 2]).fit(X, graphs)
+
+
+def test_cli_fit_with_a_learned_kernel(tmp_path, capsys):
+    # the command line: --kernel learned with --embedding options, then predict from the file
+    import csv
+
+    from gwpred.cli import main
+    from gwpred.io import read_graphs, write_graphs
+
+    X, graphs, _ = synthetic(120, seed=8)
+
+    def write_csv(path, A):
+        with open(path, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow(["id"] + [f"x{j}" for j in range(A.shape[1])])
+            w.writerows([[f"s{i}", *map(repr, map(float, row))] for i, row in enumerate(A)])
+        return str(path)
+
+    train, test = write_csv(tmp_path / "train.csv", X[:100]), write_csv(tmp_path / "test.csv", X[100:])
+    write_graphs(tmp_path / "train.graphml", graphs[:100])
+    model = str(tmp_path / "m.npz")
+    opts = '{"dim": 8, "hidden": [16], "epochs": 3, "output_kernel": "wl"}'
+    assert main(["fit", "--features", train, "--graphs", str(tmp_path / "train.graphml"), "--model", model,
+                 "-q", "--kernel", "learned", "--embedding", opts]) == 0
+    out = tmp_path / "pred.graphml"
+    assert main(["predict", "--model", model, "--features", test, "--out", str(out), "-q"]) == 0
+    assert len(read_graphs(out)) == 20
+    assert load_model(model).kernel == "learned"
+    assert main(["fit", "--features", train, "--graphs", str(tmp_path / "train.graphml"), "--model", model,
+                 "-q", "--embedding", opts]) == 2
+    assert "add --kernel learned" in capsys.readouterr().err
+    with pytest.raises(SystemExit):
+        main(["fit", "--features", train, "--graphs", str(tmp_path / "train.graphml"), "--model", model,
+              "--kernel", "learned", "--embedding", "[1, 2]"])
+    assert "expected a JSON object" in capsys.readouterr().err
