@@ -485,7 +485,7 @@ def test_wrong_number_of_columns_at_predict():
         ({"n_neighbors": True}, r"n_neighbors must be a positive integer; got True"),
         ({"max_outer": 0}, r"max_outer must be a positive integer; got 0"),
         ({"max_inner": -1}, r"max_inner must be a positive integer; got -1"),
-        ({"kernel": "nope"}, r"kernel must be one of \[.*'rbf'.*'precomputed'\]; got 'nope'"),
+        ({"kernel": "nope"}, r"kernel must be one of \[.*'rbf'.*'precomputed', 'learned'\]; got 'nope'"),
         ({"n_nodes": 0}, r"n_nodes must be 'vote' or a positive integer; got 0\."),
         ({"n_nodes": "many"}, r"n_nodes must be 'vote' or a positive integer; got 'many'"),
         ({"decoding": "x"}, r"decoding must be one of \['anchored', 'free'\]; got 'x'"),
