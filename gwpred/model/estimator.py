@@ -28,9 +28,6 @@ from ..parallel import N_JOBS_RULE, batch_slices, parallel_map
 from ..ranking import rank_candidates, training_output_features
 from ..weights import KERNELS, KernelRidgeWeights, LocalRidgeWeights
 from .hypotheses import HypothesisCalibration, HypothesisList, calibrate_cases, generate_hypotheses
-
-#: Values of ``predict_with``.
-PREDICT_WITH = ("auto", "decoding", "hypotheses")
 from .steps import (
     DECODERS,
     Settings,
@@ -46,6 +43,9 @@ from .steps import (
 )
 
 __all__ = ["BarycenterGraphPredictor"]
+
+#: Values of ``predict_with``.
+PREDICT_WITH = ("auto", "decoding", "hypotheses")
 
 _POSITIVE_INT = Rule(Interval(1, np.inf, integer=True))
 _NON_NEGATIVE = Rule(Interval(0.0))
