@@ -74,9 +74,15 @@ EXTRAS: dict[str, tuple[str, str]] = {
 def install_hint(extra: str) -> str:
     """The pip command that installs one extra of gwpred.
 
+    ``neural`` (PyTorch) is not part of ``all``, and a plain ``pip install
+    torch`` can fetch a CUDA build of several GB: its hint takes a CPU build first.
+
     >>> install_hint("chem")
     "pip install 'gwpred[chem]' (or 'gwpred[all]')"
     """
+    if extra == "neural":
+        return ("a CPU build of PyTorch first (pip install torch --index-url https://download.pytorch.org/whl/cpu), "
+                "then pip install 'gwpred[neural]'")
     return f"pip install 'gwpred[{extra}]' (or 'gwpred[all]')"
 
 

@@ -63,7 +63,10 @@ def test_require_extra_names_the_extra():
     finally:
         del _utils.EXTRAS["gwpred_no_such_module"]
     assert not has_extra("gwpred_no_such_module")
-    assert install_hint("neural") == "pip install 'gwpred[neural]' (or 'gwpred[all]')"
+    # neural is not in [all], and plain `pip install torch` may fetch a CUDA build: a CPU build first
+    assert install_hint("neural") == (
+        "a CPU build of PyTorch first (pip install torch --index-url https://download.pytorch.org/whl/cpu), "
+        "then pip install 'gwpred[neural]'")
 
 
 def test_atomic_write_keeps_the_old_file_on_failure(tmp_path):
