@@ -389,11 +389,13 @@ class LabelSpace:
         if bad:
             raise ValueError(f"edges {bad[:3]} name nodes outside 0..{n - 1}; every edge must join two given nodes.")
         g = nx.Graph()
-        for i, c in enumerate(node_classes):
-            attrs = {self.node_label: self.node_labels_[int(c)]}
-            if numeric is not None and self.node_numeric:
-                raw = numeric[i] * self.numeric_scale_ + self.numeric_mean_
-                attrs.update({name: float(x) for name, x in zip(self.node_numeric, raw)})
+        names = self.node_labels_
+        if numeric is None or not self.node_numeric:  # one call: the hypothesis search builds thousands
+            g.add_nodes_from((i, {self.node_label: names[int(c)]}) for i, c in enumerate(node_classes))
+        for i, c in enumerate(node_classes if numeric is not None and self.node_numeric else ()):
+            attrs = {self.node_label: names[int(c)]}
+            raw = numeric[i] * self.numeric_scale_ + self.numeric_mean_
+            attrs.update({name: float(x) for name, x in zip(self.node_numeric, raw)})
             g.add_node(i, **attrs)
         for (u, v), c in zip(edges, classes):
             lab = self.edge_labels_[int(c)]

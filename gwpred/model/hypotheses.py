@@ -68,7 +68,7 @@ from .._utils import has_extra, progress_bar
 from ..codec import LabelSpace, TrainingSet
 from ..formula import Formula, formula_matches, graph_formula
 from ..ged import edit_distance, edit_distance_bounds
-from ..metrics import expected_calibration_error
+from ..metrics import expected_calibration_error, summarize
 from ..chem import morgan_bits_of_arrays
 from ..ranking import CandidateLibrary, rank_candidates, remember_fingerprints
 from ..wl import (
@@ -397,20 +397,8 @@ def _bonds(O: NDArray[np.int64]) -> tuple[list[int], list[int], list[int]]:
 
 
 def _to_graph(cls: NDArray[np.int64], O: NDArray[np.int64], labels: LabelSpace, chem: _Chem) -> nx.Graph:
-    """The labeled graph of ``(cls, O)``: equal to ``labels.build_graph`` of its bonds (nodes
-    0..n-1 with their labels, each bond with the edge label of its order), built without
-    that method's checks, which arrays from the search always pass."""
-    node_label, edge_label = labels.node_label, labels.edge_label
-    names, edge_names = labels.node_labels_, labels.edge_labels_
-    g = nx.Graph()
-    g.add_nodes_from((i, {node_label: names[c]}) for i, c in enumerate(cls.tolist()))
-    for i, j, o in zip(*_bonds(O)):
-        lab = edge_names[chem.order_class[o]]
-        if edge_label is None or lab is None:
-            g.add_edge(i, j)
-        else:
-            g.add_edge(i, j, **{edge_label: lab})
-    return g
+    iu, ju, orders = _bonds(O)
+    return labels.build_graph(cls.tolist(), list(zip(iu, ju)), [chem.order_class[o] for o in orders])
 
 
 def _connected(O: NDArray[np.int64]) -> bool:
@@ -1134,18 +1122,9 @@ def calibration_from(
     geds = [np.nan, np.nan]
     if decoded is not None:
         firsts = [hyps[0].graph if len(hyps) else d for hyps, d in zip(lists, decoded)]
-        geds = [_mean_ged(firsts, graphs, labels, time_limit), _mean_ged(list(decoded), graphs, labels, time_limit)]
+        keys = {"node_label": labels.node_label, "edge_label": labels.edge_label, "time_limit": time_limit}
+        geds = [summarize(firsts, graphs, **keys)["mean_ged"], summarize(list(decoded), graphs, **keys)["mean_ged"]]
     return HypothesisCalibration(x, y, xn, yn, float(beta), dict(options or {}), len(u), len(lists), *geds)
-
-
-def _mean_ged(graphs: list[nx.Graph], truths: list[nx.Graph], labels: LabelSpace, time_limit: float) -> float:
-    """Mean uniform-cost edit distance, each pair exact within ``time_limit`` s, else its upper bound."""
-    keys = {"node_label": labels.node_label, "edge_label": labels.edge_label}
-    total = 0.0
-    for g, t in zip(graphs, truths):
-        lower, upper = edit_distance_bounds(g, t, **keys)
-        total += upper if lower >= upper else edit_distance(g, t, time_limit=time_limit, **keys).upper
-    return total / max(len(graphs), 1)
 
 
 def recalibrated(lists: Sequence[HypothesisList], calibration: HypothesisCalibration) -> list[HypothesisList]:
