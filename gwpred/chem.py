@@ -380,6 +380,19 @@ def _mol_from_graph(graph: nx.Graph, node_label: str, edge_label: str, charge: s
     return mol
 
 
+def _sanitize_ops(aromaticity: bool = True, cleanup: bool = False) -> Any:
+    """RDKit sanitisation flags: everything, less aromaticity perception and/or the clean-up steps."""
+    Chem, _ = rdkit_modules()
+    flags = Chem.SanitizeFlags
+    ops = flags.SANITIZE_ALL
+    if not aromaticity:
+        ops ^= flags.SANITIZE_SETAROMATICITY
+    if not cleanup:
+        ops &= ~flags.SANITIZE_CLEANUP
+        ops &= ~getattr(flags, "SANITIZE_CLEANUP_ORGANOMETALLICS", 0)
+    return ops
+
+
 def _sanitized(mol: Any, where: str, aromaticity: bool = True, cleanup: bool = False) -> Any:
     """Sanitized copy of ``mol``; ValueError with RDKit's reason when it is not a valid molecule.
 
@@ -390,15 +403,8 @@ def _sanitized(mol: Any, where: str, aromaticity: bool = True, cleanup: bool = F
     """
     Chem, _ = rdkit_modules()
     out = Chem.Mol(mol)
-    flags = Chem.SanitizeFlags
-    ops = flags.SANITIZE_ALL
-    if not aromaticity:
-        ops ^= flags.SANITIZE_SETAROMATICITY
-    if not cleanup:
-        ops &= ~flags.SANITIZE_CLEANUP
-        ops &= ~getattr(flags, "SANITIZE_CLEANUP_ORGANOMETALLICS", 0)
     try:
-        _quiet(Chem.SanitizeMol, out, sanitizeOps=ops)
+        _quiet(Chem.SanitizeMol, out, sanitizeOps=_sanitize_ops(aromaticity, cleanup))
     except (ValueError, RuntimeError) as err:
         raise ValueError(f"{where} is not a valid molecule: RDKit reports: {err}") from err
     return out
@@ -1094,9 +1100,7 @@ def morgan_bits_of_arrays(
     Chem, rdBase = rdkit_modules("morgan_bits_of_arrays")
     types = _bond_types()
     generator = _morgan_generator(radius, n_bits)
-    ops = Chem.SanitizeFlags.SANITIZE_ALL  # as _sanitized(..., cleanup=False)
-    ops &= ~Chem.SanitizeFlags.SANITIZE_CLEANUP
-    ops &= ~getattr(Chem.SanitizeFlags, "SANITIZE_CLEANUP_ORGANOMETALLICS", 0)
+    ops = _sanitize_ops()  # as graph_to_mol sanitizes
     out: list[NDArray[np.int32] | None] = []
     with rdBase.BlockLogs():
         for elements, orders in molecules:

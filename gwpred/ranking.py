@@ -538,7 +538,7 @@ def remember_fingerprints(library: CandidateLibrary, bits: dict[int, NDArray[np.
 
     The caller guarantees that ``bits[i]`` is the fingerprint of ``library.graphs[i]``.
     """
-    library._memo.setdefault(("fingerprint", 2, n_bits), {}).update(bits)
+    library.cached(("fingerprint", 2, n_bits), list(bits), bits.__getitem__)
 
 
 def _wl_rows(encoded: list[tuple], vocabulary: NDArray[np.int64]) -> sp.csr_matrix:
