@@ -117,9 +117,9 @@ def main() -> None:
                      "-" if np.isnan(t1) else f"{100 * t1:.1f}%", "-" if np.isnan(t10) else f"{100 * t10:.1f}%",
                      "-" if np.isnan(fit_s) else f"{fit_s:.0f}", "-" if np.isnan(rate) else f"{rate:.0f}"]
             print(f"| {name} | " + " | ".join(cells) + " |")
-        base = rows[2][1]
-        print(f"learned vs fixed gwpred: {100 * (rows[3][1] / base - 1):+.1f}% mean GED; "
-              f"learned gwpred vs fixed 1-NN: {100 * (rows[3][1] / rows[0][1] - 1):+.1f}%")
+        ged = {r[0]: r[1] for r in rows}
+        print(f"learned vs fixed gwpred: {100 * (ged['gwpred, learned'] / ged['gwpred, fixed'] - 1):+.1f}% mean GED; "
+              f"learned gwpred vs fixed 1-NN: {100 * (ged['gwpred, learned'] / ged['1-NN, fixed'] - 1):+.1f}%")
 
 
 if __name__ == "__main__":

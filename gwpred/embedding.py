@@ -92,15 +92,30 @@ class OutputSimilarity:
     def __len__(self) -> int:
         return self.rows.shape[0]
 
-    def block(self, index: NDArray[np.int64]) -> NDArray[np.float64]:
-        """The ``(len(index), len(index))`` similarity matrix of the rows ``index``."""
-        R = self.rows[index]
-        inner = (R @ R.T).toarray()
+    def block(self, index: NDArray[np.int64], other: NDArray[np.int64] | None = None) -> NDArray[np.float64]:
+        """The similarity matrix of the rows ``index`` against the rows ``other`` (default: ``index``)."""
+        other = index if other is None else other
+        inner = (self.rows[index] @ self.rows[other].T).toarray()
         if self.kind == "cosine":
             return inner
-        n = self._bits[index]
-        union = n[:, None] + n[None, :] - inner
+        union = self._bits[index][:, None] + self._bits[other][None, :] - inner
         return np.where(union > 0, inner / np.where(union > 0, union, 1.0), 1.0)
+
+    def nearest(self, index: NDArray[np.int64], k: int, block_rows: int = 1024) -> NDArray[np.int64]:
+        """For each of the rows ``index``, its ``k`` most similar other rows among ``index``.
+
+        Returns an array of shape ``(len(index), k)`` of row numbers (values of
+        ``index``), most similar first, ties by the smaller row number.
+        """
+        k = min(k, len(index) - 1)
+        out = np.empty((len(index), k), dtype=np.int64)
+        for start in range(0, len(index), block_rows):
+            rows = np.arange(start, min(start + block_rows, len(index)))
+            S = self.block(index[rows], index)
+            S[np.arange(len(rows)), rows] = -np.inf  # not its own neighbour
+            order = np.argsort(-S, axis=1, kind="stable")[:, :k]
+            out[rows] = index[order]
+        return out
 
 
 # --------------------------------------------------------------------------- the embedding
@@ -124,6 +139,11 @@ class InputEmbedding:
         Max-pooling width after the convolution.
     history : dict
         Training record (losses per epoch, best epoch, seconds, options).
+    raw_weight : float, default=0.0
+        When > 0, the embedding is ``[c u, z] / sqrt(1 + c^2)`` with ``u`` the
+        raw input scaled to unit norm and ``c = raw_weight``: an RBF kernel on
+        it is the product of one on the raw inputs and one on the learned part,
+        so the network learns what the raw input's similarity misses.
     """
 
     mean: NDArray[np.float64]
@@ -134,6 +154,7 @@ class InputEmbedding:
     conv_bias: NDArray[np.float64]
     pool: int
     history: dict
+    raw_weight: float = 0.0
 
     @property
     def n_features_in(self) -> int:
@@ -141,8 +162,8 @@ class InputEmbedding:
 
     @property
     def dim(self) -> int:
-        """Length of an embedding."""
-        return self.weights[-1].shape[1]
+        """Length of an embedding (the raw input's columns included when ``raw_weight > 0``)."""
+        return self.weights[-1].shape[1] + (self.n_features_in if self.raw_weight > 0 else 0)
 
     def transform(self, X: ArrayLike, batch_size: int = 4096) -> NDArray[np.float64]:
         """Unit-norm embeddings of the rows of ``X``, shape (n, dim).
@@ -172,8 +193,11 @@ class InputEmbedding:
             h = h @ W + b
             if layer < len(self.weights) - 1:
                 h = np.maximum(h, 0.0)
-        norms = np.linalg.norm(h, axis=1, keepdims=True)
-        return h / np.maximum(norms, 1e-12)
+        z = h / np.maximum(np.linalg.norm(h, axis=1, keepdims=True), 1e-12)
+        if self.raw_weight <= 0:
+            return z
+        c = self.raw_weight
+        return np.hstack([c * _unit_rows(X), z]) / np.sqrt(1.0 + c * c)
 
     # ------------------------------------------------------------ files
     def to_arrays(self) -> tuple[dict[str, NDArray[np.float64]], dict]:
@@ -183,7 +207,8 @@ class InputEmbedding:
         for layer, (W, b) in enumerate(zip(self.weights, self.biases)):
             arrays[f"W{layer}"] = W
             arrays[f"b{layer}"] = b
-        return arrays, {"n_layers": len(self.weights), "pool": int(self.pool), "history": self.history}
+        return arrays, {"n_layers": len(self.weights), "pool": int(self.pool), "history": self.history,
+                        "raw_weight": float(self.raw_weight)}
 
     @classmethod
     def from_arrays(cls, arrays: dict[str, Any], description: dict) -> InputEmbedding:
@@ -196,6 +221,7 @@ class InputEmbedding:
         """
         try:
             n_layers, pool = int(description["n_layers"]), int(description["pool"])
+            raw_weight = float(description.get("raw_weight", 0.0))
             history = dict(description.get("history", {}))
             get = {k: np.asarray(arrays[k], dtype=np.float64) for k in ("mean", "scale", "conv_filters", "conv_bias")}
             weights = [np.asarray(arrays[f"W{i}"], dtype=np.float64) for i in range(n_layers)]
@@ -205,6 +231,8 @@ class InputEmbedding:
         every = [*get.values(), *weights, *biases]
         if n_layers < 1 or pool < 1 or not all(np.all(np.isfinite(a)) for a in every):
             raise ValueError("an input embedding needs at least one layer, pool >= 1 and finite arrays")
+        if not (np.isfinite(raw_weight) and raw_weight >= 0):
+            raise ValueError(f"an input embedding's raw_weight must be a finite number >= 0; got {raw_weight!r}")
         mean, scale, filters, cbias = get["mean"], get["scale"], get["conv_filters"], get["conv_bias"]
         if mean.ndim != 1 or scale.shape != mean.shape or np.any(scale <= 0):
             raise ValueError("an input embedding's mean and scale must be vectors of one length, scale > 0")
@@ -217,7 +245,13 @@ class InputEmbedding:
             if W.ndim != 2 or W.shape[0] != width or b.shape != (W.shape[1],):
                 raise ValueError("an input embedding's layer shapes do not chain")
             width = W.shape[1]
-        return cls(mean, scale, weights, biases, filters, cbias, pool, history)
+        return cls(mean, scale, weights, biases, filters, cbias, pool, history, raw_weight)
+
+
+def _unit_rows(X: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Rows scaled to unit Euclidean norm (all-zero rows stay zero)."""
+    norms = np.linalg.norm(X, axis=1, keepdims=True)
+    return X / np.where(norms > 0, norms, 1.0)
 
 
 def _conv_pool_numpy(h: NDArray[np.float64], filters: NDArray[np.float64], bias: NDArray[np.float64],
@@ -277,7 +311,7 @@ def _network(n_features: int, hidden: tuple[int, ...], dim: int, conv: tuple[int
 
 
 def _as_embedding(net: Any, mean: NDArray[np.float64], scale: NDArray[np.float64], conv: tuple | None,
-                  history: dict) -> InputEmbedding:
+                  history: dict, raw_weight: float) -> InputEmbedding:
     torch = _torch()
     linear = [m for m in net if isinstance(m, torch.nn.Linear)]
     weights = [m.weight.detach().double().numpy().T.copy() for m in linear]
@@ -288,7 +322,7 @@ def _as_embedding(net: Any, mean: NDArray[np.float64], scale: NDArray[np.float64
         filters = c.weight.detach().double().numpy()[:, 0, :].copy()
         cbias = c.bias.detach().double().numpy().copy()
         pool = conv[2]
-    return InputEmbedding(mean, scale, weights, biases, filters, cbias, pool, history)
+    return InputEmbedding(mean, scale, weights, biases, filters, cbias, pool, history, raw_weight)
 
 
 @contextlib.contextmanager
@@ -322,8 +356,22 @@ def _loss_floor(K: NDArray[np.float64], loss: str, target_temperature: float) ->
         return float(-np.nansum(np.where(P > 0, P * np.log(P), 0.0), axis=1).mean())
 
 
-def _batches(index: NDArray[np.int64], size: int, rng: np.random.Generator | None) -> list[NDArray[np.int64]]:
+def _batches(index: NDArray[np.int64], size: int, rng: np.random.Generator | None,
+             neighbours: NDArray[np.int64] | None = None) -> list[NDArray[np.int64]]:
+    """Mini-batches of ``index``: random (shuffled by ``rng``, in order without it), or, with
+    ``neighbours`` (one row of output neighbours per item of ``index``), groups of anchors each
+    joined by its neighbours, the same number of batches as random ones would make."""
     order = index if rng is None else rng.permutation(index)
+    if neighbours is not None:
+        pos = np.searchsorted(index, order)
+        group = 1 + neighbours.shape[1]
+        anchors = max(1, size // group)
+        n_batches = max(1, len(index) // size)
+        out = []
+        for b in range(n_batches):
+            take = pos[(b * anchors + np.arange(anchors)) % len(pos)]
+            out.append(np.unique(np.concatenate([index[take], neighbours[take].ravel()])))
+        return out
     out = [order[s : s + size] for s in range(0, len(order), size)]
     if len(out) > 1 and len(out[-1]) < max(2, size // 4):  # a tiny last batch says little: merge it
         last = out.pop()
@@ -343,6 +391,8 @@ def train_embedding(
     target_temperature: float = 0.1,
     epochs: int = 200,
     batch_size: int = 256,
+    neighbours: int = 0,
+    raw_weight: float = 1.0,
     learning_rate: float = 1e-3,
     weight_decay: float = 1e-5,
     validation_share: float = 0.1,
@@ -372,6 +422,18 @@ def train_embedding(
     epochs : int, default=200
         Most passes over the training part.
     batch_size : int, default=256
+    neighbours : int, default=0
+        0: random batches.  k > 0: each batch is ``batch_size // (k + 1)``
+        random anchors, each with its ``k`` most similar training graphs
+        under the output similarity (hard negatives: the batch's softmax
+        must tell close graphs apart, not only far ones); the validation
+        batches are built the same way within the held-out part.
+    raw_weight : float, default=1.0
+        Keep the raw input (unit norm, weight ``raw_weight``) beside the
+        learned part, in training and after (see :class:`InputEmbedding`);
+        0 for the learned part alone.  On QM9 (10,000 training molecules,
+        ``benchmarks/bench_learned_kernel.py``) the learned part alone did
+        worse than the fixed kernels, and beside the raw input better.
     learning_rate, weight_decay : float
         Adam's.
     validation_share : float, default=0.1
@@ -413,12 +475,17 @@ def train_embedding(
         raise ValueError(f"loss must be one of {list(EMBEDDING_LOSSES)}; got {loss!r}")
     if not 0.0 < validation_share < 1.0 or temperature <= 0 or target_temperature <= 0:
         raise ValueError("validation_share must lie in (0, 1) and the temperatures be > 0")
+    if not (isinstance(raw_weight, (int, float, np.integer, np.floating)) and np.isfinite(raw_weight)
+            and raw_weight >= 0) or isinstance(raw_weight, bool):
+        raise ValueError(f"raw_weight must be a finite number >= 0; got {raw_weight!r}")
+    if isinstance(neighbours, bool) or not isinstance(neighbours, (int, np.integer)) or neighbours < 0:
+        raise ValueError(f"neighbours must be an integer >= 0; got {neighbours!r}")
     if conv is not None and (len(conv) != 3 or min(conv) < 1 or conv[1] > X.shape[1]):
         raise ValueError(f"conv must be (channels, width, pool), each >= 1, width <= {X.shape[1]}; got {conv!r}")
     torch = _torch()
     options = {"dim": dim, "hidden": list(hidden), "conv": None if conv is None else list(conv), "loss": loss,
                "temperature": temperature, "target_temperature": target_temperature, "epochs": epochs,
-               "batch_size": batch_size, "learning_rate": learning_rate, "weight_decay": weight_decay,
+               "batch_size": batch_size, "neighbours": neighbours, "raw_weight": raw_weight, "learning_rate": learning_rate, "weight_decay": weight_decay,
                "validation_share": validation_share, "patience": patience, "n_threads": n_threads,
                "random_state": random_state}
     rng = np.random.default_rng(random_state)
@@ -429,10 +496,14 @@ def train_embedding(
     scale = X[fit].std(0)
     scale = np.where(scale > 1e-12, scale, 1.0)
     Xs = torch.from_numpy(((X - mean) / scale).astype(np.float32))
+    raw = torch.from_numpy((raw_weight * _unit_rows(X)).astype(np.float32)) if raw_weight > 0 else None
     seed = int(rng.integers(2**31 - 1))
 
     def batch_loss(net: Any, index: NDArray[np.int64]) -> Any:
-        Z = torch.nn.functional.normalize(net(Xs[torch.from_numpy(index)]), dim=1)
+        rows = torch.from_numpy(index)
+        Z = torch.nn.functional.normalize(net(Xs[rows]), dim=1)
+        if raw is not None:
+            Z = torch.cat([raw[rows], Z], dim=1) / float(np.sqrt(1.0 + raw_weight**2))
         K = torch.from_numpy(similarity.block(index).astype(np.float32))
         if loss == "listwise":
             return listwise_loss(Z, K, temperature, target_temperature)
@@ -443,7 +514,9 @@ def train_embedding(
     with _torch_settings(n_threads, seed):
         net = _network(X.shape[1], tuple(hidden), dim, None if conv is None else tuple(conv), torch.float32)
         opt = torch.optim.Adam(net.parameters(), lr=learning_rate, weight_decay=weight_decay)
-        val_batches = _batches(val, batch_size, None)
+        near_fit = similarity.nearest(fit, neighbours) if neighbours else None
+        near_val = similarity.nearest(val, neighbours) if neighbours else None
+        val_batches = _batches(val, batch_size, None, near_val)
         with torch.no_grad():  # the untrained network's, and the lowest any network can reach, for reference
             history["initial_validation_loss"] = float(np.mean([float(batch_loss(net, i)) for i in val_batches]))
             history["validation_floor"] = float(np.mean([_loss_floor(similarity.block(i), loss, target_temperature)
@@ -453,7 +526,7 @@ def train_embedding(
         for epoch in range(epochs):
             net.train()
             total = 0.0
-            parts = _batches(fit, batch_size, rng)
+            parts = _batches(fit, batch_size, rng, near_fit)
             for index in parts:
                 opt.zero_grad()
                 value = batch_loss(net, index)
@@ -479,4 +552,4 @@ def train_embedding(
         net.load_state_dict(best_state)
     history["seconds"] = time.perf_counter() - start
     history.setdefault("best_epoch", 0)
-    return _as_embedding(net, mean, scale, None if conv is None else tuple(conv), history)
+    return _as_embedding(net, mean, scale, None if conv is None else tuple(conv), history, float(raw_weight))

@@ -105,16 +105,48 @@ def test_output_similarity_blocks():
         OutputSimilarity.cosine(np.zeros((2, 3)))
 
 
+def test_nearest_output_neighbours_match_brute_force():
+    # Reference: scipy.spatial.distance.cdist(metric="jaccard"); for 0/1 rows Tanimoto = 1 - Jaccard
+    # distance (common practice), so the k nearest are the k smallest distances (ties by index).
+    from scipy.spatial.distance import cdist
+
+    rng = np.random.default_rng(0)
+    bits = (rng.random((60, 40)) < 0.3).astype(np.uint8)
+    bits[:, 0] = 1  # no empty row
+    index = np.sort(rng.choice(60, size=45, replace=False))
+    got = OutputSimilarity.tanimoto(bits).nearest(index, 5, block_rows=7)
+    D = cdist(bits[index].astype(bool), bits[index].astype(bool), metric="jaccard")
+    np.fill_diagonal(D, np.inf)
+    want = index[np.argsort(D, axis=1, kind="stable")[:, :5]]
+    np.testing.assert_array_equal(got, want)
+
+
+def test_neighbour_batches_hold_each_anchor_with_its_neighbours():
+    from gwpred.embedding import _batches
+
+    index = np.arange(10, 110)
+    near = np.stack([(index - 10 + j) % 100 + 10 for j in (1, 2, 3)], axis=1)  # 3 neighbours each
+    parts = _batches(index, 32, np.random.default_rng(0), near)
+    assert len(parts) == 100 // 32  # as many batches as random ones
+    anchors = 32 // 4
+    for part in parts:
+        members = set(part.tolist())
+        held = [i for i in members if set(near[i - 10].tolist()) <= members]
+        assert len(held) >= anchors  # every anchor came with its neighbours
+        assert np.all(np.diff(part) > 0)  # no row twice
+
+
 # --------------------------------------------------------------------------- training
-@pytest.mark.parametrize("loss", ["listwise", "alignment"])
-def test_training_learns_the_synthetic_task(loss):
+@pytest.mark.parametrize("loss, neighbours", [("listwise", 0), ("alignment", 0), ("listwise", 7)])
+def test_training_learns_the_synthetic_task(loss, neighbours):
     # The answer is known by construction: inputs of one kind belong together. The loss must
     # fall most of the way to the lowest value any network could reach on the validation part,
     # and the nearest training embedding of a new input must be of its kind.
     X, _, kinds = synthetic(300, seed=0)
     Xt, _, kt = synthetic(100, seed=1)
     emb = train_embedding(X, one_hot_similarity(kinds), dim=16, hidden=(64,), conv=(8, 9, 4), epochs=30,
-                          batch_size=128, learning_rate=3e-3, patience=10, loss=loss, random_state=0)
+                          batch_size=128, learning_rate=3e-3, patience=10, loss=loss, neighbours=neighbours,
+                          raw_weight=0.0, random_state=0)  # the network alone must learn it
     h = emb.history
     floor, start, best = h["validation_floor"], h["initial_validation_loss"], h["validation_loss"][h["best_epoch"]]
     assert best - floor < 0.5 * (start - floor)
@@ -124,8 +156,10 @@ def test_training_learns_the_synthetic_task(loss):
 
 def test_numpy_forward_equals_torch_and_is_reproducible():
     X, _, kinds = synthetic(120, seed=2)
-    a = train_embedding(X, one_hot_similarity(kinds), dim=8, hidden=(16,), conv=(3, 5, 2), epochs=3, random_state=7)
-    b = train_embedding(X, one_hot_similarity(kinds), dim=8, hidden=(16,), conv=(3, 5, 2), epochs=3, random_state=7)
+    a = train_embedding(X, one_hot_similarity(kinds), dim=8, hidden=(16,), conv=(3, 5, 2), epochs=3, raw_weight=0.0,
+                        random_state=7)
+    b = train_embedding(X, one_hot_similarity(kinds), dim=8, hidden=(16,), conv=(3, 5, 2), epochs=3, raw_weight=0.0,
+                        random_state=7)
     np.testing.assert_array_equal(a.transform(X), b.transform(X))  # same seed, same embedding
     # reference: torch's forward of the same weights (float64)
     from gwpred.embedding import _network
@@ -139,7 +173,8 @@ def test_numpy_forward_equals_torch_and_is_reproducible():
         layer.bias.data = torch.from_numpy(bias.copy())
     ref = torch.nn.functional.normalize(net(torch.from_numpy((X - a.mean) / a.scale)), dim=1).detach().numpy()
     np.testing.assert_allclose(a.transform(X), ref, atol=1e-10)
-    c = train_embedding(X, one_hot_similarity(kinds), dim=8, hidden=(16,), conv=(3, 5, 2), epochs=3, random_state=8)
+    c = train_embedding(X, one_hot_similarity(kinds), dim=8, hidden=(16,), conv=(3, 5, 2), epochs=3, raw_weight=0.0,
+                        random_state=8)
     assert not np.allclose(a.transform(X), c.transform(X))  # another seed, another embedding
 
 
@@ -160,6 +195,29 @@ def test_embedding_arrays_round_trip_and_refuse_damage():
         emb.transform(np.full((1, 120), np.nan))
 
 
+def test_raw_weight_keeps_the_raw_input_beside_the_learned_part():
+    # By definition (see InputEmbedding): [c u, z] / sqrt(1 + c^2), u the unit-norm raw input, so
+    # dot products are (c^2 cos(raw) + cos(learned)) / (1 + c^2); checked against numpy's norms.
+    X, _, kinds = synthetic(120, seed=6)
+    sim = one_hot_similarity(kinds)
+    plain = train_embedding(X, sim, dim=8, hidden=(16,), epochs=3, random_state=1, raw_weight=0.0)
+    both = train_embedding(X, sim, dim=8, hidden=(16,), epochs=3, random_state=1, raw_weight=2.0)
+    Z = both.transform(X)
+    assert Z.shape == (120, 120 + 8) and both.dim == 128
+    np.testing.assert_allclose(np.linalg.norm(Z, axis=1), 1.0)
+    U = X / np.linalg.norm(X, axis=1, keepdims=True)
+    np.testing.assert_allclose(Z[:, :120], 2.0 * U / np.sqrt(5.0))
+    learned = Z[:, 120:] * np.sqrt(5.0)
+    np.testing.assert_allclose(np.linalg.norm(learned, axis=1), 1.0)
+    assert not np.allclose(learned, plain.transform(X))  # trained with the raw part, so another network
+    arrays, description = both.to_arrays()
+    back = InputEmbedding.from_arrays(arrays, description)
+    assert back.raw_weight == 2.0
+    np.testing.assert_array_equal(back.transform(X), Z)
+    with pytest.raises(ValueError, match="raw_weight"):
+        InputEmbedding.from_arrays(arrays, dict(description, raw_weight=-1.0))
+
+
 def test_training_errors():
     X, _, kinds = synthetic(20, seed=4)
     sim = one_hot_similarity(kinds)
@@ -169,6 +227,11 @@ def test_training_errors():
         train_embedding(X, sim, loss="triplet")
     with pytest.raises(ValueError, match="conv must be"):
         train_embedding(X, sim, conv=(2, 500, 2))
+    with pytest.raises(ValueError, match="neighbours must be an integer >= 0"):
+        train_embedding(X, sim, neighbours=-1)
+    for bad_weight in (-0.5, float("nan"), True):
+        with pytest.raises(ValueError, match="raw_weight must be a finite number >= 0"):
+            train_embedding(X, sim, raw_weight=bad_weight)
     bad = X.copy()
     bad[0, 0] = np.nan
     with pytest.raises(ValueError, match="NaN"):
