@@ -40,7 +40,8 @@ from gwpred import BarycenterGraphPredictor
 from gwpred.datasets import load_qm9, split_indices
 from gwpred.fgw import transport_average
 from gwpred.metrics import summarize
-from gwpred.model.steps import DECODERS, SoftGraph, choose_size, choose_start, neighbourhood
+from gwpred.model.steps import DECODERS, SoftGraph, choose_size, choose_start, neighbourhood, padded_graphs
+from gwpred.parallel import parallel_map
 
 KERNEL = {"fingerprint": "tanimoto", "spectrum": "rbf"}
 
@@ -86,6 +87,20 @@ def _pot(hood, settings) -> nx.Graph:
     return settings.labels.build_graph(out.node_classes, out.edges, out.edge_classes)
 
 
+def _nothing(i: int, padded: object) -> int:
+    return i
+
+
+def _send_cost(padded: object) -> float:
+    """Seconds of one two-worker ``parallel_map`` call whose tasks do nothing but receive ``padded``."""
+    best = np.inf
+    for _ in range(3):
+        t0 = time.perf_counter()
+        parallel_map(_nothing, [(i,) for i in range(4)], n_jobs=2, shared={"padded": padded})
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
 def reference_loop() -> float:
     """Seconds for a fixed pure-Python loop: the machine's speed at that moment (shared machines vary)."""
     t0 = time.perf_counter()
@@ -126,6 +141,9 @@ def run(kind: str, args: argparse.Namespace) -> None:
           f"before, {reference_loop():.2f} s after (lower is a faster machine)")
     print(f"weights (model.neighbors): {1e3 * weights_s / n:.2f} ms per graph; end to end with the "
           f"two-worker step: {n / (weights_s + rows[2][2]):.0f} graphs/s\n")
+    print(f"per call, sending the padded training graphs to two workers (an empty task each, best of 3): "
+          f"in memory {1e3 * _send_cost(padded_graphs(model.training_)):.0f} ms, "
+          f"file-backed (what predict uses) {1e3 * _send_cost(padded_graphs(model.training_, files=True)):.0f} ms\n")
     print("| barycenter + decoding | ms/graph | graphs/s | speed-up | mean GED | exact | same as one at a time |")
     print("|---|---|---|---|---|---|---|")
     base = rows[0][2] / rows[0][3]

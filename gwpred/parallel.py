@@ -19,6 +19,9 @@ Where the work runs:
 from __future__ import annotations
 
 import os
+import shutil
+import tempfile
+import weakref
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from contextvars import ContextVar
@@ -29,7 +32,7 @@ from joblib import Parallel, delayed, effective_n_jobs, parallel_backend
 
 from ._utils import Interval, Rule, progress_bar, require_extra
 
-__all__ = ["N_JOBS_RULE", "batch_slices", "check_n_jobs", "cluster", "parallel_map"]
+__all__ = ["N_JOBS_RULE", "batch_slices", "check_n_jobs", "cluster", "file_backed", "parallel_map"]
 
 T = TypeVar("T")
 
@@ -357,6 +360,48 @@ def parallel_map(
                     ):
                         out[i] = res
                         bar.update(ticks[i])
+    return out
+
+
+def file_backed(arrays: Mapping[str, np.ndarray], owner: object) -> dict[str, np.ndarray]:
+    """Read-only copies of ``arrays`` backed by files in a private temporary folder.
+
+    joblib hands a file-backed array to its workers as a reference to the
+    file, where an in-memory one is hashed and written to a new file at every
+    :func:`parallel_map` call; for arrays that many calls share (e.g. a
+    model's training graphs) this is paid once.  The folder is removed when
+    ``owner`` is garbage-collected, or at exit.
+
+    Parameters
+    ----------
+    arrays : mapping of str to ndarray
+    owner : object
+        Whose lifetime the files follow (it must support weak references).
+
+    Returns
+    -------
+    dict of str to ndarray
+        The same names, as read-only ``numpy.memmap`` arrays equal to the inputs.
+
+    Examples
+    --------
+    >>> class Owner: pass
+    >>> keep = Owner()
+    >>> out = file_backed({"a": np.arange(3.0)}, keep)
+    >>> out["a"].tolist(), out["a"].flags.writeable
+    ([0.0, 1.0, 2.0], False)
+    """
+    folder = tempfile.mkdtemp(prefix="gwpred-shared-")
+    weakref.finalize(owner, shutil.rmtree, folder, ignore_errors=True)
+    out = {}
+    for i, (name, arr) in enumerate(arrays.items()):
+        path = os.path.join(folder, f"{i}.npy")  # a private file of our own: no user data is touched
+        arr = np.ascontiguousarray(arr)
+        target = np.lib.format.open_memmap(path, mode="w+", dtype=arr.dtype, shape=arr.shape)
+        target[...] = arr
+        target.flush()
+        del target
+        out[name] = np.load(path, mmap_mode="r")
     return out
 
 

@@ -9,17 +9,19 @@ extra ``distributed`` is not installed.
 
 from __future__ import annotations
 
+import gc
 import operator
 import os
 import socket
 
 import networkx as nx
+import numpy as np
 import pytest
 
 from gwpred import BarycenterGraphPredictor
 from gwpred.datasets import load_demo
 from gwpred.metrics import summarize
-from gwpred.parallel import batch_slices, check_n_jobs, cluster, parallel_map
+from gwpred.parallel import batch_slices, check_n_jobs, cluster, file_backed, parallel_map
 
 NO_DISTRIBUTED = "Dask distributed is not installed (pip install 'gwpred[distributed]')"
 #: seconds allowed for the test cluster to start, stop, or answer
@@ -53,6 +55,26 @@ def test_shared_arguments_reach_every_call():
     expected = [b**3 for b in range(7)]
     assert parallel_map(pow, tasks, shared={"exp": 3}) == expected
     assert parallel_map(pow, tasks, shared={"exp": 3}, n_jobs=2) == expected
+
+
+def test_file_backed_arrays_reach_workers_and_go_with_their_owner():
+    class Owner:
+        pass
+
+    owner = Owner()
+    data = {"a": np.arange(12.0).reshape(3, 4), "b": np.array([3, 1, 2])}
+    mapped = file_backed(data, owner)
+    assert all(isinstance(v, np.memmap) and not v.flags.writeable for v in mapped.values())
+    for k in data:
+        np.testing.assert_array_equal(mapped[k], data[k])
+    # on loky workers (reference: numpy's own sum of the in-memory array)
+    sums = parallel_map(np.sum, [(mapped["a"],), (mapped["b"],)], n_jobs=2)
+    assert sums == [data["a"].sum(), data["b"].sum()]
+    folder = os.path.dirname(mapped["a"].filename)
+    assert os.path.isdir(folder)
+    del mapped, owner
+    gc.collect()
+    assert not os.path.exists(folder)
 
 
 def test_shared_must_be_a_mapping_of_names():

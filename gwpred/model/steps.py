@@ -41,6 +41,7 @@ from ..decode import (
 )
 from ..fgw import fgw_barycenter_batch, pad_graphs, transport_average
 from ..formula import Formula, bond_total, label_counts, parse_formula, valence_table
+from ..parallel import file_backed
 
 __all__ = [
     "DECODERS",
@@ -211,12 +212,22 @@ class PaddedGraphs:
     n_edges: NDArray[np.int64]
 
 
-def padded_graphs(training: TrainingSet, max_padding: float = 4.0) -> PaddedGraphs | None:
+def padded_graphs(training: TrainingSet, max_padding: float = 4.0, files: bool = False) -> PaddedGraphs | None:
     """The training graphs as :class:`PaddedGraphs` (built once, kept in ``training.derived``).
 
     Returns None when padding would take more than ``max_padding`` times
     the graphs' own entries (a few large graphs among many small ones).
+    With ``files=True`` the arrays are file-backed (:func:`gwpred.parallel.file_backed`,
+    removed with ``training``): worker processes then map them instead of
+    receiving a copy at every call.
     """
+    if files:
+        if "padded_files" not in training.derived:
+            padded = padded_graphs(training, max_padding)
+            training.derived["padded_files"] = None if padded is None else PaddedGraphs(
+                **file_backed(vars(padded), training)
+            )
+        return training.derived["padded_files"]
     if "padded" in training.derived:
         return training.derived["padded"]
     sizes = training.sizes
