@@ -461,7 +461,6 @@ def cmd_demo(args: argparse.Namespace) -> int:
     from .metrics import summarize
     from .model import BarycenterGraphPredictor
     from .plot import comparison_grid
-    from .weights import kernel_matrix
 
     t_start = time.perf_counter()
     n_jobs = _n_jobs(args) or 1
@@ -483,7 +482,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     pred = model.predict(X[test])
     t_pred = time.perf_counter() - t0
     # baseline: the most similar training spectrum's molecule (same kernel and bandwidth)
-    nearest = kernel_matrix(X[test], X[train], model.kernel, model.weights_.gamma_).argmax(1)
+    nearest = model.input_kernel(X[test], X[train]).argmax(1)
     truth = [graphs[i] for i in test]
     retrieved = []
     for t, j in zip(truth, nearest):  # a retrieved graph answers for its test row: it takes the row's id

@@ -44,7 +44,6 @@ from .metrics import exact_match, summarize
 from .model import BarycenterGraphPredictor
 from .plot import PALETTE
 from .ranking import CandidateLibrary, prepare_candidates, rank_candidates
-from .weights import kernel_matrix
 from .wl import wl_graph_hashes
 
 __all__ = [
@@ -439,7 +438,7 @@ def compare_methods(
     t_gen_f = time.perf_counter() - t0
     # 1-NN retrieval over the training inputs (the model's kernel and bandwidth)
     t0 = time.perf_counter()
-    sim = kernel_matrix(X[test], X[train], model.kernel, model.weights_.gamma_)
+    sim = model.input_kernel(X[test], X[train])
     order = np.argsort(-sim, axis=1, kind="stable")
     t_nn = time.perf_counter() - t0
     train_comps = [library.compositions(node_label)[i] for i in train]

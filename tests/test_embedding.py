@@ -284,6 +284,20 @@ def test_learned_kernel_in_clone_pipeline_and_grid_search(fitted):
     assert search.best_params_["n_neighbors"] in (2, 3)
 
 
+def test_input_kernel_of_a_learned_model(fitted):
+    # Reference: scikit-learn's rbf_kernel on the trained embeddings, with the fitted bandwidth;
+    # 1-NN retrieval (the CLI demo, gwpred.compare) ranks training inputs by it.
+    from sklearn.metrics.pairwise import rbf_kernel
+
+    model, X, _ = fitted
+    Xt, _, _ = synthetic(20, seed=9)
+    K = model.input_kernel(Xt, X)
+    want = rbf_kernel(model.embedding_.transform(Xt), model.embedding_.transform(X), gamma=model.weights_.gamma_)
+    np.testing.assert_allclose(K, want, rtol=1e-10, atol=1e-12)
+    with pytest.raises(ValueError, match="columns"):
+        model.input_kernel(Xt[:, :5], X)
+
+
 def test_learned_kernel_bad_options():
     X, graphs, _ = synthetic(30, seed=7)
     with pytest.raises(ValueError, match="embedding options"):

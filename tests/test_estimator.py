@@ -313,6 +313,17 @@ def test_weights_match_sklearn_kernel_ridge(fitted, demo):
         np.testing.assert_allclose(s.weights, w[keep] / w.sum(), rtol=1e-6)
 
 
+def test_input_kernel_is_the_fitted_kernel(fitted, demo):
+    # reference: scikit-learn's rbf_kernel with the fitted bandwidth (what 1-NN retrieval in the
+    # CLI demo and gwpred.compare ranks training inputs by)
+    Xtr, _, Xte, _ = demo
+    np.testing.assert_allclose(fitted.input_kernel(Xte, Xtr), rbf_kernel(Xte, Xtr, gamma=fitted.weights_.gamma_),
+                               rtol=1e-10, atol=1e-12)
+    pre = BarycenterGraphPredictor(kernel="precomputed").fit(rbf_kernel(Xtr[:20], Xtr[:20]), demo[1][:20])
+    with pytest.raises(ValueError, match="no kernel function"):
+        pre.input_kernel(Xte, Xtr)
+
+
 @pytest.mark.parametrize("decoding", ["anchored", "free"])
 def test_known_answer_training_input_returns_its_graph(demo, decoding):
     # With a tiny ridge, kernel ridge interpolates: (K + n*lambda*I)^{-1} k(x_i)

@@ -26,7 +26,7 @@ from ..embedding import InputEmbedding, OutputSimilarity, train_embedding
 from ..ged import edit_distance
 from ..parallel import N_JOBS_RULE, batch_slices, parallel_map
 from ..ranking import rank_candidates, training_output_features
-from ..weights import KERNELS, KernelRidgeWeights, LocalRidgeWeights
+from ..weights import KERNELS, KernelRidgeWeights, LocalRidgeWeights, kernel_matrix
 from .hypotheses import HypothesisCalibration, HypothesisList, calibrate_cases, generate_hypotheses
 from .steps import (
     DECODERS,
@@ -177,7 +177,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         With ``kernel="learned"``: training options (``output_kernel``:
         ``"auto"``, ``"wl"`` or ``"fingerprint"``, and those of
         :func:`gwpred.embedding.train_embedding`: ``dim``, ``hidden``,
-        ``conv``, ``loss``, ``epochs``, ...), or an embedding already trained,
+        ``conv``, ``loss``, ``epochs``, ``raw_weight``, ``neighbours``, ...),
+        or an embedding already trained,
         used as it is (no torch needed).  A loaded model holds its trained
         embedding here.
     top_k : int, optional
@@ -515,6 +516,44 @@ class BarycenterGraphPredictor(BaseEstimator):
         return self.weight_model
 
     # ------------------------------------------------------------- predict
+    def input_kernel(self, X: ArrayLike, Y: ArrayLike) -> NDArray[np.float64]:
+        """The fitted input kernel between two sets of inputs (e.g. for 1-NN retrieval).
+
+        The model's kernel and bandwidth; with ``kernel="learned"``, the RBF
+        kernel on the trained embeddings of ``X`` and ``Y``.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_x, n_features)
+        Y : array-like of shape (n_y, n_features)
+
+        Returns
+        -------
+        ndarray of shape (n_x, n_y)
+
+        Raises
+        ------
+        ValueError
+            With ``kernel="precomputed"`` (there is no kernel function), or
+            for inputs of the wrong width.
+        """
+        check_is_fitted(self, "weights_")
+        if self.kernel == "precomputed":
+            raise ValueError(
+                "kernel='precomputed' has no kernel function to apply to new inputs; compute the "
+                "kernel between them yourself"
+            )
+        X, Y = check_inputs(X, "X"), check_inputs(Y, "Y")
+        for name, arr in (("X", X), ("Y", Y)):
+            if arr.shape[1] != self.n_features_in_:
+                raise ValueError(
+                    f"{name} has {arr.shape[1]} columns but the model was fitted with {self.n_features_in_}"
+                )
+        if self.kernel == "learned":
+            return kernel_matrix(self.embedding_.transform(X), self.embedding_.transform(Y), "rbf",
+                                 self.weights_.gamma_)
+        return kernel_matrix(X, Y, self.kernel, self.weights_.gamma_)
+
     def neighbors(self, X: ArrayLike) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
         """The kept training graphs of each input and their barycentric weights.
 
@@ -603,7 +642,7 @@ class BarycenterGraphPredictor(BaseEstimator):
         # valence tables are needed (and checked) only to decode molecules
         settings = self._settings(decode and (self.valence_ or any(f is not None for f in parsed)))
         slices = batch_slices(len(idx), self.batch_size, self.n_jobs)
-        padded = padded_graphs(self.training_) if len(slices) > 1 and self.n_jobs != 1 else None
+        padded = padded_graphs(self.training_, files=True) if len(slices) > 1 and self.n_jobs != 1 else None
         if padded is None:
             hoods = [neighbourhood(self.training_, i, ww) for i, ww in zip(idx, w)]
             tasks = [(hoods[b], parsed[b]) for b in slices]
