@@ -4,8 +4,8 @@ Task: QM9 through ``gwpred.datasets.load_qm9`` (Morgan fingerprints with the Tan
 kernel, or broadened spectra with the RBF kernel), ``--n-train`` training molecules and
 ``--n-test`` test molecules never in training (``split_indices``, seed ``--seed``).  One
 ``BarycenterGraphPredictor`` with default settings (top_k 10, anchored decoding) is fitted,
-and its kernel ridge weights for the test inputs (``model.neighbors``) are computed once
-and timed on their own.  On exactly those neighbourhoods (``model.predict_weighted``), in one run:
+and its kernel ridge weights for the test inputs (``model.neighbors``, in one process and with
+``n_jobs=2``, checked equal) are computed and timed on their own.  On exactly those neighbourhoods (``model.predict_weighted``), in one run:
 
 * ``one at a time``: ``batch_size=1``, one process;
 * ``batched``: ``batch_size=256`` (the default), one process;
@@ -119,7 +119,14 @@ def run(kind: str, args: argparse.Namespace) -> None:
     model.fit(data.X[train], [data.graphs[i] for i in train])
     t0 = time.perf_counter()
     idx, w = model.neighbors(data.X[test])
+    weights_1 = time.perf_counter() - t0
+    model.set_params(n_jobs=2)
+    model.neighbors(data.X[test[:600]])  # start the two worker processes before the clock
+    t0 = time.perf_counter()
+    idx2, w2 = model.neighbors(data.X[test])
     weights_s = time.perf_counter() - t0
+    model.set_params(n_jobs=1)
+    assert np.array_equal(idx, idx2) and np.array_equal(w, w2), "weights on two workers differ"
     settings = model._settings(False)
     n = len(idx)
     rows = []
@@ -139,8 +146,9 @@ def run(kind: str, args: argparse.Namespace) -> None:
     print(f"\n## {kind}: {len(train)} training, {n} test molecules (QM9, seed {args.seed}); "
           f"weight model {model.weight_model_}, {os.cpu_count()} CPUs; reference loop {start_loop:.2f} s "
           f"before, {reference_loop():.2f} s after (lower is a faster machine)")
-    print(f"weights (model.neighbors): {1e3 * weights_s / n:.2f} ms per graph; end to end with the "
-          f"two-worker step: {n / (weights_s + rows[2][2]):.0f} graphs/s\n")
+    print(f"weights (model.neighbors): {1e3 * weights_1 / n:.2f} ms per graph in one process, "
+          f"{1e3 * weights_s / n:.2f} with n_jobs=2 (the same weights); end to end with two workers: "
+          f"{n / (weights_s + rows[2][2]):.0f} graphs/s\n")
     print(f"per call, sending the padded training graphs to two workers (an empty task each, best of 3): "
           f"in memory {1e3 * _send_cost(padded_graphs(model.training_)):.0f} ms, "
           f"file-backed (what predict uses) {1e3 * _send_cost(padded_graphs(model.training_, files=True)):.0f} ms\n")

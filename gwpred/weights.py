@@ -26,6 +26,7 @@ from scipy.linalg import cho_factor, cho_solve
 from threadpoolctl import threadpool_limits
 
 from ._utils import half_physical_memory, progress_bar
+from .parallel import parallel_map
 
 __all__ = [
     "KERNELS",
@@ -818,11 +819,14 @@ class LocalRidgeWeights:
         negative: str = "clip",
         progress: bool = False,
         empty: str = "first",
+        n_jobs: int = 1,
     ) -> tuple[NDArray[np.int64], Array]:
         """The ``top_k`` largest local weights per query, on the simplex, block by block.
 
         Equal to ``sparsify(self.raw_weights(X), top_k, negative=negative)``
         while holding only ``block_size`` rows of length ``n_train`` at a time.
+        With ``n_jobs``, blocks run on workers (:func:`gwpred.parallel.parallel_map`);
+        the result is the same.
 
         Parameters
         ----------
@@ -834,6 +838,8 @@ class LocalRidgeWeights:
             Progress bar over the queries (a tick per block).
         empty : {"first", "error"}, default="first"
             See :meth:`KernelRidgeWeights.top_weights`.
+        n_jobs : int, default=1
+            Workers for the blocks, as in :func:`gwpred.parallel.parallel_map`.
 
         Returns
         -------
@@ -846,13 +852,19 @@ class LocalRidgeWeights:
         X, blocks = self._blocks(X)
         if not blocks:
             return sparsify(np.zeros((0, self.n_train_)), top_k, negative=negative)
-        parts, empty_rows = [], []
-        with progress_bar(None, progress=progress, total=len(X), desc="local weights", unit="query") as bar:
-            for b in blocks:
-                W = self._local_rows(X[b])
-                empty_rows.append(_empty_rows(W) + b.start)
-                parts.append(sparsify(W, top_k, negative=negative))
-                bar.update(len(parts[-1][0]))
+        done = parallel_map(
+            _local_top, [(X[b],) for b in blocks], n_jobs=n_jobs, progress=progress, desc="local weights",
+            unit="query", weights=[b.stop - b.start for b in blocks],
+            shared={"model": self, "top_k": top_k, "negative": negative},
+        )
         if empty == "error":
-            _refuse_empty(np.concatenate(empty_rows))
-        return np.vstack([p[0] for p in parts]), np.vstack([p[1] for p in parts])
+            _refuse_empty(np.concatenate([rows + b.start for (_, _, rows), b in zip(done, blocks)]))
+        return np.vstack([d[0] for d in done]), np.vstack([d[1] for d in done])
+
+
+def _local_top(
+    X: Array, model: LocalRidgeWeights, top_k: int | None, negative: str
+) -> tuple[NDArray[np.int64], Array, NDArray[np.int64]]:
+    """One block of :meth:`LocalRidgeWeights.top_weights`: indices, weights and the empty rows."""
+    W = model._local_rows(X)
+    return (*sparsify(W, top_k, negative=negative), _empty_rows(W))

@@ -553,6 +553,21 @@ def test_block_size_does_not_change_local_weights(kernel: str) -> None:
         np.testing.assert_allclose(w, results[0][2], rtol=1e-12, atol=1e-15)
 
 
+def test_local_weights_on_workers_equal_one_process() -> None:
+    # bitwise: each block is the same computation wherever it runs; the empty-row check still
+    # names the right query (reference: the one-process results and the row we made empty)
+    rng = np.random.default_rng(5)
+    X, Xt = random_bits(rng, 150, 40, 0.3), random_bits(rng, 23, 40, 0.3)
+    Xt[13] = 0  # Tanimoto 0 to every training input: an empty row
+    model = LocalRidgeWeights("tanimoto", local_size=20, block_size=4).fit(X)
+    idx1, w1 = model.top_weights(Xt, 5)
+    idx2, w2 = model.top_weights(Xt, 5, n_jobs=2)
+    np.testing.assert_array_equal(idx1, idx2)
+    np.testing.assert_array_equal(w1, w2)
+    with pytest.raises(ValueError, match=r"\b13\b"):
+        model.top_weights(Xt, 5, empty="error", n_jobs=2)
+
+
 @pytest.mark.parametrize("negative", ["clip", "shift"])
 @pytest.mark.parametrize("top_k", [1, 4, None])
 def test_top_weights_equal_sparsify_of_raw_weights(data, negative: str, top_k) -> None:

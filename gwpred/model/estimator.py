@@ -580,7 +580,8 @@ class BarycenterGraphPredictor(BaseEstimator):
             X = self.embedding_.transform(X)
         # an input unlike every training input (all kernel values 0) is an error, not graph 0
         if self.weight_model_ == "local":  # the slow part at scale: show it
-            return self.weights_.top_weights(X, self._n_neighbors(), progress=self.progress, empty="error")
+            return self.weights_.top_weights(X, self._n_neighbors(), progress=self.progress, empty="error",
+                                             n_jobs=self.n_jobs)
         return self.weights_.top_weights(X, self._n_neighbors(), empty="error")
 
     def _n_neighbors(self) -> int:
