@@ -25,7 +25,7 @@ from numpy.typing import ArrayLike, NDArray
 from scipy.linalg import cho_factor, cho_solve
 from threadpoolctl import threadpool_limits
 
-from ._utils import half_physical_memory, progress_bar
+from ._utils import half_physical_memory
 from .parallel import parallel_map
 
 __all__ = [
