@@ -36,7 +36,6 @@ from gwpred import BarycenterGraphPredictor
 from gwpred.datasets import load_qm9, split_indices
 from gwpred.metrics import summarize
 from gwpred.ranking import CandidateLibrary, rank_candidates
-from gwpred.weights import kernel_matrix
 
 KERNEL = {"fingerprint": "tanimoto", "spectrum": "rbf"}
 #: Embedding options per input kind (a 1-D convolution for spectra, on their grid).
@@ -95,10 +94,8 @@ def main() -> None:
             if name == "learned":
                 h = model.embedding_.history
                 print(f"embedding: {len(h['train_loss'])} epochs (best {h['best_epoch']}), {h['seconds']:.0f} s, "
-                      f"validation loss {h['validation_loss'][0]:.4f} -> {min(h['validation_loss']):.4f}")
-                nn = (model.embedding_.transform(Xt) @ model.embedding_.transform(Xf).T).argmax(1)
-            else:
-                nn = kernel_matrix(Xt, Xf, model.kernel, model.weights_.gamma_).argmax(1)
+                      f"validation loss {h['initial_validation_loss']:.4f} -> {min(h['validation_loss']):.4f}")
+            nn = model.input_kernel(Xt, Xf).argmax(1)  # the model's own kernel, learned or fixed
             nearest = [gf[j] for j in nn]
             s = summarize(nearest, gt, time_limit=args.time_limit)
             rows.append((f"1-NN, {name}", s["mean_ged"], np.mean([same(a, b) for a, b in zip(nearest, gt)]),
