@@ -516,6 +516,17 @@ class BarycenterGraphPredictor(BaseEstimator):
         return self.weight_model
 
     # ------------------------------------------------------------- predict
+    def _queries(self, X: ArrayLike, name: str) -> NDArray:
+        """``X`` checked as new inputs of this fitted model: finite, 2-D, as many columns as in fit."""
+        X = check_inputs(X, name)
+        expected = self.n_train_ if self.kernel == "precomputed" else self.n_features_in_
+        if X.shape[1] != expected:
+            raise ValueError(
+                f"{name} has {X.shape[1]} columns but the model was fitted with {expected}; "
+                "use the same features (or the kernel to the training items) as in fit."
+            )
+        return X
+
     def input_kernel(self, X: ArrayLike, Y: ArrayLike) -> NDArray[np.float64]:
         """The fitted input kernel between two sets of inputs (e.g. for 1-NN retrieval).
 
@@ -543,12 +554,7 @@ class BarycenterGraphPredictor(BaseEstimator):
                 "kernel='precomputed' has no kernel function to apply to new inputs; compute the "
                 "kernel between them yourself"
             )
-        X, Y = check_inputs(X, "X"), check_inputs(Y, "Y")
-        for name, arr in (("X", X), ("Y", Y)):
-            if arr.shape[1] != self.n_features_in_:
-                raise ValueError(
-                    f"{name} has {arr.shape[1]} columns but the model was fitted with {self.n_features_in_}"
-                )
+        X, Y = self._queries(X, "X"), self._queries(Y, "Y")
         if self.kernel == "learned":
             return kernel_matrix(self.embedding_.transform(X), self.embedding_.transform(Y), "rbf",
                                  self.weights_.gamma_)
@@ -569,13 +575,7 @@ class BarycenterGraphPredictor(BaseEstimator):
             Non-negative, each row sums to one (zeros where fewer were kept).
         """
         check_is_fitted(self, "weights_")
-        X = check_inputs(X)
-        expected = self.n_train_ if self.kernel == "precomputed" else self.n_features_in_
-        if X.shape[1] != expected:
-            raise ValueError(
-                f"X has {X.shape[1]} columns but the model was fitted with {expected}; "
-                "use the same features (or the kernel to the training items) as in fit."
-            )
+        X = self._queries(X, "X")
         if self.kernel == "learned":
             X = self.embedding_.transform(X)
         # an input unlike every training input (all kernel values 0) is an error, not graph 0
