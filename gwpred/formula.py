@@ -1,12 +1,18 @@
 """Molecular formulas and valences of heavy-atom graphs.
 
-A formula such as ``"C4H6O2"`` is what a mass measurement tells about an
-unknown molecule.  gwpred uses it to fix the heavy atoms of a prediction
+A formula such as ``"C4H6O2"`` (or an ion's, ``"C2H3O2-"``) is what a mass
+measurement tells about an unknown molecule.  gwpred uses it to fix the heavy atoms of a prediction
 (their elements and number) and, when the hydrogen count is given, the total
 bond order (through the degree of unsaturation).
 
-Pure Python: RDKit is needed only for the default valence of elements
-outside the built-in table (C, N, O, F, ...).
+Atoms are written as node labels that keep what valence needs: the element
+symbol and the formal charge, as in SMILES brackets (``"C"``, ``"N+"``,
+``"O-"``).  Each label has a set of allowed valences (S 2, 4 or 6; ``"N+"`` 4;
+``"O-"`` 1), RDKit's; an atom takes the smallest allowed valence at or above
+its bonds, and the difference is its implicit hydrogens.
+
+Pure Python: RDKit is needed only for the valences of charged atoms and of
+elements outside the built-in table (C, N, O, F, S, P, halogens, ...).
 """
 
 from __future__ import annotations
@@ -14,9 +20,11 @@ from __future__ import annotations
 import re
 from collections.abc import Hashable, Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any
+from functools import lru_cache
+from typing import Any, Union
 
 import networkx as nx
+import numpy as np
 
 from ._utils import require_extra
 
@@ -35,6 +43,13 @@ __all__ = [
     "hydrogen_counts",
     "parse_formula",
     "valence_table",
+    "ANY_VALENCE_CAP",
+    "atom_label",
+    "implicit_hydrogens",
+    "node_atom",
+    "split_atom_label",
+    "valence_set",
+    "valence_sets",
 ]
 
 #: Most atoms a formula may hold (hydrogens included): far beyond any molecule whose graph
@@ -177,22 +192,175 @@ def atomic_number(symbol: str) -> int:
         raise ValueError(f"{symbol!r} is not an element symbol (e.g. 'C', 'Cl').")
     return SYMBOLS.index(symbol) + 1
 
-# Valence of neutral atoms in organic molecules (common practice: the
-# lowest "normal" valence; RDKit's default valences agree for these).
-_VALENCE = {
-    "H": 1,
-    "B": 3,
-    "C": 4,
-    "N": 3,
-    "O": 2,
-    "F": 1,
-    "Si": 4,
-    "P": 3,
-    "S": 2,
-    "Cl": 1,
-    "Br": 1,
-    "I": 1,
+#: A node label that carries what valence needs: an element symbol and an optional formal
+#: charge written as in SMILES brackets (``"N+"``, ``"O-"``, ``"Fe+2"``).
+_ATOM_LABEL = re.compile(r"([A-Z][a-z]?)(?:([+-])(\d*))?")
+
+#: Most bonds gwpred lets an atom carry when RDKit gives its element no valence rule
+#: (metals: RDKit accepts any valence and adds no hydrogens).
+ANY_VALENCE_CAP = 8
+
+# Allowed valences of neutral atoms of the common organic elements, so that the core runs
+# without RDKit.  A copy of RDKit's valence lists (rdkit.Chem.GetPeriodicTable().GetValenceList),
+# checked against RDKit in tests/test_formula.py; every other label is asked of RDKit.
+_VALENCE: dict[str, tuple[int, ...]] = {
+    "H": (1,),
+    "B": (3,),
+    "C": (4,),
+    "N": (3,),
+    "O": (2,),
+    "F": (1,),
+    "Si": (4,),
+    "P": (3, 5),
+    "S": (2, 4, 6),
+    "Cl": (1,),
+    "Br": (1,),
+    "I": (1, 3, 5),
 }
+
+
+def split_atom_label(label: Any) -> tuple[str, int]:
+    """Element symbol and formal charge of an atom label such as ``"N+"``.
+
+    The charge follows the symbol as in SMILES brackets: ``+`` or ``-``,
+    then an optional magnitude (``"Fe+2"``, ``"O-"``); no sign means neutral.
+
+    Raises
+    ------
+    ValueError
+        When the label is not an element symbol with an optional charge.
+
+    Examples
+    --------
+    >>> split_atom_label("N+"), split_atom_label("O-"), split_atom_label("Fe+2"), split_atom_label("C")
+    (('N', 1), ('O', -1), ('Fe', 2), ('C', 0))
+    """
+    m = _ATOM_LABEL.fullmatch(label) if isinstance(label, str) else None
+    digits = m.group(3) if m is not None else None
+    if m is None or m.group(1) not in ELEMENTS or (digits and (digits == "1" or digits[0] == "0")):
+        # one written form per charge ("N+", never "N+1"), so that labels compare as atoms do
+        raise ValueError(
+            f"node label {label!r} is not an element symbol with an optional formal charge "
+            "(e.g. 'C', 'Cl', 'N+', 'O-', 'Fe+2'; a charge of one without the 1); valence rules need such labels, or pass a "
+            "valence table of your own."
+        )
+    sign = {"+": 1, "-": -1, None: 0}[m.group(2)]
+    return m.group(1), sign * int(m.group(3) or 1)
+
+
+def atom_label(symbol: str, charge: int = 0) -> str:
+    """The atom label of an element and a formal charge (inverse of :func:`split_atom_label`).
+
+    Examples
+    --------
+    >>> atom_label("N", 1), atom_label("O", -1), atom_label("Fe", 2), atom_label("C")
+    ('N+', 'O-', 'Fe+2', 'C')
+    """
+    if symbol not in ELEMENTS:
+        raise ValueError(f"{symbol!r} is not an element symbol (e.g. 'C', 'Cl').")
+    if isinstance(charge, bool) or not isinstance(charge, int):
+        raise TypeError(f"a formal charge must be an int; got {charge!r}.")
+    if charge == 0:
+        return symbol
+    return symbol + ("+" if charge > 0 else "-") + (str(abs(charge)) if abs(charge) > 1 else "")
+
+
+@lru_cache(maxsize=None)
+def _rdkit_valences(symbol: str, charge: int) -> tuple[int, ...] | None:
+    """Allowed valences of an atom as RDKit computes them, or None for any valence.
+
+    RDKit is asked directly: an atom with ``k`` explicit hydrogens and RDKit's
+    implicit ones is sanitized for ``k = 0..ANY_VALENCE_CAP + 1``; the allowed
+    valences are the totals it reaches (RDKit fills the smallest allowed valence
+    at or above the bonds, the rule gwpred's hydrogen counts follow).
+    """
+    purpose = f"the valences of {atom_label(symbol, charge)!r} (or pass a valence table of your own)"
+    Chem = require_extra("rdkit.Chem", purpose)
+    RDLogger = require_extra("rdkit.RDLogger", purpose)
+
+    totals: set[int] = set()
+    RDLogger.DisableLog("rdApp.*")
+    try:
+        for k in range(ANY_VALENCE_CAP + 2):
+            mol = Chem.RWMol()
+            atom = Chem.Atom(symbol)
+            atom.SetFormalCharge(charge)
+            atom.SetNumExplicitHs(k)
+            mol.AddAtom(atom)
+            m = mol.GetMol()
+            try:
+                Chem.SanitizeMol(m)
+            except Exception:  # noqa: BLE001 - RDKit raises several kinds for a bad valence
+                break
+            a = m.GetAtomWithIdx(0)
+            if a.GetNumRadicalElectrons():
+                totals.clear()
+                break
+            totals.add(k + a.GetNumImplicitHs())
+    finally:
+        RDLogger.EnableLog("rdApp.*")
+    if ANY_VALENCE_CAP + 1 in totals:  # no rule: every count is accepted as it is
+        if -1 in tuple(Chem.GetPeriodicTable().GetValenceList(symbol)):  # RDKit's mark of "any valence"
+            return None
+        raise ValueError(
+            f"RDKit has no valence rule for {atom_label(symbol, charge)!r} (charge {charge:+d} on "
+            f"{symbol}) and would accept any bonds; check the formal charge, or pass a valence table "
+            "of your own."
+        )
+    if not totals:
+        raise ValueError(
+            f"RDKit allows no valence for {atom_label(symbol, charge)!r} (charge {charge:+d} on {symbol}); "
+            "check the formal charge, or pass a valence table of your own."
+        )
+    return tuple(sorted(totals))
+
+
+def valence_set(label: Any) -> tuple[int, ...] | None:
+    """Allowed valences (total bond orders, hydrogens included) of an atom label.
+
+    Neutral C, N, O, F and the other common organic elements come from a
+    built-in copy of RDKit's table; charged atoms (``"N+"`` 4, ``"O-"`` 1,
+    ``"S+"`` 3 or 5) and other elements are computed by RDKit (needs the
+    ``chem`` extra).  None means any valence: RDKit has no rule for the element
+    (metals such as Fe); gwpred then allows up to :data:`ANY_VALENCE_CAP`
+    bonds and no implicit hydrogens, as RDKit does.
+
+    Raises
+    ------
+    ValueError
+        For a label that is not an element with an optional charge, or a
+        charge that no valence allows.
+    ImportError
+        When RDKit is needed but not installed.
+
+    Examples
+    --------
+    >>> valence_set("S"), valence_set("N")
+    ((2, 4, 6), (3,))
+    """
+    symbol, charge = split_atom_label(label)
+    if charge == 0 and symbol in _VALENCE:
+        return _VALENCE[symbol]
+    return _rdkit_valences(symbol, charge)
+
+
+def implicit_hydrogens(allowed: tuple[int, ...] | None, bonds: int) -> int:
+    """Hydrogens an atom with allowed valences ``allowed`` and ``bonds`` bond orders carries.
+
+    The smallest allowed valence at or above ``bonds`` fills up with
+    hydrogens (RDKit's rule); negative when ``bonds`` exceeds every allowed
+    valence; 0 for any-valence atoms (None).
+
+    >>> implicit_hydrogens((2, 4, 6), 3), implicit_hydrogens((3,), 4)
+    (1, -1)
+    """
+    if allowed is None:
+        return 0 if bonds <= ANY_VALENCE_CAP else ANY_VALENCE_CAP - bonds
+    for v in allowed:
+        if v >= bonds:
+            return v - bonds
+    return allowed[-1] - bonds
+
 
 _TOKEN = re.compile(r"([A-Z][a-z]?)(\d*)")
 
@@ -209,11 +377,14 @@ class Formula:
         Hydrogen count, or None when the formula does not state it.
     text : str
         The formula as given.
+    charge : int
+        Net charge (0 when the formula states none: a neutral molecule).
     """
 
     heavy: dict[str, int]
     hydrogens: int | None
     text: str
+    charge: int = 0
 
     @property
     def n_heavy(self) -> int:
@@ -221,7 +392,7 @@ class Formula:
         return sum(self.heavy.values())
 
     def __str__(self) -> str:
-        return hill_formula(self.heavy, self.hydrogens)
+        return hill_formula(self.heavy, self.hydrogens, self.charge)
 
 
 def label_counts(formula: Formula, labels: Sequence[Hashable]) -> list[int]:
@@ -316,6 +487,7 @@ def parse_formula(text: str) -> Formula:
         raise ValueError(
             "empty formula; give element symbols with counts, e.g. 'C4H6O2'."
         )
+    s, charge = _split_charge(s, text)
     counts: dict[str, int] = {}
     pos = 0
     for m in _TOKEN.finditer(s):
@@ -333,8 +505,9 @@ def parse_formula(text: str) -> Formula:
         pos = m.end()
     if pos != len(s):
         raise ValueError(
-            f"formula {text!r}: cannot read {s[pos:]!r}; write element symbols with counts only "
-            "(e.g. 'C4H6O2'), without charges, dots or brackets."
+            f"formula {text!r}: cannot read {s[pos:]!r}; write element symbols with counts "
+            "(e.g. 'C4H6O2') and at most a net charge at the end ('C2H3O2-', '[C4H12N]+', "
+            "'O4S-2'), without dots or other brackets."
         )
     total = sum(counts.values())
     if total > MAX_FORMULA_ATOMS:
@@ -348,14 +521,36 @@ def parse_formula(text: str) -> Formula:
             f"formula {text!r} has no heavy atom; gwpred predicts heavy-atom graphs."
         )
     heavy = {k: counts[k] for k in sorted(counts, key=_hill_key)}
-    return Formula(heavy, hydrogens, text)
+    return Formula(heavy, hydrogens, text, charge)
+
+
+_CHARGE_AFTER = re.compile(r"([+-])(\d*)")  # 'C2H3O2-', 'O4S-2' (as RDKit's CalcMolFormula writes)
+_BRACKETED = re.compile(r"\[([^\[\]]*)\](?:([+-])(\d*)|(\d*)([+-]))")  # '[C4H12N]+', '[SO4]2-'
+
+
+def _split_charge(s: str, text: str) -> tuple[str, int]:
+    """A formula's element part and its net charge (0 when none is written)."""
+    m = _BRACKETED.fullmatch(s)
+    if m is not None:
+        sign, digits = (m.group(2), m.group(3)) if m.group(2) else (m.group(5), m.group(4))
+        body = m.group(1)
+    else:
+        m = None
+        for m in _CHARGE_AFTER.finditer(s):  # the last sign, if it ends the text
+            pass
+        if m is None or m.end() != len(s):
+            return s, 0
+        sign, digits, body = m.group(1), m.group(2), s[: m.start()]
+    if digits and (digits[0] == "0" or int(digits) > MAX_FORMULA_ATOMS):
+        raise ValueError(f"formula {text!r}: charge {sign}{digits} is not a charge gwpred reads.")
+    return body.strip(), (1 if sign == "+" else -1) * int(digits or 1)
 
 
 def _hill_key(symbol: str) -> tuple[int, str]:
     return ({"C": 0, "H": 1}.get(symbol, 2), symbol)
 
 
-def hill_formula(heavy: Mapping[str, int], hydrogens: int | None = None) -> str:
+def hill_formula(heavy: Mapping[str, int], hydrogens: int | None = None, charge: int = 0) -> str:
     """Write a formula in Hill order.
 
     Hill order (common practice, used by Chemical Abstracts): C first, then
@@ -368,6 +563,9 @@ def hill_formula(heavy: Mapping[str, int], hydrogens: int | None = None) -> str:
         Heavy-atom counts.
     hydrogens : int or None, default=None
         Hydrogen count; None leaves hydrogens out.
+    charge : int, default=0
+        Net charge, written after the elements as RDKit's ``CalcMolFormula``
+        does (``"C2H3O2-"``, ``"O4S-2"``); nothing when 0.
 
     Returns
     -------
@@ -379,6 +577,8 @@ def hill_formula(heavy: Mapping[str, int], hydrogens: int | None = None) -> str:
     'C2H6O'
     >>> hill_formula({"N": 1}, 3)
     'H3N'
+    >>> hill_formula({"C": 2, "O": 2}, 3, -1)
+    'C2H3O2-'
     """
     counts = {k: int(v) for k, v in heavy.items() if int(v) > 0}
     if hydrogens:
@@ -387,19 +587,23 @@ def hill_formula(heavy: Mapping[str, int], hydrogens: int | None = None) -> str:
         order = sorted(counts, key=_hill_key)
     else:
         order = sorted(counts)
-    return "".join(k + (str(counts[k]) if counts[k] != 1 else "") for k in order)
+    text = "".join(k + (str(counts[k]) if counts[k] != 1 else "") for k in order)
+    if charge:
+        text += ("+" if charge > 0 else "-") + (str(abs(charge)) if abs(charge) > 1 else "")
+    return text
 
 
 def default_valence(symbol: str) -> int:
-    """Valence of a neutral atom of ``symbol``.
+    """Default (smallest) valence of an atom label: an element, optionally charged.
 
     C 4, N 3, O 2, F 1 and the other common organic elements from a
-    built-in table (common practice); other elements from RDKit's periodic
-    table (needs the ``chem`` extra).
+    built-in table (a copy of RDKit's); charged atoms (``"N+"`` 4) and other
+    elements from RDKit (needs the ``chem`` extra), see :func:`valence_set`.
 
     Parameters
     ----------
     symbol : str
+        Element symbol, optionally with a formal charge (``"N+"``).
 
     Returns
     -------
@@ -409,7 +613,7 @@ def default_valence(symbol: str) -> int:
     ------
     ValueError
         For a label that is not an element symbol, or an element without a
-        default valence.
+        default valence (RDKit gives metals none).
     ImportError
         When RDKit is needed but not installed.
 
@@ -418,35 +622,111 @@ def default_valence(symbol: str) -> int:
     >>> default_valence("N")
     3
     """
-    if not isinstance(symbol, str) or symbol not in ELEMENTS:
+    allowed = valence_set(symbol)
+    if allowed is None:
         raise ValueError(
-            f"node label {symbol!r} is not an element symbol; valence rules need element labels "
-            "(e.g. 'C', 'N'), or pass a valence table of your own."
+            f"element {symbol!r} has no default valence (RDKit accepts any); pass a valence table of "
+            "your own."
         )
-    if symbol in _VALENCE:
-        return _VALENCE[symbol]
-    Chem = require_extra(
-        "rdkit.Chem", f"the default valence of {symbol!r} (or pass a valence table of your own)"
-    )
-    v = int(Chem.GetPeriodicTable().GetDefaultValence(symbol))
-    if v < 0:
-        raise ValueError(
-            f"element {symbol!r} has no default valence; pass a valence table of your own."
-        )
-    return v
+    return allowed[0]
 
 
-def valence_table(
-    labels: Any, valences: Mapping[Hashable, int] | None = None
-) -> list[int]:
-    """Valence of each label, from ``valences`` or :func:`default_valence`.
+ValenceRule = Union[int, Sequence[int]]
+
+
+def node_atom(data: Mapping[str, Any], node_label: str = "label", charge: str = "charge") -> tuple[str, int]:
+    """Element and formal charge of a node from its attributes.
+
+    The charge is the label's (``"N+"``); a label without one takes the
+    ``charge`` attribute (graphs that store the charge apart), 0 if missing.
+
+    Raises
+    ------
+    ValueError
+        When the label is not an atom label, or label and attribute disagree.
+    TypeError
+        When the charge attribute is not an integer.
+
+    Examples
+    --------
+    >>> node_atom({"label": "N+"}), node_atom({"label": "N", "charge": 1}), node_atom({"label": "O"})
+    (('N', 1), ('N', 1), ('O', 0))
+    """
+    label = data.get(node_label)
+    symbol, q = split_atom_label(label)
+    extra = data.get(charge)
+    if extra is None:
+        return symbol, q
+    if isinstance(extra, bool) or not isinstance(extra, (int, np.integer)):
+        raise TypeError(f"charge={extra!r} of type {type(extra).__name__} is not an int.")
+    if q and int(extra) != q:
+        raise ValueError(
+            f"node label {label!r} says charge {q:+d} but its {charge!r} attribute says {int(extra):+d}; "
+            "make them agree (or drop the attribute)."
+        )
+    return symbol, q or int(extra)
+
+
+def _own_rule(label: Hashable, rule: Any) -> tuple[int, ...]:
+    values = [rule] if isinstance(rule, (int, bool)) else rule
+    try:
+        out = tuple(sorted(set(values)))
+    except TypeError:
+        out = ()
+    if not out or any(isinstance(v, bool) or not isinstance(v, int) or v < 0 for v in out):
+        raise ValueError(
+            f"valence of {label!r} must be a non-negative integer or a list of them; got {rule!r}."
+        )
+    return out
+
+
+def valence_sets(
+    labels: Any, valences: Mapping[Hashable, ValenceRule] | None = None
+) -> list[tuple[int, ...] | None]:
+    """Allowed valences of each label, from ``valences`` or :func:`valence_set`.
 
     Parameters
     ----------
     labels : iterable of hashable
-        Node labels (element symbols unless ``valences`` covers them).
+        Node labels (atom labels unless ``valences`` covers them).
     valences : mapping, default=None
-        Valences that override the defaults.
+        Valences that override the defaults: one integer or a list of
+        allowed integers per label.
+
+    Returns
+    -------
+    list of (tuple of int or None)
+        Sorted allowed valences; None for any valence (see :func:`valence_set`).
+
+    Examples
+    --------
+    >>> valence_sets(["C", "S", "X"], {"X": [1, 3]})
+    [(4,), (2, 4, 6), (1, 3)]
+    """
+    out: list[tuple[int, ...] | None] = []
+    for lab in labels:
+        if valences is not None and lab in valences:
+            out.append(_own_rule(lab, valences[lab]))
+        else:
+            out.append(valence_set(lab))
+    return out
+
+
+def valence_table(
+    labels: Any, valences: Mapping[Hashable, ValenceRule] | None = None
+) -> list[int]:
+    """Largest total bond order of each label, from ``valences`` or :func:`valence_set`.
+
+    An atom whose bonds stay at or below it is valid: implicit hydrogens fill
+    the smallest allowed valence at or above its bonds.  Labels of any valence
+    (metals) get :data:`ANY_VALENCE_CAP`.
+
+    Parameters
+    ----------
+    labels : iterable of hashable
+        Node labels (atom labels unless ``valences`` covers them).
+    valences : mapping, default=None
+        Valences that override the defaults (an integer or a list per label).
 
     Returns
     -------
@@ -454,21 +734,10 @@ def valence_table(
 
     Examples
     --------
-    >>> valence_table(["C", "O", "X"], {"X": 2})
-    [4, 2, 2]
+    >>> valence_table(["C", "O", "X", "S"], {"X": 2})
+    [4, 2, 2, 6]
     """
-    out = []
-    for lab in labels:
-        if valences is not None and lab in valences:
-            v = valences[lab]
-            if isinstance(v, bool) or not isinstance(v, int) or v < 0:
-                raise ValueError(
-                    f"valence of {lab!r} must be a non-negative integer; got {v!r}."
-                )
-            out.append(int(v))
-        else:
-            out.append(default_valence(lab))
-    return out
+    return [ANY_VALENCE_CAP if v is None else v[-1] for v in valence_sets(labels, valences)]
 
 
 def _bond_order(value: Any, where: str) -> int:
@@ -492,24 +761,25 @@ def hydrogen_counts(
     *,
     node_label: str = "label",
     edge_label: str | None = "label",
-    valences: Mapping[Hashable, int] | None = None,
+    valences: Mapping[Hashable, ValenceRule] | None = None,
 ) -> dict[Any, int]:
-    """Implicit hydrogens per node: valence minus the bond orders at the node.
+    """Implicit hydrogens per node: the smallest allowed valence at or above its bonds, minus them.
 
     Parameters
     ----------
     graph : networkx.Graph
-        Heavy-atom graph; node labels are element symbols, edge labels bond
-        orders (missing edge labels count as single bonds).
+        Heavy-atom graph; node labels are atom labels (element symbols,
+        optionally charged: ``"N+"``), edge labels bond orders (missing edge
+        labels count as single bonds).
     node_label, edge_label : str
         Attributes holding them (``edge_label=None``: all bonds single).
     valences : mapping, default=None
-        Valences overriding :func:`default_valence`.
+        Valences overriding :func:`valence_set` (an integer or a list per label).
 
     Returns
     -------
     dict
-        Node -> hydrogen count; negative where the valence is exceeded.
+        Node -> hydrogen count; negative where every allowed valence is exceeded.
 
     Examples
     --------
@@ -522,21 +792,35 @@ def hydrogen_counts(
     for v, data in graph.nodes(data=True):
         if node_label not in data:
             raise ValueError(f"node {v!r} has no {node_label!r} attribute.")
-        val = valence_table([data[node_label]], valences)[0]
+        lab = data[node_label]
+        if valences is not None and lab in valences:
+            allowed = _own_rule(lab, valences[lab])
+        else:
+            allowed = valence_set(atom_label(*node_atom(data, node_label)))
         used = sum(
             _bond_order(d.get(edge_label) if edge_label else None, f"edge {v!r}-{u!r}")
             for u, d in graph.adj[v].items()
         )
-        out[v] = val - used
+        out[v] = implicit_hydrogens(allowed, used)
     return out
 
 
-def _heavy_counts(graph: nx.Graph, node_label: str) -> dict[str, int]:
+def _heavy_counts(graph: nx.Graph, node_label: str, own: Mapping[Hashable, Any] | None = None) -> tuple[dict[str, int], int]:
+    """Heavy atoms per element and net charge; labels of a valence table of one's own count as they are."""
     heavy: dict[str, int] = {}
+    total = 0
     for _, data in graph.nodes(data=True):
-        lab = str(data.get(node_label))
-        heavy[lab] = heavy.get(lab, 0) + 1
-    return heavy
+        lab = data.get(node_label)
+        if own is not None and lab in own:
+            symbol, q = str(lab), 0
+        else:
+            try:
+                symbol, q = node_atom(data, node_label)
+            except ValueError:
+                symbol, q = str(lab), 0  # not an atom: counted under its own name, never matches
+        heavy[symbol] = heavy.get(symbol, 0) + 1
+        total += q
+    return heavy, total
 
 
 def graph_formula(
@@ -573,9 +857,9 @@ def graph_formula(
     >>> graph_formula(g)
     'CH4O'
     """
-    heavy = _heavy_counts(graph, node_label)
+    heavy, charge = _heavy_counts(graph, node_label, valences)
     if not hydrogens:
-        return hill_formula(heavy)
+        return hill_formula(heavy, None, charge)
     h = hydrogen_counts(
         graph, node_label=node_label, edge_label=edge_label, valences=valences
     )
@@ -584,7 +868,7 @@ def graph_formula(
         raise ValueError(
             f"atoms {over} exceed their valence; the graph has no molecular formula."
         )
-    return hill_formula(heavy, sum(h.values()))
+    return hill_formula(heavy, sum(h.values()), charge)
 
 
 def formula_matches(
@@ -597,8 +881,9 @@ def formula_matches(
 ) -> bool:
     """Whether a heavy-atom graph has the given formula.
 
-    Heavy atoms must match; hydrogens are compared only when the formula
-    states them.  A graph over valence never matches.
+    Heavy atoms (by element) and the net charge must match (a formula
+    without a charge is neutral); hydrogens are compared only when the
+    formula states them.  A graph over valence never matches.
 
     Examples
     --------
@@ -608,8 +893,8 @@ def formula_matches(
     (True, True, False)
     """
     f = parse_formula(formula) if isinstance(formula, str) else formula
-    heavy = _heavy_counts(graph, node_label)
-    if heavy != f.heavy:
+    heavy, charge = _heavy_counts(graph, node_label, valences)
+    if heavy != f.heavy or charge != f.charge:
         return False
     try:
         h = hydrogen_counts(
