@@ -6,9 +6,12 @@ so the rest of gwpred works without it.
 
 Graph convention (the one of :func:`gwpred.datasets.load_demo`): an undirected
 :class:`networkx.Graph` whose nodes are the heavy (non-hydrogen) atoms, node
-attribute ``"label"`` the element symbol (``"C"``, ``"N"``, ``"Cl"``, ...),
-node attribute ``"charge"`` the formal charge (int; a missing ``"charge"`` is
-read as 0) and edge attribute ``"label"`` the bond order 1, 2 or 3 of a kekulé
+attribute ``"label"`` the atom label: element symbol and formal charge as in
+SMILES brackets (``"C"``, ``"Cl"``, ``"N+"``, ``"O-"``, so that a predictor
+learns charged atoms as atoms of their own), node attribute ``"charge"`` the
+formal charge again (int; a missing ``"charge"`` is read as the label's, or 0;
+graphs whose labels are plain element symbols may keep the charge there
+alone) and edge attribute ``"label"`` the bond order 1, 2 or 3 of a kekulé
 structure. Hydrogens are implicit: each atom carries as many as its element's
 default valence leaves free, as RDKit computes them. The attribute names can
 be changed with the ``node_label``, ``edge_label`` and ``charge`` options.
@@ -43,6 +46,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ._utils import atomic_write_text, install_hint, require_extra
+from .formula import atom_label, split_atom_label
 
 __all__ = [
     "MoleculeCheck",
@@ -151,7 +155,8 @@ def _graph_from_mol(mol: Any, where: str, node_label: str, edge_label: str) -> n
     orders = {v: k for k, v in _bond_types().items()}
     G = nx.Graph()
     for atom in mol.GetAtoms():
-        G.add_node(atom.GetIdx(), **{node_label: atom.GetSymbol(), "charge": atom.GetFormalCharge()})
+        q = atom.GetFormalCharge()
+        G.add_node(atom.GetIdx(), **{node_label: atom_label(atom.GetSymbol(), q), "charge": q})
     for bond in mol.GetBonds():
         order = orders.get(bond.GetBondType())
         if order is None:
@@ -297,19 +302,25 @@ def graph_from_smiles(
 # --------------------------------------------------------------------------- graph -> molecule
 
 
-def _element(value: Any, node: Any, node_label: str) -> int:
+def _element(value: Any, node: Any, node_label: str) -> tuple[int, int]:
+    """Atomic number and the label's formal charge (0 when the label has none)."""
     if not isinstance(value, str):
         raise TypeError(
             f"node {node!r} has {node_label}={value!r} of type {type(value).__name__}; "
             "it must be an element symbol str such as 'C' or 'Cl'"
         )
-    z = _atomic_numbers().get(value)
+    try:
+        symbol, q = split_atom_label(value)
+    except ValueError:
+        symbol, q = value, 0
+    z = _atomic_numbers().get(symbol)
     if z is None:
         raise ValueError(
             f"node {node!r} has {node_label}={value!r}, which is not an element symbol; "
-            "use symbols such as 'C', 'N', 'O', 'Cl' (capitalised, no aromatic lower case)"
+            "use symbols such as 'C', 'N', 'O', 'Cl' (capitalised, no aromatic lower case), "
+            "optionally with a formal charge ('N+', 'O-', 'Fe+2')"
         )
-    return z
+    return z, q
 
 
 def _formal_charge(value: Any, node: Any, charge: str) -> int:
@@ -362,8 +373,15 @@ def _mol_from_graph(graph: nx.Graph, node_label: str, edge_label: str, charge: s
                 f"node {node!r} has no {node_label!r} attribute; every node needs its element "
                 f"symbol there (or pass node_label=<attribute name>)"
             )
-        atom = Chem.Atom(_element(data[node_label], node, node_label))
-        atom.SetFormalCharge(_formal_charge(data.get(charge, 0), node, charge))
+        z, q = _element(data[node_label], node, node_label)
+        extra = _formal_charge(data.get(charge, q), node, charge)
+        if q and extra != q:
+            raise ValueError(
+                f"node {node!r} has {node_label}={data[node_label]!r} (charge {q:+d}) but "
+                f"{charge}={extra!r}; make the label and the charge attribute agree (or drop one)"
+            )
+        atom = Chem.Atom(z)
+        atom.SetFormalCharge(extra)
         rw.AddAtom(atom)
     types = _bond_types()
     for u, v, data in graph.edges(data=True):

@@ -432,10 +432,10 @@ def _item_columns(pred: list, true: list, node_label: str, edge_label: str | Non
     """Per pair: the sample id, and for molecules the formulas and SMILES of both graphs."""
     from ._utils import has_extra
     from .chem import graph_to_smiles  # RDKit itself is imported only when a SMILES is made
-    from .formula import ELEMENTS, graph_formula
+    from .formula import graph_formula
+    from .report import is_molecular
 
-    molecular = edge_label is not None and all(
-        d.get(node_label) in ELEMENTS for g in (*pred, *true) for _, d in g.nodes(data=True))
+    molecular = edge_label is not None and is_molecular([*pred, *true], node_label)
     smiles = molecular and has_extra("rdkit")
     rows = []
     for p, t in zip(pred, true):

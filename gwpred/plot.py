@@ -38,7 +38,7 @@ from matplotlib.patches import Patch, Rectangle
 from numpy.typing import ArrayLike, NDArray
 
 from ._utils import atomic_open, has_extra, require_extra
-from .formula import ELEMENTS, atomic_number
+from .formula import ELEMENTS, atomic_number, split_atom_label
 from .ged import edit_distance
 
 __all__ = [
@@ -155,7 +155,12 @@ def _edge_value(data: Mapping, edge_label: Hashable | None) -> Any:
 
 
 def _is_element(label: Any) -> bool:
-    return isinstance(label, str) and label in ELEMENTS
+    """An element symbol, optionally charged (``"N+"``: an atom label of gwpred.chem)."""
+    try:
+        split_atom_label(label)
+    except ValueError:
+        return False
+    return True
 
 
 # --------------------------------------------------------------------------- colours, styles
@@ -179,7 +184,8 @@ def _atom_palette() -> dict[int, str]:
 
 
 def _element_colour(symbol: str, palette: Mapping[int, str]) -> str:
-    return palette.get(atomic_number(symbol), palette.get(-1, "#000000"))
+    """The palette colour of an atom label's element (``"N+"``: nitrogen's)."""
+    return palette.get(atomic_number(split_atom_label(symbol)[0]), palette.get(-1, "#000000"))
 
 
 def _text_colour(face: str) -> str:

@@ -90,7 +90,7 @@ from ._utils import check_inputs, progress_bar, renamed_keyword, require_extra
 from .chem import graph_to_mol, morgan_fingerprints, rdkit_modules
 from .codec import LabelSpace, TrainingSet
 from .fgw import feature_costs, fgw_to_many, pad_graphs
-from .formula import Formula, parse_formula
+from .formula import Formula, node_atom, parse_formula
 from .parallel import parallel_map
 from .wl import (
     IdGraph,
@@ -260,14 +260,34 @@ class CandidateLibrary:
         return self._whole["sizes"]
 
     def compositions(self, node_label: str) -> list[tuple]:
-        """Every candidate's node-label counts as a sorted tuple of (str(label), count)."""
+        """Every candidate's composition: (element, count) pairs, sorted, then ``("+/-", net charge)``
+        when charged (:func:`composition`)."""
         key = ("composition", node_label)
         if key not in self._whole:
-            self._whole[key] = [
-                tuple(sorted(Counter(str(d.get(node_label)) for _, d in g.nodes(data=True)).items()))
-                for g in self.graphs
-            ]
+            self._whole[key] = [composition(g, node_label) for g in self.graphs]
         return self._whole[key]
+
+
+def composition(graph: nx.Graph, node_label: str = "label") -> tuple:
+    """Heavy atoms per element (``"N+"`` counts as N; other labels as they are) as sorted
+    ``(str, count)`` pairs, followed by ``("+/-", net charge)`` when the charges do not cancel."""
+    counts: Counter = Counter()
+    charge = 0
+    for _, d in graph.nodes(data=True):
+        try:
+            symbol, q = node_atom(d, node_label)
+        except (TypeError, ValueError):
+            symbol, q = str(d.get(node_label)), 0
+        counts[symbol] += 1
+        charge += q
+    return tuple(sorted(counts.items())) + ((("+/-", charge),) if charge else ())
+
+
+def formula_composition(formula: Formula) -> tuple:
+    """A formula's heavy atoms and net charge in the form of :func:`composition`."""
+    return tuple(sorted((str(k), v) for k, v in formula.heavy.items())) + (
+        (("+/-", formula.charge),) if formula.charge else ()
+    )
 
 
 @dataclass(frozen=True)
@@ -348,10 +368,10 @@ def _apply_filter(problem: _Problem, filter: Any, node_label: str) -> tuple[_Pro
                 parsed = f if isinstance(f, Formula) else parse_formula(f)
             except (TypeError, ValueError) as exc:
                 raise ValueError(f"filter[{r}]: {exc}") from None
-            want = tuple(sorted((str(k), v) for k, v in parsed.heavy.items()))
+            want = formula_composition(parsed)
             comps = lib.compositions(node_label)
             keep = np.array([comps[i] == want for i in idx.tolist()], dtype=bool)
-            notes.append(f"formula {parsed.text} (heavy atoms)")
+            notes.append(f"formula {parsed.text} (heavy atoms" + (", net charge)" if parsed.charge else ")"))
         elif isinstance(f, numbers.Integral) and not isinstance(f, (bool, np.bool_)):
             keep = lib.sizes()[idx] == int(f)
             notes.append(f"{int(f)} nodes")

@@ -33,7 +33,7 @@ from numpy.typing import NDArray
 
 from ._utils import CAUTION, atomic_write_text, has_extra, progress_bar, renamed_keyword, require_extra
 from .chem import check_molecule, graph_to_mol
-from .formula import ELEMENTS, graph_formula
+from .formula import graph_formula, node_atom, split_atom_label
 from .io import RankedCandidate, read_ranked, write_ranked
 from .metrics import TOP_K, edit_distance, exact_match, expected_calibration_error, hit_rank, summarize
 from .plot import (
@@ -75,7 +75,7 @@ Pair = tuple[NDArray[np.int64], NDArray[np.float64]]
 
 
 def is_molecular(graphs: Sequence[nx.Graph], node_label: Hashable = "label") -> bool:
-    """Whether every node label is an element symbol (and there is at least one node).
+    """Whether every node label is an element symbol, optionally charged ("N+"), and there is a node.
 
     Examples
     --------
@@ -86,7 +86,9 @@ def is_molecular(graphs: Sequence[nx.Graph], node_label: Hashable = "label") -> 
     seen = False
     for g in graphs:
         for _, lab in g.nodes(data=node_label):
-            if not (isinstance(lab, str) and lab in ELEMENTS):
+            try:  # an element symbol, optionally charged ("N+")
+                split_atom_label(lab)
+            except ValueError:
                 return False
             seen = True
     return seen
@@ -1391,10 +1393,9 @@ def _sdf_record(graph: nx.Graph, opts: _Options) -> list[str] | None:
     pos = {v: k for k, v in enumerate(graph.nodes)}
     atoms = []
     for _, data in graph.nodes(data=True):
-        symbol, charge = data.get(opts.node_label), data.get("charge", 0)
-        if not (isinstance(symbol, str) and symbol in ELEMENTS):
-            return None
-        if isinstance(charge, bool) or not isinstance(charge, (int, np.integer)):
+        try:  # the element and the charge, from the label ("N+") or the charge attribute
+            symbol, charge = node_atom(data, opts.node_label)
+        except (TypeError, ValueError):
             return None
         atoms.append(symbol + (f"{int(charge):+d}" if charge else ""))
     bonds = []

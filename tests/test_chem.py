@@ -133,11 +133,17 @@ def test_aromatic_input_is_kekulized():
     ["C[N+](C)(C)C", "[O-]C=O", "C[N+](=O)[O-]", "[NH3+]CC(=O)[O-]", "[O-][n+]1ccccc1", "[Na+].[Cl-]"],
 )
 def test_charged_molecules_round_trip(smiles):
-    # Reference: RDKit's formal charges of the parsed SMILES, and its canonical SMILES.
+    # Reference: RDKit's element symbols and formal charges of the parsed SMILES, and its
+    # canonical SMILES. The label keeps the charge as SMILES brackets write it ([N+] -> "N+").
     mol = Chem.MolFromSmiles(smiles)
     G = graph_from_smiles(smiles)
     assert [G.nodes[v]["charge"] for v in G] == [a.GetFormalCharge() for a in mol.GetAtoms()]
-    assert [G.nodes[v]["label"] for v in G] == [a.GetSymbol() for a in mol.GetAtoms()]
+    sign = {0: "", 1: "+", -1: "-"}
+    assert [G.nodes[v]["label"] for v in G] == [a.GetSymbol() + sign[a.GetFormalCharge()] for a in mol.GetAtoms()]
+    assert graph_to_smiles(G) == rdkit_canonical(smiles)
+    # the label alone carries the charge: without the attribute the molecule is the same
+    for v in G:
+        del G.nodes[v]["charge"]
     assert graph_to_smiles(G) == rdkit_canonical(smiles)
 
 

@@ -464,7 +464,7 @@ def test_empty_candidate_sets_give_a_clear_message(demo, model, cands):
             r"filter\[2\] holds candidate index 40, outside 0..29",
         ),
         ({"filter": [None, None, [0.5]]}, TypeError, r"filter\[2\] must be a formula \(str\), a node count"),
-        ({"filter": [None, None, "C4+"]}, ValueError, r"filter\[2\]: formula 'C4\+': cannot read"),
+        ({"filter": [None, None, "C4+-"]}, ValueError, r"filter\[2\]: formula 'C4\+-': cannot read"),  # one net charge at most
     ],
 )
 def test_bad_arguments(demo, model, cands, kwargs, error, message):
