@@ -14,7 +14,8 @@ This module never solves transport problems.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from collections.abc import Sequence
+from dataclasses import dataclass, replace
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -43,11 +44,16 @@ class DecodedGraph:
         Node pairs ``i < j``.
     edge_classes : ndarray of shape (m,)
         Edge label index per edge.
+    note : str
+        Empty, or what the decoder could not do (a time budget reached, a
+        constraint given up); a decoding with a note may break the rules it
+        was asked to keep and says which.
     """
 
     node_classes: NDArray[np.int64]
     edges: NDArray[np.int64]
     edge_classes: NDArray[np.int64]
+    note: str = ""
 
 
 def weighted_median(values: ArrayLike, weights: ArrayLike) -> float:
@@ -387,32 +393,107 @@ def _int_vector(
     return arr.astype(np.int64)
 
 
-def _feasible(
-    g: DecodedGraph,
-    valences: NDArray[np.int64],
-    orders: NDArray[np.int64],
-    counts: NDArray[np.int64] | None,
-    total: int | None,
-    connected: bool,
-) -> bool:
-    """Whether a decoded graph meets the constraints of :func:`decode_valence`."""
+@dataclass(frozen=True)
+class _Rules:
+    """Checked constraints of one :func:`decode_valence` call."""
+
+    val: NDArray[np.int64]  # largest bond-order sum per label
+    order: NDArray[np.int64]  # bond order per edge label
+    sets: list[tuple[int, ...]] | None  # allowed valences per label (for hydrogens)
+    groups: NDArray[np.int64] | None  # group per label and exact nodes per group
+    group_counts: NDArray[np.int64] | None
+    charges: NDArray[np.int64] | None  # formal charge per label and the exact net charge
+    net_charge: int | None
+    total: int | None  # exact sum of bond orders
+    hydrogens: int | None  # exact implicit hydrogens
+    connected: bool
+
+
+def _implicit(allowed: tuple[int, ...], load: int) -> int:
+    return next((v - load for v in allowed if v >= load), -1)
+
+
+def _feasible(g: DecodedGraph, rules: _Rules) -> bool:
+    """Whether a decoded graph meets every constraint of :func:`decode_valence`."""
     n = len(g.node_classes)
+    cls = np.asarray(g.node_classes, dtype=np.int64)
     e = np.asarray(g.edges, dtype=np.int64).reshape(-1, 2)
-    w = orders[np.asarray(g.edge_classes, dtype=np.int64)]
-    load = np.bincount(e.ravel(), weights=np.repeat(w, 2), minlength=n)
-    if np.any(load > valences[g.node_classes]):
+    w = rules.order[np.asarray(g.edge_classes, dtype=np.int64)]
+    load = np.bincount(e.ravel(), weights=np.repeat(w, 2), minlength=n).astype(np.int64)
+    if np.any(load > rules.val[cls]):
         return False
-    if counts is not None and not np.array_equal(
-        np.bincount(g.node_classes, minlength=len(counts)), counts
+    if rules.group_counts is not None and rules.groups is not None and not np.array_equal(
+        np.bincount(rules.groups[cls], minlength=len(rules.group_counts)), rules.group_counts
     ):
         return False
-    if total is not None and int(w.sum()) != total:
+    if rules.net_charge is not None and rules.charges is not None and int(rules.charges[cls].sum()) != rules.net_charge:
         return False
-    if connected and n > 1:
+    if rules.total is not None and int(w.sum()) != rules.total:
+        return False
+    if rules.hydrogens is not None and rules.sets is not None:
+        if sum(_implicit(rules.sets[c], int(k)) for c, k in zip(cls.tolist(), load.tolist())) != rules.hydrogens:
+            return False
+    if rules.connected and n > 1:
         A = np.zeros((n, n), dtype=bool)
         A[e[:, 0], e[:, 1]] = A[e[:, 1], e[:, 0]] = True
         return bool(_reach(A, 0).all())
     return True
+
+
+def _repair(
+    start: DecodedGraph, cy: NDArray[np.float64], iu: NDArray[np.int64], ju: NDArray[np.int64], rules: _Rules
+) -> DecodedGraph:
+    """A quick valence repair: lower or drop the least supported bonds at over-full atoms, then
+    join pieces by single bonds between atoms with free valence (cheapest first).
+
+    Keeps valences always; connectivity when free valences allow; formula
+    constraints are not attempted (the caller's note says so).
+    """
+    n = len(start.node_classes)
+    cls = np.asarray(start.node_classes, dtype=np.int64)
+    pair = {(int(a), int(b)): int(c) for (a, b), c in zip(np.asarray(start.edges).reshape(-1, 2), start.edge_classes)}
+    index = {(int(a), int(b)): p for p, (a, b) in enumerate(zip(iu, ju))}
+    by_order = np.argsort(rules.order, kind="stable")  # edge labels from the smallest bond order
+
+    def load() -> NDArray[np.int64]:
+        out = np.zeros(n, dtype=np.int64)
+        for (a, b), c in pair.items():
+            out[a] += rules.order[c]
+            out[b] += rules.order[c]
+        return out
+
+    cap = rules.val[cls]
+    over = np.flatnonzero(load() > cap)
+    while over.size:
+        i = int(over[0])
+        mine = [(a, b) for (a, b) in pair if i in (a, b)]
+        worst = max(mine, key=lambda ab: cy[index[ab], pair[ab]])  # the least supported bond
+        lower = [c for c in by_order if rules.order[c] < rules.order[pair[worst]]]
+        if lower:
+            pair[worst] = int(lower[-1])  # one step down: double -> single
+        else:
+            del pair[worst]
+        over = np.flatnonzero(load() > cap)
+    if rules.connected and n > 1:
+        single = int(by_order[0])
+        while True:
+            A = np.zeros((n, n), dtype=bool)
+            for a, b in pair:
+                A[a, b] = A[b, a] = True
+            seen = _reach(A, 0)
+            if seen.all():
+                break
+            free = cap - load() >= rules.order[single]
+            options = [
+                (cy[index[(min(a, b), max(a, b))], single], min(a, b), max(a, b))
+                for a in np.flatnonzero(seen & free) for b in np.flatnonzero(~seen & free)
+            ]
+            if not options:
+                break  # no free valence left to join the pieces: the note says so
+            _, a, b = min(options)
+            pair[(int(a), int(b))] = single
+    edges = np.array(sorted(pair), dtype=np.int64).reshape(-1, 2)
+    return DecodedGraph(cls, edges, np.array([pair[(int(a), int(b))] for a, b in edges], dtype=np.int64))
 
 
 def decode_valence(
@@ -427,6 +508,12 @@ def decode_valence(
     connected: bool = True,
     label_counts: ArrayLike | None = None,
     total_bond_order: int | None = None,
+    label_groups: ArrayLike | None = None,
+    group_counts: ArrayLike | None = None,
+    label_charges: ArrayLike | None = None,
+    net_charge: int | None = None,
+    valence_sets: Sequence[Sequence[int] | None] | None = None,
+    hydrogens: int | None = None,
     time_limit: float = 10.0,
 ) -> DecodedGraph:
     """Decode a barycenter into a graph that obeys valences, by an integer program.
@@ -470,12 +557,32 @@ def decode_valence(
     total_bond_order : int, default=None
         Exact sum of the bond orders of all edges (fixed by a formula's
         hydrogen count: ``(sum of valences - hydrogens) / 2``).
+    label_groups : array-like of int, shape (n_node_labels,), default=None
+        Group of each label for ``group_counts`` (a formula's element:
+        ``"N"`` and ``"N+"`` are both nitrogen).
+    group_counts : array-like of int, default=None
+        Exact number of nodes per group; must sum to ``n``.
+    label_charges : array-like of int, shape (n_node_labels,), default=None
+        Formal charge of each label, for ``net_charge``.
+    net_charge : int, default=None
+        Exact sum of the nodes' formal charges.
+    valence_sets : sequence of (sequence of int or None), default=None
+        Allowed valences per label (``"S"``: 2, 4, 6), for ``hydrogens``; each
+        atom takes the smallest allowed valence at or above its bonds, as
+        RDKit does. None: any valence up to ``valences[a]``, no hydrogens
+        (RDKit's rule for metals). Without it, ``valences`` is the only valence.
+    hydrogens : int, default=None
+        Exact number of implicit hydrogens of the whole graph (a formula's).
     time_limit : float, default=10.0
-        Seconds for the solver; the best graph found by then is returned.
+        Seconds for the solver (the time budget).  When it runs out, the best
+        graph found is returned with a ``note``; when none was found, a quick
+        repair of the reference (or of the best labels and edges) that keeps
+        the valences, with a ``note`` naming the constraints it gave up.
 
     Returns
     -------
     DecodedGraph
+        With an empty ``note`` when the program was solved to optimality.
 
     Raises
     ------
@@ -535,31 +642,22 @@ def decode_valence(
             (np.arange(L)[None, :] != ref_edge[:, None]).astype(float) - has[:, None]
         )
     use_flow = connected and n > 1
-    if label_counts is not None:
-        counts = _int_vector("label_counts", label_counts, K)
-        if counts.sum() != n:
-            raise ValueError(
-                f"label_counts sum to {counts.sum()}, but the barycenter has {n} nodes."
-            )
-    if (
-        reference is not None
-        and reference_weight >= 1.0
-        and _feasible(
-            reference,
-            val,
-            order,
-            counts if label_counts is not None else None,
-            total_bond_order,
-            use_flow,
-        )
-    ):
+    rules = _check_rules(
+        n, K, val, order, label_counts, label_groups, group_counts, label_charges, net_charge,
+        valence_sets, hydrogens, total_bond_order, use_flow,
+    )
+    if reference is not None and reference_weight >= 1.0 and _feasible(reference, rules):
         # every single edit away from the reference gains at most 1 in expected
         # cost and pays reference_weight >= 1: the reference is optimal
         return reference
+    # atoms of labels with several allowed valences choose one (z), when hydrogens count
+    multi = [] if rules.hydrogens is None else [a for a in range(K) if len(rules.sets[a]) > 1]
+    options = {a: rules.sets[a] for a in multi}
+    nz = n * sum(len(v) for v in options.values())
     nx_, ny = n * K, P * L
     nf = 2 * P if use_flow else 0
-    nv = nx_ + ny + nf
-    cost = np.concatenate([cx.ravel(), cy.ravel(), np.zeros(nf)])
+    nv = nx_ + ny + nz + nf
+    cost = np.concatenate([cx.ravel(), cy.ravel(), np.zeros(nz + nf)])
     # constraint matrix as COO triplets, one block of rows at a time
     r_i: list[NDArray[np.int64]] = []
     c_i: list[NDArray[np.int64]] = []
@@ -589,27 +687,60 @@ def decode_valence(
     yi = nx_ + np.arange(ny).reshape(P, L)  # of y[p, b]
     add(np.repeat(np.arange(n), K), xi.ravel(), 1.0, n, 1, 1)  # one label per node
     add(np.repeat(np.arange(P), L), yi.ravel(), 1.0, P, 0, 1)  # one edge label at most
-    # valence: bond orders at node i minus its label's valence <= 0
+    # valence: bond orders at node i minus its label's largest valence <= 0
     ends = np.r_[iu, ju]
+    load_rows = np.repeat(ends, L)  # bond orders at each node, as (row, column, value) triplets
+    load_cols = np.tile(yi, (2, 1)).ravel()
+    load_vals = np.tile(order, 2 * P).astype(float)
     add(
-        np.r_[np.repeat(np.arange(n), K), np.repeat(ends, L)],
-        np.r_[xi.ravel(), np.tile(yi, (2, 1)).ravel()],
-        np.r_[-np.tile(val, n).astype(float), np.tile(order, 2 * P).astype(float)],
+        np.r_[np.repeat(np.arange(n), K), load_rows],
+        np.r_[xi.ravel(), load_cols],
+        np.r_[-np.tile(val, n).astype(float), load_vals],
         n,
         -np.inf,
         0,
     )
-    if label_counts is not None:
-        add(np.tile(np.arange(K), n), xi.ravel(), 1.0, K, counts, counts)
-    if total_bond_order is not None:
-        t = float(total_bond_order)
+    if rules.group_counts is not None:
+        add(np.tile(rules.groups, n), xi.ravel(), 1.0, len(rules.group_counts), rules.group_counts,
+            rules.group_counts)
+    if rules.net_charge is not None:
+        q = float(rules.net_charge)
+        add(np.zeros(nx_, np.int64), xi.ravel(), np.tile(rules.charges, n).astype(float), 1, q, q)
+    if rules.total is not None:
+        t = float(rules.total)
         add(
             np.zeros(ny, np.int64), yi.ravel(), np.tile(order, P).astype(float), 1, t, t
         )
+    if rules.hydrogens is not None:
+        # hydrogens = sum over atoms of (chosen valence - bond orders); a single-valence label's
+        # valence is its x, a multi-valence label's is one z per allowed value, chosen as the
+        # smallest allowed value at or above the bonds (lower bound: previous value + 1)
+        h_cols = [xi[:, a] for a in range(K) if a not in options]
+        h_vals = [np.full(n, float(rules.sets[a][0])) for a in range(K) if a not in options]
+        start = nx_ + ny
+        for a, allowed in options.items():
+            zi = start + np.arange(n * len(allowed)).reshape(n, len(allowed))
+            start += zi.size
+            v = np.asarray(allowed, dtype=float)
+            floor = np.r_[0.0, v[:-1] + 1.0]
+            add(np.r_[np.repeat(np.arange(n), len(v)), np.arange(n)], np.r_[zi.ravel(), xi[:, a]],
+                np.r_[np.ones(zi.size), -np.ones(n)], n, 0, 0)  # one value if label a
+            big = float(val.max())  # bonds <= chosen value, when the label is a (the cap row bounds the rest)
+            add(np.r_[np.repeat(np.arange(n), len(v)), load_rows, np.arange(n)],
+                np.r_[zi.ravel(), load_cols, xi[:, a]],
+                np.r_[-np.tile(v, n), load_vals, np.full(n, big)], n, -np.inf, big)
+            add(np.r_[np.repeat(np.arange(n), len(v)), load_rows], np.r_[zi.ravel(), load_cols],
+                np.r_[-np.tile(floor, n), load_vals], n, 0, np.inf)  # bonds > previous value
+            h_cols.append(zi.ravel())
+            h_vals.append(np.tile(v, n))
+        h = float(rules.hydrogens)
+        cols = np.concatenate(h_cols + [yi.ravel()])
+        add(np.zeros(len(cols), np.int64), cols,
+            np.concatenate(h_vals + [-2.0 * np.tile(order, P).astype(float)]), 1, h, h)
     if use_flow:
         # arcs a < P: iu -> ju, a >= P: ju -> iu; inflow - outflow = 1 at every
         # node but the root, which sends n - 1; capacity (n - 1) per edge
-        fi = nx_ + ny + np.arange(nf)
+        fi = nx_ + ny + nz + np.arange(nf)
         tail, head = np.r_[iu, ju], np.r_[ju, iu]
         demand = np.ones(n)
         demand[0] = -(n - 1)
@@ -634,8 +765,8 @@ def decode_valence(
         (np.concatenate(v_i), (np.concatenate(r_i), np.concatenate(c_i))),
         shape=(n_rows, nv),
     )
-    integrality = np.r_[np.ones(nx_ + ny), np.zeros(nf)]
-    upper = np.r_[np.ones(nx_ + ny), np.full(nf, n - 1.0)]
+    integrality = np.r_[np.ones(nx_ + ny + nz), np.zeros(nf)]
+    upper = np.r_[np.ones(nx_ + ny + nz), np.full(nf, n - 1.0)]
     res = milp(
         cost,
         constraints=LinearConstraint(A, np.concatenate(lo), np.concatenate(hi)),
@@ -644,22 +775,107 @@ def decode_valence(
         options={"time_limit": float(time_limit)},
     )
     if res.x is None and res.status == 1:  # scipy's milp: time or iteration limit, no solution found
-        raise ValueError(
-            f"the valence integer program found no graph of {n} nodes within its time limit "
-            f"({float(time_limit):g} s); the constraints may still be satisfiable. Allow more time "
-            "(time_limit) or predict a smaller molecule."
-        )
+        if reference is None:
+            best = np.argmin(cy, axis=1)
+            keep = np.flatnonzero(cy[np.arange(P), best] < 0)
+            reference = DecodedGraph(
+                np.argmin(cx, axis=1).astype(np.int64),
+                np.stack([iu[keep], ju[keep]], axis=1).astype(np.int64).reshape(-1, 2),
+                best[keep].astype(np.int64),
+            )
+        fixed = _repair(reference, cy, iu, ju, rules)
+        lost = _given_up(fixed, rules)
+        return replace(fixed, note=(
+            f"the valence integer program found no graph of {n} nodes within its time budget "
+            f"({float(time_limit):g} s); a quick repair keeps the valences"
+            + (f" but not {lost}" if lost else "") + "."
+        ))
     if res.x is None:
         raise ValueError(
             "no graph satisfies the valence constraints"
-            + (", the label counts" if label_counts is not None else "")
-            + (", the total bond order" if total_bond_order is not None else "")
+            + (", the label counts" if rules.group_counts is not None else "")
+            + (", the net charge" if rules.net_charge is not None else "")
+            + (", the total bond order" if rules.total is not None else "")
+            + (", the hydrogen count" if rules.hydrogens is not None else "")
             + (" and connectivity" if use_flow else "")
             + f" ({res.message.strip()}); check the formula or the valence table."
         )
-    x = np.round(res.x[:nx_]).reshape(n, K)
-    y = np.round(res.x[nx_ : nx_ + ny]).reshape(P, L)
-    node_classes = x.argmax(1).astype(np.int64)
+    note = "" if res.status == 0 else (
+        f"the valence integer program reached its time budget ({float(time_limit):g} s): the best "
+        "graph found, which keeps every constraint, is not proven the best."
+    )
+    return replace(_solution(res.x, n, K, P, L, iu, ju), note=note)
+
+
+def _solution(
+    x: NDArray[np.float64], n: int, K: int, P: int, L: int, iu: NDArray[np.int64], ju: NDArray[np.int64]
+) -> DecodedGraph:
+    """The graph of an integer program's solution vector (labels, then edge choices)."""
+    nodes = np.round(x[: n * K]).reshape(n, K)
+    y = np.round(x[n * K : n * K + P * L]).reshape(P, L)
     keep = np.flatnonzero(y.sum(1) > 0.5)
     edges = np.stack([iu[keep], ju[keep]], axis=1).astype(np.int64).reshape(-1, 2)
-    return DecodedGraph(node_classes, edges, y[keep].argmax(1).astype(np.int64))
+    return DecodedGraph(nodes.argmax(1).astype(np.int64), edges, y[keep].argmax(1).astype(np.int64))
+
+
+def _given_up(g: DecodedGraph, rules: _Rules) -> str:
+    """The constraints a repaired decoding breaks, in words ('' when none)."""
+    lost = []
+    for name, part in (
+        ("the label counts", replace(rules, net_charge=None, total=None, hydrogens=None, connected=False)),
+        ("the net charge", replace(rules, group_counts=None, total=None, hydrogens=None, connected=False)),
+        ("the total bond order", replace(rules, group_counts=None, net_charge=None, hydrogens=None, connected=False)),
+        ("the hydrogen count", replace(rules, group_counts=None, net_charge=None, total=None, connected=False)),
+        ("connectivity", replace(rules, group_counts=None, net_charge=None, total=None, hydrogens=None)),
+    ):
+        if not _feasible(g, part):
+            lost.append(name)
+    return ", ".join(lost)
+
+
+def _check_rules(
+    n: int, K: int, val: NDArray[np.int64], order: NDArray[np.int64], label_counts: ArrayLike | None,
+    label_groups: ArrayLike | None, group_counts: ArrayLike | None, label_charges: ArrayLike | None,
+    net_charge: int | None, valence_sets: Sequence[Sequence[int] | None] | None, hydrogens: int | None,
+    total: int | None, connected: bool,
+) -> _Rules:
+    """The constraints of :func:`decode_valence`, checked."""
+    groups = counts = None
+    if label_counts is not None:
+        if label_groups is not None or group_counts is not None:
+            raise ValueError("give label_counts or label_groups with group_counts, not both.")
+        groups, counts = np.arange(K), _int_vector("label_counts", label_counts, K)
+        if counts.sum() != n:
+            raise ValueError(f"label_counts sum to {counts.sum()}, but the barycenter has {n} nodes.")
+    elif (label_groups is None) != (group_counts is None):
+        raise ValueError("label_groups and group_counts go together; give both or neither.")
+    elif label_groups is not None:
+        groups = _int_vector("label_groups", label_groups, K)
+        counts = _int_vector("group_counts", group_counts, int(groups.max()) + 1 if K else 0)
+        if counts.sum() != n:
+            raise ValueError(f"group_counts sum to {counts.sum()}, but the barycenter has {n} nodes.")
+    charges = None
+    if net_charge is not None:
+        if label_charges is None:
+            raise ValueError("net_charge needs label_charges (the formal charge of each label).")
+        arr = np.asarray(label_charges)
+        if arr.shape != (K,) or (arr.size and not np.issubdtype(arr.dtype, np.integer)):
+            raise ValueError(f"label_charges must hold {K} integers; got {arr.tolist()!r}.")
+        charges = arr.astype(np.int64)
+    sets: list[tuple[int, ...]] | None = None
+    if hydrogens is not None:
+        if isinstance(hydrogens, bool) or not isinstance(hydrogens, (int, np.integer)) or hydrogens < 0:
+            raise ValueError(f"hydrogens must be a non-negative integer; got {hydrogens!r}.")
+        given = [(int(v),) for v in val] if valence_sets is None else list(valence_sets)
+        if len(given) != K:
+            raise ValueError(f"valence_sets must give {K} entries (one per node label); got {len(given)}.")
+        sets = []
+        for a, allowed in enumerate(given):
+            values = tuple(range(int(val[a]) + 1)) if allowed is None else tuple(sorted({int(v) for v in allowed}))
+            if not values or values[0] < 0 or values[-1] != val[a]:
+                raise ValueError(
+                    f"valence_sets[{a}] = {allowed!r} must be non-negative and end at valences[{a}] = {val[a]}."
+                )
+            sets.append(values)
+    return _Rules(val, order, sets, groups, counts, charges, net_charge, total,
+                  None if hydrogens is None else int(hydrogens), connected)
