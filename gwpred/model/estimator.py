@@ -33,6 +33,7 @@ from .steps import (
     Settings,
     SoftGraph,
     barycenter_batch,
+    label_atoms,
     molecular_labels,
     neighbourhood,
     on_rows,
@@ -604,9 +605,11 @@ class BarycenterGraphPredictor(BaseEstimator):
         return bool(self.valence)
 
     def _settings(self, need_valences: bool) -> Settings:
-        valences = orders = None
+        valences = orders = sets = charges = elements = None
         if need_valences:
-            valences, orders = valence_arrays(self.labels_, self.valence if self.valence_ else False)
+            table = self.valence if self.valence_ else False
+            valences, orders = valence_arrays(self.labels_, table)
+            sets, charges, elements = label_atoms(self.labels_, table)
         return Settings(
             alpha=self.alpha,
             max_outer=self.max_outer,
@@ -622,6 +625,9 @@ class BarycenterGraphPredictor(BaseEstimator):
             valence=self.valence_,
             valences=valences,
             orders=orders,
+            valence_sets=sets,
+            charges=charges,
+            elements=elements,
         )
 
     def _map(self, step: Any, X: ArrayLike, formulas: Any, decode: bool) -> list:

@@ -22,6 +22,7 @@ estimator.
 from __future__ import annotations
 
 import numbers
+import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -40,7 +41,7 @@ from ..decode import (
     weighted_median,
 )
 from ..fgw import fgw_barycenter_batch, pad_graphs, transport_average
-from ..formula import Formula, bond_total, label_counts, parse_formula, valence_table
+from ..formula import Formula, bond_total, label_counts, parse_formula, split_atom_label, valence_sets, valence_table
 from ..parallel import file_backed
 
 __all__ = [
@@ -67,6 +68,9 @@ __all__ = [
     "solve_barycenter",
     "solve_barycenters",
     "valence_arrays",
+    "DECODE_BUDGET",
+    "label_atoms",
+    "label_elements",
 ]
 
 
@@ -132,8 +136,15 @@ class Settings:
     valence : bool
         Repair decodings into valid molecules.
     valences, orders : list of int or None
-        Valence per node label and bond order per edge label; needed when
-        ``valence`` is on or a formula is given.
+        Largest valence per node label and bond order per edge label; needed
+        when ``valence`` is on or a formula is given.
+    valence_sets : list of (tuple of int or None), optional
+        Allowed valences per node label (for a formula's hydrogens).
+    charges : list of int, optional
+        Formal charge per node label (``"N+"``: 1), for a formula's net charge.
+    elements : list of str, optional
+        Element (or, for labels of a valence table of one's own, the label)
+        of each node label, for a formula's heavy atoms.
     """
 
     alpha: float
@@ -150,6 +161,9 @@ class Settings:
     valence: bool
     valences: list[int] | None
     orders: list[int] | None
+    valence_sets: list[tuple[int, ...] | None] | None = None
+    charges: list[int] | None = None
+    elements: list[str] | None = None
 
 
 @dataclass(frozen=True)
@@ -304,7 +318,7 @@ def parse_formulas(
             f"X has {n_rows} rows but {len(formulas)} formulas were given; pass one formula "
             "(or None) per row."
         )
-    known_set = set(known)
+    known_set = label_elements(known)
     out: list[Formula | None] = []
     for r, f in enumerate(formulas):
         if f is None or (isinstance(f, str) and not f.strip()):
@@ -357,6 +371,39 @@ def valence_arrays(labels: LabelSpace, valence: bool | dict) -> tuple[list[int],
     """Valence per node label and bond order per edge label of a fitted label space."""
     table = valence if isinstance(valence, dict) else None
     return valence_table(labels.node_labels_, table), bond_orders(labels.edge_labels_, labels.edge_label)
+
+
+def label_atoms(
+    labels: LabelSpace, valence: bool | dict
+) -> tuple[list[tuple[int, ...] | None], list[int], list[str]]:
+    """Allowed valences, formal charge and element of each node label of a fitted label space.
+
+    Labels of a valence table of one's own (``valence`` a dict) that are not
+    atom labels count as elements of their own name, neutral.
+    """
+    table = valence if isinstance(valence, dict) else None
+    charges, elements = [], []
+    for lab in labels.node_labels_:
+        try:
+            symbol, q = split_atom_label(lab)
+        except ValueError:
+            if table is None or lab not in table:
+                raise
+            symbol, q = str(lab), 0
+        elements.append(symbol)
+        charges.append(q)
+    return valence_sets(labels.node_labels_, table), charges, elements
+
+
+def label_elements(labels: Sequence[Any]) -> set[Any]:
+    """Elements of node labels (``"N+"`` -> ``"N"``); labels that are not atoms stay as they are."""
+    out = set()
+    for lab in labels:
+        try:
+            out.add(split_atom_label(lab)[0])
+        except ValueError:
+            out.add(lab)
+    return out
 
 
 def molecular_labels(labels: LabelSpace) -> bool:
@@ -563,8 +610,6 @@ def decode_query(
     if not (settings.valence or formula is not None):
         return labels.build_graph(out.node_classes, out.edges, out.edge_classes)
     assert settings.valences is not None and settings.orders is not None  # set by the estimator
-    counts = None if formula is None else np.array(label_counts(formula, labels.node_labels_), dtype=np.int64)
-    total = None if formula is None else bond_total(formula, counts, settings.valences)
     k = labels.n_node_labels
     try:
         out = decode_valence(
@@ -575,20 +620,68 @@ def decode_query(
             settings.orders,
             reference=None if formula is not None else out,
             connected=settings.connect,
-            label_counts=counts,
-            total_bond_order=total,
+            time_limit=DECODE_BUDGET,
+            **_formula_rules(formula, settings),
         )
     except ValueError as exc:
         where = f"formula {formula.text}: " if formula is not None else ""
         raise ValueError(f"{where}{exc}") from None
-    return labels.build_graph(out.node_classes, out.edges, out.edge_classes)
+    graph = labels.build_graph(out.node_classes, out.edges, out.edge_classes)
+    if out.note:
+        graph.graph["decoding_note"] = out.note
+        warnings.warn(f"a prediction of {len(out.node_classes)} nodes: {out.note}", RuntimeWarning, stacklevel=2)
+    return graph
+
+
+#: Seconds the valence and formula integer program of one prediction may take
+#: (``benchmarks/bench_druglike.py`` measures the times); past it, the best graph found,
+#: or a quick valence repair, comes back with a ``"decoding_note"`` graph attribute.
+DECODE_BUDGET = 2.0
+
+
+def _plain(settings: Settings) -> bool:
+    """Every label a neutral atom with one valence (QM9-like): the formula fixes the bond total."""
+    sets, charges = settings.valence_sets, settings.charges
+    return sets is None or charges is None or all(
+        v is not None and len(v) == 1 and q == 0 for v, q in zip(sets, charges)
+    )
+
+
+def _formula_rules(formula: Formula | None, settings: Settings) -> dict[str, Any]:
+    """The constraints a formula puts on :func:`gwpred.decode.decode_valence`."""
+    if formula is None:
+        return {}
+    labels = settings.labels
+    if _plain(settings) and formula.charge:
+        raise ValueError(
+            f"it has net charge {formula.charge:+d}, but no training node label is a charged atom "
+            "('N+', 'O-'); train on graphs whose labels carry the charges (gwpred.chem does so)."
+        )
+    if _plain(settings):  # per-label counts and the bond total from the hydrogens, as since 0.1
+        counts = np.array(label_counts(formula, labels.node_labels_), dtype=np.int64)
+        return {"label_counts": counts, "total_bond_order": bond_total(formula, counts, settings.valences)}
+    assert settings.elements is not None and settings.charges is not None
+    elements = sorted(set(settings.elements) | set(formula.heavy), key=str)
+    groups = np.array([elements.index(e) for e in settings.elements], dtype=np.int64)
+    return {
+        "label_groups": groups,
+        "group_counts": np.array([formula.heavy.get(e, 0) for e in elements], dtype=np.int64),
+        "label_charges": np.asarray(settings.charges, dtype=np.int64),
+        "net_charge": formula.charge,
+        "valence_sets": settings.valence_sets,
+        "hydrogens": formula.hydrogens,
+    }
 
 
 def formula_counts(formula: Formula | None, labels: LabelSpace) -> NDArray[np.int64] | None:
-    """Heavy atoms per node label of a formula, or None."""
+    """Heavy atoms of a formula, per node label when each label is an element of its own, else
+    per element (its sum fixes the barycenter's size); or None."""
     if formula is None:
         return None
-    return np.array(label_counts(formula, labels.node_labels_), dtype=np.int64)
+    counts = label_counts(formula, labels.node_labels_)
+    if sum(counts) != formula.n_heavy:  # charged labels ("N+"): counted per element
+        counts = list(formula.heavy.values())
+    return np.array(counts, dtype=np.int64)
 
 
 def predict_query(hood: Neighbourhood, settings: Settings, formula: Formula | None = None) -> nx.Graph:
