@@ -381,3 +381,46 @@ def test_valence_auto_is_on_for_molecules_and_off_for_other_graphs():
     from gwpred.chem import graph_to_smiles
 
     assert all(Chem.MolFromSmiles(graph_to_smiles(g)) is not None for g in model.predict(X[500:560]))
+
+
+def _butene_scores():
+    # two strongly suggested C=C pairs (0-1, 2-3) and a weak 1-2 link: without connectivity
+    # the best C4H8 graph is two ethylenes (common practice: C2H4 twice is C4H8)
+    C = np.zeros((4, 4))
+    C[0, 1], C[2, 3] = 0.95, 0.9  # unequal, so that one butene is the single best
+    C[1, 2] = 0.3
+    C = C + C.T
+    E = np.zeros((4, 4, 2))
+    E[..., 1] = np.where(C > 0.5, C, 0.0)  # double bonds
+    E[..., 0] = np.where(C <= 0.5, C, 0.0)  # single bonds
+    F = np.ones((4, 1))
+    return C, F, E
+
+
+def _connected_c4h8(out):
+    g = nx.Graph()
+    g.add_nodes_from((i, {"label": "C"}) for i in range(4))
+    g.add_edges_from((int(a), int(b), {"label": int(c) + 1}) for (a, b), c in zip(out.edges, out.edge_classes))
+    return nx.is_connected(g) and formula_matches(g, "C4H8")
+
+
+def test_connectivity_cuts_give_the_flow_programs_optimum():
+    C, F, E = _butene_scores()
+    kw = dict(valences=[4], bond_orders=[1, 2], label_counts=[4], total_bond_order=4)
+    flow = decode_valence(C, F, E, **kw)
+    cut = decode_valence(C, F, E, cuts=True, **kw)
+    assert _connected_c4h8(flow) and _connected_c4h8(cut)
+    key = lambda o: sorted(zip(map(tuple, o.edges.tolist()), o.edge_classes.tolist()))  # noqa: E731
+    assert key(cut) == key(flow) and cut.note == ""
+
+
+def test_pieces_are_joined_keeping_the_formula(monkeypatch):
+    # with no cut rounds allowed, the two ethylenes are joined by a single bond paid for by one
+    # double bond less: a butene, still C4H8 (checked by gwpred.formula against the formula)
+    import gwpred.decode as decode_module
+
+    monkeypatch.setattr(decode_module, "CUT_ROUNDS", 0)
+    C, F, E = _butene_scores()
+    out = decode_valence(C, F, E, [4], [1, 2], label_counts=[4], total_bond_order=4, cuts=True)
+    assert _connected_c4h8(out)
+    assert "joined by single bonds" in out.note
