@@ -18,21 +18,27 @@ Submodules:
 - :mod:`gwpred.datasets.splits`: reproducible train/test splits
   (:func:`split_indices`);
 - :mod:`gwpred.datasets.qm9`: the full QM9 loader, its checks and cache
-  (:func:`load_qm9`, :class:`Qm9Data`).
+  (:func:`load_qm9`, :class:`Qm9Data`);
+- :mod:`gwpred.datasets.druglike`: drug-like molecules of 10-50 heavy atoms with
+  charged groups, from the NCI sample shipped inside RDKit's wheel
+  (:func:`load_druglike`).
 """
 
 from __future__ import annotations
 
 from .demo import graphs_from_arrays, load_demo
+from .druglike import DruglikeSet, load_druglike
 from .qm9 import Qm9Data, load_qm9
 from .spectra import broadened_spectra, lorentzian_spectra, lorentzian_spectrum, wavenumber_grid
 from .splits import split_indices
 
 __all__ = [
+    "DruglikeSet",
     "Qm9Data",
     "broadened_spectra",
     "graphs_from_arrays",
     "load_demo",
+    "load_druglike",
     "load_qm9",
     "lorentzian_spectra",
     "lorentzian_spectrum",
