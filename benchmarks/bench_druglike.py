@@ -112,6 +112,7 @@ def main() -> None:
     rows.append(("1-NN", nn, time.perf_counter() - t0, None))
     runs = [("gwpred, no rules", False, None), ("gwpred default", "auto", None), ("gwpred + formula", "auto", formulas)]
     decode_stats = {}
+    large_quality: dict[str, str] = {}
     for name, valence, fs in runs:
         model = BarycenterGraphPredictor(kernel="tanimoto", valence=valence).fit(X[train], Gtr)
         del record[:]
@@ -123,10 +124,14 @@ def main() -> None:
         decode_stats[name] = list(record)
         if valence and large:  # decoding times on molecules of 35-45 heavy atoms
             del record[:]
+            large_fs = None if fs is None else [graph_formula(G[i]) for i in large]
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", RuntimeWarning)
-                model.predict(X[large], formulas=None if fs is None else [graph_formula(G[i]) for i in large])
+                got = model.predict(X[large], formulas=large_fs)
             decode_stats[name + ", 35-45 atoms"] = list(record)
+            valid = np.mean([check_molecule(g).valid for g in got])
+            match = "" if large_fs is None else f", formula match {np.mean([formula_matches(g, f) for g, f in zip(got, large_fs)]):.1%}"
+            large_quality[name] = f"valid {valid:.1%}{match}"
 
     print(f"\n| model | mean GED | lower / upper | GED gap <= 1 in {args.ged_limit:g} s | exact | valid | "
           "formula match | ms/molecule |")
@@ -150,9 +155,10 @@ def main() -> None:
         sizes = np.array([r[0] for r in rec])
         times = np.array([r[1] for r in rec])
         notes = [r[2] for r in rec if r[2]]
+        quality = large_quality.get(name.replace(", 35-45 atoms", ""), "") if "35-45" in name else ""
         print(f"{name}: {len(rec)} decodings of {np.median(sizes):.0f} atoms (median): "
               f"{np.median(times) * 1000:.0f} ms median, max {times.max():.2f} s "
-              f"(budget {steps.DECODE_BUDGET:g} s); {len(notes)} with a note")
+              f"(budget {steps.DECODE_BUDGET:g} s); {len(notes)} with a note" + (f"; {quality}" if quality else ""))
         for note in notes[:5]:
             print("   ", note)
 

@@ -404,7 +404,10 @@ def _connected_c4h8(out):
     return nx.is_connected(g) and formula_matches(g, "C4H8")
 
 
-def test_connectivity_cuts_give_the_flow_programs_optimum():
+def test_connectivity_cuts_give_the_flow_programs_optimum(monkeypatch):
+    import gwpred.decode as decode_module
+
+    monkeypatch.setattr(decode_module, "CUT_ROUNDS", 5)  # cut until connected, no joining repair
     C, F, E = _butene_scores()
     kw = dict(valences=[4], bond_orders=[1, 2], label_counts=[4], total_bond_order=4)
     flow = decode_valence(C, F, E, **kw)
