@@ -403,7 +403,8 @@ def read_graphs(path: StrPath) -> list[nx.Graph]:
     Notes
     -----
     Molecule files give heavy-atom graphs: node attribute ``"label"`` the
-    element symbol, ``"charge"`` the formal charge, edge attribute
+    atom label (element symbol, with the formal charge when charged:
+    ``"N+"``, ``"O-"``), ``"charge"`` the formal charge, edge attribute
     ``"label"`` the kekulé bond order 1, 2 or 3, hydrogens implicit; the
     molecule's name becomes the graph attribute ``"name"`` (see
     :mod:`gwpred.chem` for what else is kept and what is dropped).
@@ -494,8 +495,8 @@ def write_graphs(path: StrPath, graphs: Iterable[nx.Graph]) -> None:
     Notes
     -----
     Molecule files hold heavy-atom graphs only (node ``"label"`` element
-    symbol, optional node ``"charge"``, edge ``"label"`` bond order 1, 2 or
-    3). ``.smi`` keeps the molecule and its ``"name"`` but not the atom order,
+    symbol, optionally charged as ``"N+"``, optional node ``"charge"``, edge
+    ``"label"`` bond order 1, 2 or 3). ``.smi`` keeps the molecule and its ``"name"`` but not the atom order,
     the kekulé structure or other attributes; ``.sdf`` keeps atom order and
     bond orders, and stores the other graph attributes as SD data fields
     (read back as text).
