@@ -641,8 +641,9 @@ def decode_query(
 DECODE_BUDGET = 2.0
 
 #: Above this many nodes, the integer program first considers only the node pairs whose
-#: barycenter score reaches PAIR_SUPPORT (``min_support`` of decode_valence) and keeps the
-#: graph connected by cuts (``cuts``), which keeps 40-atom decodings within the budget
+#: barycenter score reaches PAIR_SUPPORT (``min_support`` of decode_valence) and leaves
+#: connectivity to a repair that joins pieces, or to cuts (``cuts``), which keeps 40-atom
+#: decodings within the budget
 #: (``benchmarks/bench_druglike.py``); smaller graphs (QM9's) are decoded as before.
 PRUNE_ABOVE = 20
 PAIR_SUPPORT = 0.02
