@@ -457,7 +457,9 @@ def _join(g: DecodedGraph, cy: NDArray[np.float64], n_pairs_of: Any, rules: _Rul
     Each step adds the cheapest single bond between two pieces and, where the hydrogens (or
     the bond total) must stay as they are, lowers the cheapest other bond by one order (a
     double becomes single; a single bond on a cycle goes), so that atoms, charges, valences
-    and hydrogens are unchanged.  None when no such step is left.
+    and hydrogens are unchanged; where no atom has a free valence, two bonds of one order in
+    different pieces trade ends instead (a-b, u-v -> a-u, b-v), which changes no atom's
+    bonds.  None when no such step is left.
     """
     n = len(g.node_classes)
     cls = np.asarray(g.node_classes, dtype=np.int64)
@@ -520,6 +522,28 @@ def _join(g: DecodedGraph, cy: NDArray[np.float64], n_pairs_of: Any, rules: _Rul
                     break
             if done:
                 break
+        if not done:  # swap: two bonds of one order in different pieces trade ends (loads unchanged)
+            swaps = []
+            items = list(pair.items())
+            for i, ((a, b), c) in enumerate(items):
+                for (u, v), d in items[i + 1 :]:
+                    if d != c or piece[a] == piece[u]:
+                        continue
+                    for x, y, z, w in ((a, u, b, v), (a, v, b, u)):
+                        e1, e2 = (min(x, y), max(x, y)), (min(z, w), max(z, w))
+                        if e1 in pair or e2 in pair:
+                            continue
+                        gain = (cy[n_pairs_of(*e1), c] + cy[n_pairs_of(*e2), c]
+                                - cy[n_pairs_of(a, b), c] - cy[n_pairs_of(u, v), c])
+                        swaps.append((gain, (a, b), (u, v), e1, e2, c))
+            for _, old1, old2, e1, e2, c in sorted(swaps)[:200]:
+                trial = dict(pair)
+                del trial[old1], trial[old2]
+                trial[e1] = trial[e2] = c
+                after, labels = pieces(trial)
+                if after < count:
+                    pair, count, piece, done = trial, after, labels, True
+                    break
         if not done:
             return None
     edges = np.array(sorted(pair), dtype=np.int64).reshape(-1, 2)
@@ -936,8 +960,8 @@ def decode_valence(
         return replace(res.graph, note=(
             f"the valence integer program, with connectivity left to {CUT_ROUNDS} round(s) of cuts "
             f"(time budget {float(time_limit):g} s), gave a graph in pieces; they were joined by single "
-            "bonds (each paid for by one bond order less elsewhere), which keeps every constraint but is "
-            "not proven the best."
+            "bonds (each paid for by one bond order less elsewhere, or by two bonds trading ends), which "
+            "keeps every constraint but is not proven the best."
         ))
     if res.x is None and res.status == 1:  # scipy's milp: time or iteration limit, no solution found
         if reference is None:

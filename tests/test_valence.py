@@ -427,3 +427,25 @@ def test_pieces_are_joined_keeping_the_formula(monkeypatch):
     out = decode_valence(C, F, E, [4], [1, 2], label_counts=[4], total_bond_order=4, cuts=True)
     assert _connected_c4h8(out)
     assert "joined by single bonds" in out.note
+
+
+def test_saturated_pieces_trade_bond_ends(monkeypatch):
+    # cyclopropane + F2 (C3H6F2, every fluorine full): no bond can be added between the pieces,
+    # so a ring bond and the F-F bond trade ends: 1,3-difluoropropane, the same formula
+    # (common practice: C3H6 + F2 = C3H6F2), checked by gwpred.formula
+    import gwpred.decode as decode_module
+
+    monkeypatch.setattr(decode_module, "CUT_ROUNDS", 0)
+    C = np.zeros((5, 5))
+    C[0, 1] = C[1, 2] = C[0, 2] = 0.9  # the ring
+    C[3, 4] = 0.9  # F-F
+    C[0, 3] = C[1, 4] = 0.2
+    C = C + C.T
+    E = C[:, :, None]
+    F = np.array([[1, 0], [1, 0], [1, 0], [0, 1], [0, 1.0]])  # C, C, C, F, F
+    out = decode_valence(C, F, E, [4, 1], [1], label_counts=[3, 2], total_bond_order=4, cuts=True)
+    g = nx.Graph()
+    g.add_nodes_from((i, {"label": "CF"[c]}) for i, c in enumerate(out.node_classes))
+    g.add_edges_from((int(a), int(b), {"label": 1}) for a, b in out.edges)
+    assert nx.is_connected(g) and formula_matches(g, "C3H6F2")
+    assert "joined by single bonds" in out.note
