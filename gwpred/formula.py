@@ -202,7 +202,7 @@ ANY_VALENCE_CAP = 8
 
 # Allowed valences of neutral atoms of the common organic elements, so that the core runs
 # without RDKit.  A copy of RDKit's valence lists (rdkit.Chem.GetPeriodicTable().GetValenceList),
-# checked against RDKit in tests/test_formula.py; every other label is asked of RDKit.
+# checked against RDKit in tests/test_druglike.py; every other label is asked of RDKit.
 _VALENCE: dict[str, tuple[int, ...]] = {
     "H": (1,),
     "B": (3,),
