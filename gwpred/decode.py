@@ -451,7 +451,31 @@ def _feasible(g: DecodedGraph, rules: _Rules) -> bool:
     return True
 
 
-def _join(g: DecodedGraph, cy: NDArray[np.float64], n_pairs_of: Any, rules: _Rules) -> DecodedGraph | None:
+def _pair_index(a: Any, b: Any, n: int) -> Any:
+    """Position of the pair ``a < b`` in ``np.triu_indices(n, 1)`` order (ints or arrays)."""
+    return a * n - a * (a + 1) // 2 + (b - a - 1)
+
+
+def _edge_map(g: DecodedGraph) -> dict[tuple[int, int], int]:
+    """A decoding's edges as ``{(a, b): edge label}``."""
+    return {(int(a), int(b)): int(c) for (a, b), c in zip(np.asarray(g.edges).reshape(-1, 2), g.edge_classes)}
+
+
+def _loads(edges: dict[tuple[int, int], int], order: NDArray[np.int64], n: int) -> NDArray[np.int64]:
+    """Bond orders at each node of ``{(a, b): edge label}``."""
+    out = np.zeros(n, dtype=np.int64)
+    for (a, b), c in edges.items():
+        out[a] += order[c]
+        out[b] += order[c]
+    return out
+
+
+def _from_map(cls: NDArray[np.int64], pair: dict[tuple[int, int], int], note: str = "") -> DecodedGraph:
+    edges = np.array(sorted(pair), dtype=np.int64).reshape(-1, 2)
+    return DecodedGraph(cls, edges, np.array([pair[(int(a), int(b))] for a, b in edges], dtype=np.int64), note)
+
+
+def _join(g: DecodedGraph, cy: NDArray[np.float64], rules: _Rules) -> DecodedGraph | None:
     """Join the pieces of a decoding that meets every constraint but connectivity, keeping them.
 
     Each step adds the cheapest single bond between two pieces and, where the hydrogens (or
@@ -463,7 +487,7 @@ def _join(g: DecodedGraph, cy: NDArray[np.float64], n_pairs_of: Any, rules: _Rul
     """
     n = len(g.node_classes)
     cls = np.asarray(g.node_classes, dtype=np.int64)
-    pair = {(int(a), int(b)): int(c) for (a, b), c in zip(np.asarray(g.edges).reshape(-1, 2), g.edge_classes)}
+    pair = _edge_map(g)
     of_order = {int(o): c for c, o in enumerate(rules.order.tolist())}
     if 1 not in of_order:
         return None
@@ -477,11 +501,10 @@ def _join(g: DecodedGraph, cy: NDArray[np.float64], n_pairs_of: Any, rules: _Rul
         return connected_components(graph, directed=False)
 
     def loads(edges: dict) -> NDArray[np.int64]:
-        out = np.zeros(n, dtype=np.int64)
-        for (a, b), c in edges.items():
-            out[a] += rules.order[c]
-            out[b] += rules.order[c]
-        return out
+        return _loads(edges, rules.order, n)
+
+    def n_pairs_of(a: int, b: int) -> int:
+        return _pair_index(a, b, n)
 
     def hydrogens(edges: dict) -> int:
         load = loads(edges)
@@ -546,13 +569,10 @@ def _join(g: DecodedGraph, cy: NDArray[np.float64], n_pairs_of: Any, rules: _Rul
                     break
         if not done:
             return None
-    edges = np.array(sorted(pair), dtype=np.int64).reshape(-1, 2)
-    return DecodedGraph(cls, edges, np.array([pair[(int(a), int(b))] for a, b in edges], dtype=np.int64))
+    return _from_map(cls, pair)
 
 
-def _repair(
-    start: DecodedGraph, cy: NDArray[np.float64], iu: NDArray[np.int64], ju: NDArray[np.int64], rules: _Rules
-) -> DecodedGraph:
+def _repair(start: DecodedGraph, cy: NDArray[np.float64], rules: _Rules) -> DecodedGraph:
     """A quick valence repair: lower or drop the least supported bonds at over-full atoms, then
     join pieces by single bonds between atoms with free valence (cheapest first).
 
@@ -561,23 +581,18 @@ def _repair(
     """
     n = len(start.node_classes)
     cls = np.asarray(start.node_classes, dtype=np.int64)
-    pair = {(int(a), int(b)): int(c) for (a, b), c in zip(np.asarray(start.edges).reshape(-1, 2), start.edge_classes)}
-    index = {(int(a), int(b)): p for p, (a, b) in enumerate(zip(iu, ju))}
+    pair = _edge_map(start)
     by_order = np.argsort(rules.order, kind="stable")  # edge labels from the smallest bond order
 
     def load() -> NDArray[np.int64]:
-        out = np.zeros(n, dtype=np.int64)
-        for (a, b), c in pair.items():
-            out[a] += rules.order[c]
-            out[b] += rules.order[c]
-        return out
+        return _loads(pair, rules.order, n)
 
     cap = rules.val[cls]
     over = np.flatnonzero(load() > cap)
     while over.size:
         i = int(over[0])
         mine = [(a, b) for (a, b) in pair if i in (a, b)]
-        worst = max(mine, key=lambda ab: cy[index[ab], pair[ab]])  # the least supported bond
+        worst = max(mine, key=lambda ab: cy[_pair_index(*ab, n), pair[ab]])  # the least supported bond
         lower = [c for c in by_order if rules.order[c] < rules.order[pair[worst]]]
         if lower:
             pair[worst] = int(lower[-1])  # one step down: double -> single
@@ -595,15 +610,14 @@ def _repair(
                 break
             free = cap - load() >= rules.order[single]
             options = [
-                (cy[index[(min(a, b), max(a, b))], single], min(a, b), max(a, b))
+                (cy[_pair_index(min(a, b), max(a, b), n), single], min(a, b), max(a, b))
                 for a in np.flatnonzero(seen & free) for b in np.flatnonzero(~seen & free)
             ]
             if not options:
                 break  # no free valence left to join the pieces: the note says so
             _, a, b = min(options)
             pair[(int(a), int(b))] = single
-    edges = np.array(sorted(pair), dtype=np.int64).reshape(-1, 2)
-    return DecodedGraph(cls, edges, np.array([pair[(int(a), int(b))] for a, b in edges], dtype=np.int64))
+    return _from_map(cls, pair)
 
 
 def decode_valence(
@@ -755,8 +769,7 @@ def decode_valence(
         cx = cx + reference_weight * (np.arange(K)[None, :] != ref_nodes[:, None])
         if len(reference.edges):
             e = np.sort(np.asarray(reference.edges, dtype=np.int64), axis=1)
-            pos = e[:, 0] * n - e[:, 0] * (e[:, 0] + 1) // 2 + (e[:, 1] - e[:, 0] - 1)
-            ref_edge[pos] = reference.edge_classes
+            ref_edge[_pair_index(e[:, 0], e[:, 1], n)] = reference.edge_classes
         has = ref_edge >= 0
         # an edge of label b: +1 edit unless the reference has exactly it;
         # no edge: +1 edit where the reference has one (moved into cy as -1)
@@ -923,7 +936,7 @@ def decode_valence(
             rounds += 1
             if rounds > CUT_ROUNDS:  # join the pieces by a repair, or else cut on
                 got = _solution(res.x, n, K, P, L, iu, ju)
-                joined = _join(got, cy_all, lambda a, b: a * n - a * (a + 1) // 2 + (b - a - 1), rules)
+                joined = _join(got, cy_all, rules)
                 if joined is not None:
                     return SimpleNamespace(x=None, status=1, message="pieces joined", graph=joined)
             if time.perf_counter() - start >= float(limit):
@@ -972,7 +985,7 @@ def decode_valence(
                 np.stack([iu[keep], ju[keep]], axis=1).astype(np.int64).reshape(-1, 2),
                 best[keep].astype(np.int64),
             )
-        fixed = _repair(reference, cy, iu, ju, rules)
+        fixed = _repair(reference, cy, rules)
         lost = _given_up(fixed, rules)
         return replace(fixed, note=(
             f"the valence integer program found no graph of {n} nodes within its time budget "

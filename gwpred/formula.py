@@ -45,7 +45,9 @@ __all__ = [
     "valence_table",
     "ANY_VALENCE_CAP",
     "atom_label",
+    "element_of",
     "implicit_hydrogens",
+    "is_atom_label",
     "node_atom",
     "split_atom_label",
     "valence_set",
@@ -246,6 +248,31 @@ def split_atom_label(label: Any) -> tuple[str, int]:
         )
     sign = {"+": 1, "-": -1, None: 0}[m.group(2)]
     return m.group(1), sign * int(m.group(3) or 1)
+
+
+def element_of(label: Any) -> Any:
+    """The element of an atom label (``"N+"`` -> ``"N"``); a label that is not one comes back as it is.
+
+    >>> element_of("N+"), element_of("Cl"), element_of("X")
+    ('N', 'Cl', 'X')
+    """
+    try:
+        return split_atom_label(label)[0]
+    except ValueError:
+        return label
+
+
+def is_atom_label(label: Any) -> bool:
+    """Whether a label is an element symbol with an optional charge (:func:`split_atom_label`).
+
+    >>> is_atom_label("O-"), is_atom_label("c")
+    (True, False)
+    """
+    try:
+        split_atom_label(label)
+    except ValueError:
+        return False
+    return True
 
 
 def atom_label(symbol: str, charge: int = 0) -> str:

@@ -38,7 +38,7 @@ from matplotlib.patches import Patch, Rectangle
 from numpy.typing import ArrayLike, NDArray
 
 from ._utils import atomic_open, has_extra, require_extra
-from .formula import ELEMENTS, atomic_number, split_atom_label
+from .formula import atomic_number, element_of, is_atom_label
 from .ged import edit_distance
 
 __all__ = [
@@ -156,11 +156,7 @@ def _edge_value(data: Mapping, edge_label: Hashable | None) -> Any:
 
 def _is_element(label: Any) -> bool:
     """An element symbol, optionally charged (``"N+"``: an atom label of gwpred.chem)."""
-    try:
-        split_atom_label(label)
-    except ValueError:
-        return False
-    return True
+    return is_atom_label(label)
 
 
 # --------------------------------------------------------------------------- colours, styles
@@ -185,7 +181,7 @@ def _atom_palette() -> dict[int, str]:
 
 def _element_colour(symbol: str, palette: Mapping[int, str]) -> str:
     """The palette colour of an atom label's element (``"N+"``: nitrogen's)."""
-    return palette.get(atomic_number(split_atom_label(symbol)[0]), palette.get(-1, "#000000"))
+    return palette.get(atomic_number(element_of(symbol)), palette.get(-1, "#000000"))
 
 
 def _text_colour(face: str) -> str:

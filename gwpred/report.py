@@ -33,7 +33,7 @@ from numpy.typing import NDArray
 
 from ._utils import CAUTION, atomic_write_text, has_extra, progress_bar, renamed_keyword, require_extra
 from .chem import check_molecule, graph_to_mol
-from .formula import graph_formula, node_atom, split_atom_label
+from .formula import graph_formula, is_atom_label, node_atom
 from .io import RankedCandidate, read_ranked, write_ranked
 from .metrics import TOP_K, edit_distance, exact_match, expected_calibration_error, hit_rank, summarize
 from .plot import (
@@ -86,9 +86,7 @@ def is_molecular(graphs: Sequence[nx.Graph], node_label: Hashable = "label") -> 
     seen = False
     for g in graphs:
         for _, lab in g.nodes(data=node_label):
-            try:  # an element symbol, optionally charged ("N+")
-                split_atom_label(lab)
-            except ValueError:
+            if not is_atom_label(lab):  # an element symbol, optionally charged ("N+")
                 return False
             seen = True
     return seen

@@ -31,7 +31,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from .._utils import atomic_open, has_extra, install_hint, progress_bar, require_extra
 from ..chem import graph_from_smiles, morgan_fingerprints
-from ..formula import atomic_number, default_valence, hill_formula, split_atom_label
+from ..formula import atomic_number, default_valence, element_of, hill_formula
 from ._checks import check_bool, check_half_width, check_offsets, count, int_vector
 from .demo import check_graph_arrays, gc_paused, graphs_from_arrays
 from .spectra import LINE_SHAPES, broaden, resolve_grid
@@ -259,13 +259,6 @@ def _qm9_fields(stoichiometry: str, freq_text: str) -> tuple[tuple[int, ...], li
         return "unreadable Harmonic_Freq_cmi"
 
 
-def _element_of(label: Any) -> Any:
-    try:
-        return split_atom_label(label)[0]
-    except ValueError:
-        return label  # refused later as an element out of QM9's range
-
-
 def _graph_parts(g: nx.Graph) -> tuple[list[str], list[int], list[tuple[int, int, int]]] | str:
     """Node labels and charges in node order 0..n-1, and edges (a < b, order); or a reason."""
     n = g.number_of_nodes()
@@ -274,7 +267,7 @@ def _graph_parts(g: nx.Graph) -> tuple[list[str], list[int], list[tuple[int, int
     node = g.nodes
     # QM9's graphs keep plain element labels and the charge apart (its tables were made so):
     # the element of a charged atom label ("N+" -> "N"), the charge from the attribute
-    labels = [_element_of(node[v]["label"]) for v in range(n)]
+    labels = [element_of(node[v]["label"]) for v in range(n)]  # others: refused later, out of range
     charges = [node[v].get("charge", 0) for v in range(n)]
     edges = sorted((min(a, b), max(a, b), o) for a, b, o in g.edges(data="label"))
     return labels, charges, edges

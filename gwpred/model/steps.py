@@ -41,7 +41,16 @@ from ..decode import (
     weighted_median,
 )
 from ..fgw import fgw_barycenter_batch, pad_graphs, transport_average
-from ..formula import Formula, bond_total, label_counts, parse_formula, split_atom_label, valence_sets, valence_table
+from ..formula import (
+    Formula,
+    bond_total,
+    element_of,
+    label_counts,
+    parse_formula,
+    split_atom_label,
+    valence_sets,
+    valence_table,
+)
 from ..parallel import file_backed
 
 __all__ = [
@@ -70,7 +79,6 @@ __all__ = [
     "valence_arrays",
     "DECODE_BUDGET",
     "label_atoms",
-    "label_elements",
 ]
 
 
@@ -318,7 +326,7 @@ def parse_formulas(
             f"X has {n_rows} rows but {len(formulas)} formulas were given; pass one formula "
             "(or None) per row."
         )
-    known_set = label_elements(known)
+    known_set = {element_of(lab) for lab in known}  # "N+" is nitrogen
     out: list[Formula | None] = []
     for r, f in enumerate(formulas):
         if f is None or (isinstance(f, str) and not f.strip()):
@@ -393,17 +401,6 @@ def label_atoms(
         elements.append(symbol)
         charges.append(q)
     return valence_sets(labels.node_labels_, table), charges, elements
-
-
-def label_elements(labels: Sequence[Any]) -> set[Any]:
-    """Elements of node labels (``"N+"`` -> ``"N"``); labels that are not atoms stay as they are."""
-    out = set()
-    for lab in labels:
-        try:
-            out.add(split_atom_label(lab)[0])
-        except ValueError:
-            out.add(lab)
-    return out
 
 
 def molecular_labels(labels: LabelSpace) -> bool:
