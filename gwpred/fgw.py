@@ -364,7 +364,10 @@ def _cg_batch(
         cost[sel] = new_cost
         delta = np.abs(step)
         scale = np.abs(new_cost)
-        done[sel] = (delta < tol_abs) | ((scale > 0) & (delta < tol_rel * scale))
+        # a zero step leaves the plan as it is, so every later iteration would repeat this one
+        # (a plan of objective 0, such as a barycenter started from this very graph, never
+        # met the relative test and ran to max_iter); stopping returns the same plan
+        done[sel] = (delta == 0.0) | (delta < tol_abs) | ((scale > 0) & (delta < tol_rel * scale))
         keep = (~done[active]) & (n_iter[active] < max_iter)
         if keep.all():
             CGC[sel] = (C1[sel] if stacked else C1) @ G[sel] @ twoC2[sel]

@@ -208,6 +208,20 @@ def test_fgw_distance_identical_graph_is_zero():
     assert res.converged
 
 
+def test_zero_objective_stops_without_absolute_tolerance():
+    """Known answer as above (FGW of a graph with itself is 0 at the identity plan): with no
+    absolute tolerance, the relative test cannot pass at objective 0, yet a zero step leaves the
+    plan unchanged, so the solver stops at once with the same plan instead of repeating itself
+    to max_iter (the barycenter's own start graph is such a problem in every prediction)."""
+    rng = np.random.default_rng(5)
+    C = _structure(rng, 8, "binary")  # 0/1 entries and masses 1/8: the objective is exactly 0
+    F = _features(rng, 8, "onehot")
+    res = fgw_distance(feature_costs(F, F), C, C, alpha=0.7, init_plan=np.eye(8) / 8, tol_abs=0.0, max_iter=50)
+    assert res.value == 0.0
+    np.testing.assert_array_equal(res.plan, np.eye(8) / 8)
+    assert res.converged and res.n_iter == 1
+
+
 def test_cg_batch_padded_graphs_match_pot_one_by_one():
     """Reference: POT fused_gromov_wasserstein2 on each unpadded pair.
 
