@@ -1,6 +1,6 @@
 """gwpred: predict labeled graphs from vectors with fused Gromov-Wasserstein barycenters.
 
-The public face: :class:`BarycenterGraphPredictor`, :class:`SoftGraph`,
+The public face: :class:`BarycenterGraphPredictor`, :class:`TemplateGraphPredictor`, :class:`SoftGraph`,
 :func:`save_model` / :func:`load_model` (all from :mod:`gwpred.model`), the
 :class:`~gwpred.codec.TrainingSet` a fitted model holds, and ``__version__``.
 They are loaded on first use (PEP 562), so that ``import gwpred`` and the
@@ -19,12 +19,13 @@ from ._version import __version__
 _EXPORTS = {
     "BarycenterGraphPredictor": "gwpred.model",
     "SoftGraph": "gwpred.model",
+    "TemplateGraphPredictor": "gwpred.model",
     "save_model": "gwpred.model",
     "load_model": "gwpred.model",
     "TrainingSet": "gwpred.codec",
 }
 
-__all__ = ["BarycenterGraphPredictor", "SoftGraph", "TrainingSet", "load_model", "save_model", "__version__"]
+__all__ = ["BarycenterGraphPredictor", "SoftGraph", "TemplateGraphPredictor", "TrainingSet", "load_model", "save_model", "__version__"]
 
 
 def __getattr__(name: str) -> Any:
