@@ -21,6 +21,8 @@ from ..embedding import InputEmbedding
 from ..io import load_archive, save_archive
 from .estimator import BarycenterGraphPredictor
 from .hypotheses import HypothesisCalibration
+from .template_files import TEMPLATE_KIND, template_archive, template_model
+from .templates import TemplateGraphPredictor
 
 __all__ = ["load_model", "save_model"]
 
@@ -36,8 +38,11 @@ def _plain(value: Any) -> Any:
     return value.item() if isinstance(value, np.generic) else value
 
 
-def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
+def save_model(model: BarycenterGraphPredictor | TemplateGraphPredictor, path: StrPath) -> None:
     """Save a fitted :class:`~gwpred.BarycenterGraphPredictor` as a model archive.
+
+    A fitted :class:`~gwpred.TemplateGraphPredictor` is saved too, as its
+    network and templates (:mod:`gwpred.model.template_files`; no training data).
 
     The archive holds the constructor parameters, label categories, training
     ids and the hypothesis calibration when there is one (JSON manifest), the training graphs as flat integer arrays, and the training
@@ -59,6 +64,9 @@ def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
     ValueError
         If the model is not fitted.
     """
+    if isinstance(model, TemplateGraphPredictor):
+        save_archive(path, *template_archive(model))
+        return
     if not isinstance(model, BarycenterGraphPredictor) or not hasattr(model, "training_"):
         raise ValueError("save_model needs a fitted BarycenterGraphPredictor; call fit first.")
     training = model.training_
@@ -110,8 +118,11 @@ def save_model(model: BarycenterGraphPredictor, path: StrPath) -> None:
     save_archive(path, arrays, manifest)
 
 
-def load_model(path: StrPath) -> BarycenterGraphPredictor:
+def load_model(path: StrPath) -> BarycenterGraphPredictor | TemplateGraphPredictor:
     """Load a model saved by :func:`save_model` (by this or any earlier gwpred 0.1 layout).
+
+    The file says which estimator it holds (its manifest's ``kind``); a
+    :class:`~gwpred.TemplateGraphPredictor` comes back as one.
 
     Parameters
     ----------
@@ -119,7 +130,7 @@ def load_model(path: StrPath) -> BarycenterGraphPredictor:
 
     Returns
     -------
-    BarycenterGraphPredictor
+    BarycenterGraphPredictor or TemplateGraphPredictor
         A fitted model that predicts exactly as the saved one.
 
     Raises
@@ -131,6 +142,8 @@ def load_model(path: StrPath) -> BarycenterGraphPredictor:
     """
     arrays, manifest = load_archive(path)
     where = f"model file {os.fspath(path)!r}"
+    if manifest.get("kind") == TEMPLATE_KIND:
+        return template_model(arrays, manifest, where)
     need = ("node_classes", "edges", "edge_classes", "n_nodes", "n_edges", "inputs")
     missing = [k for k in need if k not in arrays]
     if manifest.get("kind") != _MODEL_KIND or missing:
