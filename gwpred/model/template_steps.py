@@ -146,7 +146,7 @@ class TemplateNetwork:
     mean, scale : ndarray of shape (n_features,)
         Input standardisation.
     weights, biases : list of ndarray
-        Layers (``W`` of shape (in, out)); ReLU between them, none after the last.
+        Layers (``W`` of shape (in, out), float32 as trained); ReLU between them, none after the last.
     n_templates : int
         The last layer's first ``n_templates`` outputs are template logits, the rest size logits.
     size_values : ndarray of shape (n_sizes,)
@@ -155,18 +155,19 @@ class TemplateNetwork:
 
     mean: NDArray[np.float64]
     scale: NDArray[np.float64]
-    weights: list[NDArray[np.float64]]
-    biases: list[NDArray[np.float64]]
+    weights: list[NDArray[np.float32]]
+    biases: list[NDArray[np.float32]]
     n_templates: int
     size_values: NDArray[np.int64]
 
     def forward(self, X: NDArray) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
         """Template logits ``(n, M)`` and size logits ``(n, n_sizes)`` of the rows of ``X`` (numpy)."""
-        h = (np.asarray(X, dtype=np.float64) - self.mean) / self.scale
+        h = ((np.asarray(X, dtype=np.float64) - self.mean) / self.scale).astype(np.float32)
         for layer, (W, b) in enumerate(zip(self.weights, self.biases)):
-            h = h @ W + b
+            h = h @ W + b  # float32 as in training
             if layer < len(self.weights) - 1:
                 h = np.maximum(h, 0.0)
+        h = h.astype(np.float64)
         return h[:, : self.n_templates], h[:, self.n_templates :]
 
     def to_arrays(self) -> tuple[dict[str, NDArray], dict]:
@@ -191,12 +192,14 @@ class TemplateNetwork:
             mean = np.asarray(arrays["net_mean"], dtype=np.float64)
             scale = np.asarray(arrays["net_scale"], dtype=np.float64)
             sizes = np.asarray(arrays["net_size_values"], dtype=np.int64)
-            Ws = [np.asarray(arrays[f"net_W{k}"], dtype=np.float64) for k in range(n_layers)]
-            bs = [np.asarray(arrays[f"net_b{k}"], dtype=np.float64) for k in range(n_layers)]
+            Ws = [np.asarray(arrays[f"net_W{k}"]) for k in range(n_layers)]
+            bs = [np.asarray(arrays[f"net_b{k}"]) for k in range(n_layers)]
         except (KeyError, TypeError, ValueError) as err:
             raise ValueError(f"the template network needs its arrays and layer count ({err!r})") from None
         width = len(mean)
         for W, b in zip(Ws, bs):
+            if not (np.issubdtype(W.dtype, np.floating) and np.issubdtype(b.dtype, np.floating)):
+                raise ValueError("the template network's layers must hold floating-point numbers")
             if W.ndim != 2 or W.shape[0] != width or b.shape != (W.shape[1],) or not np.all(np.isfinite(W)):
                 raise ValueError("the template network's layer shapes do not chain")
             width = W.shape[1]
@@ -442,7 +445,7 @@ class _Model:
             parts += [nn.Linear(width, h), nn.ReLU()]
             width = h
         parts.append(nn.Linear(width, n_out))
-        self.net = nn.Sequential(*parts).double()
+        self.net = nn.Sequential(*parts)  # float32: half the model file; the FGW side stays float64
         M, m = init.structures.shape[:2]
         self.real = torch.from_numpy((np.arange(m)[None, :] < init.sizes[:, None]).astype(np.float64))  # (M, m)
         pair = self.real[:, :, None] * self.real[:, None, :] * (1.0 - torch.eye(m, dtype=torch.float64))
@@ -526,7 +529,7 @@ def train_templates(
     mean = Xf[fit].mean(0)
     scale = Xf[fit].std(0)
     scale = np.where(scale > 1e-12, scale, 1.0)
-    Xs = torch.from_numpy((Xf - mean) / scale)
+    Xs = torch.from_numpy(((Xf - mean) / scale).astype(np.float32))
     size_values = np.unique(training.sizes)
     size_class = torch.from_numpy(np.searchsorted(size_values, training.sizes))
     L = training.labels.n_node_labels
@@ -537,7 +540,7 @@ def train_templates(
     start_time = time.perf_counter()
 
     def batch_loss(model: _Model, rows: NDArray[np.int64]) -> tuple[Any, Any, float]:
-        out = model.net(Xs[torch.from_numpy(rows)])
+        out = model.net(Xs[torch.from_numpy(rows)]).double()
         logits, size_logits = out[:, :M], out[:, M:]
         idx = np.argsort(-logits.detach().numpy(), axis=1, kind="stable")[:, :k]
         tidx = torch.from_numpy(idx)
