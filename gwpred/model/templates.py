@@ -116,10 +116,13 @@ class TemplateGraphPredictor(BaseEstimator):
         Barycenter iterations when predicting (see :class:`~gwpred.BarycenterGraphPredictor`).
     tol : float, default=1e-6
         Relative tolerance of the barycenter loops when predicting.
-    decoding : {"free", "anchored"}, default="free"
-        A key of :data:`gwpred.model.steps.DECODERS`; ``anchored`` edits the
-        start template (a soft graph) and is meant for training graphs, so
-        ``free`` is the default here.
+    decoding : {"anchored", "free"}, default="anchored"
+        A key of :data:`gwpred.model.steps.DECODERS`.  ``anchored``: the
+        barycenter starts from the most weighted template of the chosen size
+        and is decoded as edits of that template rounded at 0.5; ``free``:
+        the barycenter alone, with the ``edges`` policy.  Both decode the same
+        fitted model in ``benchmarks/bench_templates.py``; on QM9 anchored
+        decoding had the lower mean GED (README, "Learned templates").
     edges : {"budget", "threshold"}, default="budget"
         Edge policy of ``free`` decoding (the budget is voted by the mixed templates' expected edge counts).
     consensus : float, default=0.8
@@ -207,7 +210,7 @@ class TemplateGraphPredictor(BaseEstimator):
         max_outer: int = 5,
         max_inner: int = 100,
         tol: float = 1e-6,
-        decoding: str = "free",
+        decoding: str = "anchored",
         edges: str = "budget",
         consensus: float = 0.8,
         connect: str | bool = "auto",
