@@ -55,6 +55,7 @@ __all__ = [
     "draw_neighbors",
     "draw_node_scores",
     "draw_structure",
+    "draw_templates",
     "edge_styles",
     "graph_layout",
     "graph_thumbnail_svg",
@@ -1526,6 +1527,72 @@ def draw_node_scores(
     if title:
         ax.set_title(title, fontsize=9)
     return ax
+
+
+def draw_templates(model: Any, x: ArrayLike | None = None, *, top: int = 4, fig: Figure | None = None) -> Figure:
+    """The learned templates of a fitted :class:`~gwpred.TemplateGraphPredictor`, and the weights an input puts on them.
+
+    One row per template: its structure heat map (:func:`draw_structure`) and its
+    node-label scores (:func:`draw_node_scores`), its real nodes only.  With ``x``,
+    the ``top`` templates of largest weight for that input are drawn, by
+    decreasing weight, under a bar chart of the weights of all templates;
+    without it, the first ``top`` templates.
+
+    Parameters
+    ----------
+    model : TemplateGraphPredictor
+        A fitted model (``templates_``, ``labels_``, ``template_weights``).
+    x : array-like of shape (n_features,), optional
+        One input.
+    top : int, default=4
+        Templates drawn.
+    fig : matplotlib Figure, default=None
+        Drawn into (cleared first); a new one when None.
+
+    Returns
+    -------
+    matplotlib Figure
+
+    Raises
+    ------
+    ValueError
+        If ``model`` has no fitted templates or ``top`` < 1.
+    """
+    templates = getattr(model, "templates_", None)
+    if templates is None:
+        raise ValueError("draw_templates needs a fitted TemplateGraphPredictor; call fit first")
+    if isinstance(top, bool) or not isinstance(top, (int, np.integer)) or top < 1:
+        raise ValueError(f"top must be a positive integer; got {top!r}")
+    names = list(model.labels_.node_labels_)
+    weights = None if x is None else model.template_weights(np.asarray(x, dtype=np.float64).reshape(1, -1))[0]
+    order = np.arange(len(templates)) if weights is None else np.argsort(-weights, kind="stable")
+    shown = order[: min(int(top), len(templates))].tolist()
+    rows = len(shown) + (weights is not None)
+    if fig is None:
+        fig = plt.figure(figsize=(6.4, 2.8 * rows))
+    fig.clear()
+    axes = fig.subplots(rows, 2, squeeze=False)
+    first = 0
+    if weights is not None:
+        gs = axes[0, 0].get_gridspec()
+        for ax in axes[0]:
+            ax.remove()
+        bar = fig.add_subplot(gs[0, :])
+        bar.bar(np.arange(len(weights)), weights, color=PALETTE[4])
+        bar.set_xlabel("template", fontsize=8)
+        bar.set_ylabel("weight", fontsize=8)
+        bar.set_title("weights of this input on the templates", fontsize=9)
+        bar.tick_params(labelsize=6)
+        first = 1
+    for r, t in enumerate(shown):
+        k = int(templates.sizes[t])
+        best = [str(names[j]) for j in templates.features[t, :k].argmax(1)]
+        note = "" if weights is None else f", weight {weights[t]:.2f}"
+        draw_structure(templates.structures[t, :k, :k], axes[first + r, 0], labels=best,
+                       title=f"template {t}: structure{note}")
+        draw_node_scores(templates.features[t, :k], names, axes[first + r, 1], title=f"template {t}: node labels")
+    fig.tight_layout()
+    return fig
 
 
 # --------------------------------------------------------------------------- neighbours

@@ -363,3 +363,26 @@ def test_unknown_element_in_formula_is_refused(fitted):
     model, X, _ = fitted
     with pytest.raises(ValueError, match="never seen as a node label"):
         model.predict(X[:1], formulas=["C3H7N"])
+
+
+# --------------------------------------------------------------------------- drawing
+def test_draw_templates_shows_weights_and_top_templates(fitted):
+    """Reference: the model's own arrays: the drawn heat maps hold the top templates' structures,
+    by decreasing weight (matplotlib's AxesImage data)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from gwpred.plot import draw_templates
+
+    model, X, _ = fitted
+    fig = draw_templates(model, X[0], top=2)
+    w = model.template_weights(X[:1])[0]
+    first = int(np.argmax(w))
+    k = int(model.templates_.sizes[first])
+    images = [ax.images[0].get_array() for ax in fig.axes if ax.images]
+    np.testing.assert_allclose(np.asarray(images[0]), model.templates_.structures[first, :k, :k])
+    assert any(ax.patches for ax in fig.axes)  # the bar chart of the weights
+    with pytest.raises(ValueError, match="top must be a positive integer"):
+        draw_templates(model, X[0], top=0)
+    with pytest.raises(ValueError, match="fitted TemplateGraphPredictor"):
+        draw_templates(TemplateGraphPredictor())
