@@ -164,7 +164,13 @@ class TemplateGraphPredictor(BaseEstimator):
     >>> def chain(n):
     ...     g = nx.path_graph(n); nx.set_node_attributes(g, "C", "label"); return g
     >>> X = np.repeat(np.arange(3.0), 4)[:, None]; graphs = [chain(int(x) + 2) for x in X[:, 0]]
-    >>> model = TemplateGraphPredictor(n_templates=3, epochs=2, random_state=0).fit(X, graphs)  # doctest: +SKIP
+    >>> model = TemplateGraphPredictor(n_templates=3, epochs=5, random_state=0)
+    >>> model.fit(X, graphs)  # doctest: +SKIP
+    >>> [g.number_of_nodes() for g in model.predict([[0.0], [1.0], [2.0]])]  # doctest: +SKIP
+    [2, 3, 4]
+
+    (Skipped as a doctest because ``fit`` needs the optional torch; run by hand it prints
+    ``[2, 3, 4]``, and ``tests/test_templates.py`` checks such a task.)
     """
 
     _parameter_rules: dict[str, Rule] = {
