@@ -37,6 +37,7 @@ from sklearn.cluster import KMeans
 from .._utils import progress_bar, require_extra
 from ..codec import TrainingSet
 from ..fgw import fgw_barycenter_batch, fgw_to_many
+from ..ranking import training_output_features
 from .fgw_torch import barycenter_at_plans, feature_costs_torch, fgw_at_plan, structure_term
 from .steps import Neighbourhood
 
@@ -232,9 +233,15 @@ def top_weights(logits: NDArray[np.float64], k: int) -> tuple[NDArray[np.int64],
 
 # --------------------------------------------------------------------------- start
 def initial_templates(
-    X: NDArray, training: TrainingSet, n_templates: int, seed: int, *, alpha: float, sample: int = 12
+    X: NDArray, training: TrainingSet, n_templates: int, seed: int, *, alpha: float, sample: int = 12,
+    cluster_on: str = "inputs",
 ) -> tuple[TemplateSet, NDArray[np.int64]]:
-    """FGW medoids of ``n_templates`` clusters of the inputs (k-means on standardised ``X``).
+    """FGW medoids of ``n_templates`` clusters of the training pairs.
+
+    ``cluster_on="inputs"``: k-means on the standardised inputs ``X``;
+    ``"graphs"``: k-means on the graphs' unit-norm Weisfeiler-Lehman feature
+    counts (:func:`gwpred.ranking.training_output_features`), so that a
+    cluster holds graphs alike whatever their inputs.
 
     In each cluster, up to ``sample`` members (drawn with ``seed``) are compared
     with each other by FGW (:func:`gwpred.fgw.fgw_to_many`); the member with
@@ -244,14 +251,17 @@ def initial_templates(
     input's cluster (the network's warm start, see :func:`train_templates`).
     """
     rng = np.random.default_rng(seed)
-    Xf = np.asarray(X, dtype=np.float64)
-    scale = Xf.std(0)
-    Xs = (Xf - Xf.mean(0)) / np.where(scale > 1e-12, scale, 1.0)
-    k = min(n_templates, len(Xs))
+    if cluster_on == "graphs":
+        Xs = training_output_features(training, "wl")[0]
+    else:
+        Xf = np.asarray(X, dtype=np.float64)
+        scale = Xf.std(0)
+        Xs = (Xf - Xf.mean(0)) / np.where(scale > 1e-12, scale, 1.0)
+    k = min(n_templates, Xs.shape[0])
     cluster = KMeans(n_clusters=k, n_init=1, max_iter=50, random_state=seed).fit_predict(Xs)
     L = training.labels.n_node_labels
     chosen: list[int] = []
-    assignment = np.zeros(len(Xs), dtype=np.int64)
+    assignment = np.zeros(Xs.shape[0], dtype=np.int64)
     for c in range(k):
         members = np.flatnonzero(cluster == c)
         if members.size == 0:

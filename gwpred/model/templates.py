@@ -89,6 +89,11 @@ class TemplateGraphPredictor(BaseEstimator):
     ----------
     n_templates : int, default=32
         Number of templates; started as FGW medoids of k-means clusters of the inputs.
+    cluster_on : {"inputs", "graphs"}, default="inputs"
+        What the start's k-means clusters: the inputs, or the training graphs
+        (their Weisfeiler-Lehman features); a cluster's FGW medoid starts a
+        template, and the network is warm-started to give each training input
+        its cluster's template.
     n_mixed : int, default=4
         Templates mixed per prediction (the largest weights, renormalised; top-k).
     hidden : tuple of int, default=(256,)
@@ -176,6 +181,7 @@ class TemplateGraphPredictor(BaseEstimator):
     _parameter_rules: dict[str, Rule] = {
         "n_templates": _POSITIVE_INT,
         "n_mixed": _POSITIVE_INT,
+        "cluster_on": Rule(Options(("inputs", "graphs"))),
         "hidden": Rule(Types((tuple, list)), what="a tuple of positive layer widths", error=TypeError),
         "alpha": Rule(Interval(0.0, 1.0)),
         "n_nodes": Rule(Options(("head", "vote")), Interval(1, np.inf, integer=True)),
@@ -203,6 +209,7 @@ class TemplateGraphPredictor(BaseEstimator):
     def __init__(
         self,
         n_templates: int = 32,
+        cluster_on: str = "inputs",
         n_mixed: int = 4,
         hidden: tuple[int, ...] = (256,),
         alpha: float = 0.9,
@@ -230,6 +237,7 @@ class TemplateGraphPredictor(BaseEstimator):
         n_threads: int = 1,
     ) -> None:
         self.n_templates = n_templates
+        self.cluster_on = cluster_on
         self.n_mixed = n_mixed
         self.hidden = hidden
         self.alpha = alpha
@@ -299,7 +307,8 @@ class TemplateGraphPredictor(BaseEstimator):
         labels = LabelSpace(self.node_label, self.edge_label, handle_unknown=self.handle_unknown).fit(graphs)
         training = TrainingSet.encode(graphs, labels, "y")
         seed = 0 if self.random_state is None else int(check_random_state(self.random_state).randint(2**31 - 1))
-        init, assignment = initial_templates(X, training, int(self.n_templates), seed, alpha=self.alpha)
+        init, assignment = initial_templates(X, training, int(self.n_templates), seed, alpha=self.alpha,
+                                             cluster_on=self.cluster_on)
         options = TrainingOptions(
             alpha=self.alpha, n_mixed=int(self.n_mixed), hidden=tuple(int(h) for h in self.hidden),
             epochs=int(self.epochs), batch_size=int(self.batch_size), learning_rate=float(self.learning_rate),
