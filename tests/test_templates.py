@@ -386,3 +386,33 @@ def test_draw_templates_shows_weights_and_top_templates(fitted):
         draw_templates(model, X[0], top=0)
     with pytest.raises(ValueError, match="fitted TemplateGraphPredictor"):
         draw_templates(TemplateGraphPredictor())
+
+
+# --------------------------------------------------------------------------- molecules
+def test_molecules_with_formulas_have_the_formula_atoms_and_are_valid():
+    """Reference: QM9 molecules of the bundled demo data; each prediction given the true graph's
+    heavy atoms (counted from its labels) must have exactly those atoms, and RDKit must accept it
+    (gwpred.chem.check_molecule sanitises with RDKit). Predicted molecules are hypotheses; this
+    checks the decoding's contract, not their truth."""
+    pytest.importorskip("rdkit")
+    from collections import Counter
+
+    from gwpred.chem import check_molecule
+
+    X, graphs = load_demo()
+    model = TemplateGraphPredictor(n_templates=6, epochs=2, cluster_on="graphs", random_state=0)
+    model.fit(X[:80], graphs[:80])
+    assert model.valence_
+    truth = graphs[80:86]
+    formulas = ["".join(f"{e}{k}" for e, k in sorted(Counter(d["label"] for _, d in g.nodes(data=True)).items()))
+                for g in truth]
+    pred = model.predict(X[80:86], formulas=formulas)
+    for p, t in zip(pred, truth):
+        assert Counter(d["label"] for _, d in p.nodes(data=True)) == Counter(d["label"] for _, d in t.nodes(data=True))
+        assert check_molecule(p).valid
+
+
+def test_cluster_on_is_checked():
+    X, graphs = rings_and_paths(10, 6)
+    with pytest.raises(ValueError, match="cluster_on"):
+        TemplateGraphPredictor(cluster_on="labels").fit(X, graphs)
