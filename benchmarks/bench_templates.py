@@ -99,7 +99,7 @@ def run(task: str, args: argparse.Namespace) -> None:
     pred = ridge.predict(Xte)
     rows.append(("kernel ridge", pred, fit_ridge, time.perf_counter() - t0, file_size(ridge)))
     tmpl = TemplateGraphPredictor(n_templates=args.n_templates, epochs=args.epochs, random_state=args.seed,
-                                  n_threads=args.n_threads, progress=args.progress)
+                                  cluster_on=args.cluster_on, n_threads=args.n_threads, progress=args.progress)
     t0 = time.perf_counter()
     tmpl.fit(Xtr, ytr)
     fit_tmpl = time.perf_counter() - t0
@@ -111,7 +111,8 @@ def run(task: str, args: argparse.Namespace) -> None:
     t0 = time.perf_counter()
     pred = tmpl.predict(Xte)
     rows.append(("templates, free", pred, fit_tmpl, time.perf_counter() - t0, file_size(tmpl)))
-    print(f"\n{task}: {len(Xtr)} training, {len(Xte)} test pairs; templates: {args.n_templates}, "
+    print(f"\n{task}: {len(Xtr)} training, {len(Xte)} test pairs; templates: {args.n_templates} "
+          f"(clusters of the {args.cluster_on}), "
           f"epochs run {len(tmpl.history_['train_loss'])} (best {tmpl.history_['best_epoch'] + 1}), "
           f"prediction on {args.n_jobs} worker(s)")
     print(f"{'method':<16}{'mean GED':>10}{'exact':>8}{'train s':>10}{'graphs/s':>10}{'file KB':>10}")
@@ -128,6 +129,7 @@ def main() -> None:
     ap.add_argument("--n-test", type=int, default=1_000)
     ap.add_argument("--n-templates", type=int, default=32)
     ap.add_argument("--epochs", type=int, default=50)
+    ap.add_argument("--cluster-on", default="inputs", choices=["inputs", "graphs"])
     ap.add_argument("--n-jobs", type=int, default=1)
     ap.add_argument("--n-threads", type=int, default=1)
     ap.add_argument("--seed", type=int, default=0)

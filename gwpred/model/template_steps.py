@@ -435,6 +435,7 @@ class TrainingOptions:
     patience: int = 5
     size_weight: float = 0.1
     warm_epochs: int = 5
+    warm_smoothing: float = 0.5
     max_outer: int = 3
     max_inner: int = 20
     tol: float = 1e-5
@@ -519,7 +520,9 @@ def train_templates(
     template that the untrained network never ranks high would never be
     used; the network is first trained for ``warm_epochs`` epochs to put its
     largest weight on the template of each input's cluster (``assignment``,
-    cross-entropy, no FGW), and the size head with it.
+    cross-entropy with label smoothing ``warm_smoothing``, no FGW: without
+    smoothing the weights become one-hot and the FGW loss has no gradient
+    left for them), and the size head with it.
 
     Returns
     -------
@@ -601,7 +604,9 @@ def train_templates(
                 opt.zero_grad()
                 out = model.net(Xs[torch.from_numpy(rows)])
                 t = torch.from_numpy(rows)
-                loss = torch.nn.functional.cross_entropy(out[:, :M], target[t]) + \
+                # smoothed targets keep the softmax away from one-hot: its gradient, which the FGW
+                # training needs, vanishes there (benchmarks/bench_template_gradients.py)
+                loss = torch.nn.functional.cross_entropy(out[:, :M], target[t], label_smoothing=o.warm_smoothing) + \
                     torch.nn.functional.cross_entropy(out[:, M:], size_class[t])
                 loss.backward()
                 opt.step()
