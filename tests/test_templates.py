@@ -416,3 +416,15 @@ def test_cluster_on_is_checked():
     X, graphs = rings_and_paths(10, 6)
     with pytest.raises(ValueError, match="cluster_on"):
         TemplateGraphPredictor(cluster_on="labels").fit(X, graphs)
+
+
+def test_size_rules(fitted):
+    """Reference: the known answer of the synthetic task (sizes 3..6), and a fixed size given."""
+    model, _, _ = fitted
+    X, truth = rings_and_paths(20, 8)
+    voted = clone(model).set_params(n_nodes="vote")
+    voted.__dict__.update({k: v for k, v in vars(model).items() if k.endswith("_")})
+    assert [g.number_of_nodes() for g in voted.predict(X)] == [g.number_of_nodes() for g in truth]
+    fixed = clone(model).set_params(n_nodes=4)
+    fixed.__dict__.update({k: v for k, v in vars(model).items() if k.endswith("_")})
+    assert all(g.number_of_nodes() == 4 for g in fixed.predict(X))

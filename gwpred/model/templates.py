@@ -23,6 +23,7 @@ from sklearn.utils.validation import check_is_fitted
 
 from .._utils import Interval, Options, Rule, Types, check_inputs, validate_params
 from ..codec import LabelSpace, TrainingSet
+from ..decode import weighted_median
 from ..formula import Formula
 from ..ged import edit_distance
 from ..parallel import N_JOBS_RULE, batch_slices, parallel_map
@@ -379,14 +380,9 @@ class TemplateGraphPredictor(BaseEstimator):
     def _sizes(self, logits: NDArray, size_logits: NDArray, idx: NDArray, w: NDArray) -> NDArray[np.int64]:
         if self.n_nodes == "head":
             return self.network_.size_values[size_logits.argmax(1)]
-        if self.n_nodes == "vote":
-            from_vote = []
-            for i, ww in zip(idx, w):
-                sizes = self.templates_.sizes[i]
-                order = np.argsort(sizes, kind="stable")
-                cum = np.cumsum(ww[order])
-                from_vote.append(int(sizes[order][np.searchsorted(cum, 0.5 * cum[-1])]))
-            return np.array(from_vote, dtype=np.int64)
+        if self.n_nodes == "vote":  # the weighted median size of the mixed templates
+            return np.array([int(weighted_median(self.templates_.sizes[i], ww)) for i, ww in zip(idx, w)],
+                            dtype=np.int64)
         return np.full(len(idx), int(self.n_nodes), dtype=np.int64)
 
     def predict(self, X: ArrayLike, formulas: Any = None) -> list[nx.Graph]:
