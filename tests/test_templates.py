@@ -428,3 +428,17 @@ def test_size_rules(fitted):
     fixed = clone(model).set_params(n_nodes=4)
     fixed.__dict__.update({k: v for k, v in vars(model).items() if k.endswith("_")})
     assert all(g.number_of_nodes() == 4 for g in fixed.predict(X))
+
+
+def test_predictions_do_not_depend_on_batches_or_workers(fitted):
+    """Reference: the model's own one-at-a-time predictions (networkx is_isomorphic); a query's
+    result must not depend on its batch or on the worker that solved it (DEVELOPERS.md)."""
+    model, _, _ = fitted
+    X, _ = rings_and_paths(24, 9)
+    one = clone(model).set_params(batch_size=1)
+    one.__dict__.update({k: v for k, v in vars(model).items() if k.endswith("_")})
+    two = clone(model).set_params(batch_size=5, n_jobs=2)
+    two.__dict__.update({k: v for k, v in vars(model).items() if k.endswith("_")})
+    reference = model.predict(X)
+    assert all(same(a, b) for a, b in zip(one.predict(X), reference))
+    assert all(same(a, b) for a, b in zip(two.predict(X), reference))
