@@ -295,7 +295,7 @@ def _as_templates(training: TrainingSet, indices: Sequence[int]) -> TemplateSet:
     return TemplateSet(C, F, E, sizes.astype(np.int64))
 
 
-def _start_graph(ts: TemplateSet, idx: NDArray[np.int64], w: NDArray[np.float64], n: int) -> tuple:
+def _start_graph(ts: TemplateSet, idx: NDArray[np.int64], n: int) -> tuple:
     """Start of a barycenter of size ``n``: the highest-weight kept template of that size, else the
     closest in size with its nodes repeated (as :func:`gwpred.model.steps.choose_start`)."""
     sizes = ts.sizes[idx]
@@ -342,7 +342,7 @@ def solve_on_templates(
     out: list[Any] = [None] * Q
     for n in np.unique(sizes).tolist():
         members = np.flatnonzero(sizes == n)
-        starts = [_start_graph(ts, idx[q], w[q], n) for q in members]
+        starts = [_start_graph(ts, idx[q], n) for q in members]
         rows = idx[members].ravel()
         res = fgw_barycenter_batch(
             ts.structures[rows], ts.features[rows], _masses(ts, rows), np.repeat(np.arange(len(members)), k),
