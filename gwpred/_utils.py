@@ -50,6 +50,7 @@ __all__ = [
     "progress_bar",
     "require_extra",
     "validate_params",
+    "torch_settings",
 ]
 
 StrPath = Union[str, "os.PathLike[str]"]
@@ -128,6 +129,26 @@ def require_extra(module: str, purpose: str = "this function") -> ModuleType:
             f"{purpose} needs {shown} (the optional extra '{extra}' of gwpred); "
             f"install it with: {install_hint(extra)}"
         ) from err
+
+
+@contextmanager
+def torch_settings(n_threads: int | None, seed: int, purpose: str) -> Iterator[None]:
+    """Seeded, deterministic torch with ``n_threads`` threads; the previous settings come back after.
+
+    For the two torch users (learned embeddings, learned templates); ``purpose``
+    names the caller in the error when torch (the ``neural`` extra) is missing.
+    """
+    torch = require_extra("torch", purpose)
+    threads, deterministic = torch.get_num_threads(), torch.are_deterministic_algorithms_enabled()
+    try:
+        if n_threads is not None:
+            torch.set_num_threads(int(n_threads))
+        torch.use_deterministic_algorithms(True)
+        torch.manual_seed(seed)
+        yield
+    finally:
+        torch.set_num_threads(threads)
+        torch.use_deterministic_algorithms(deterministic)
 
 
 # --------------------------------------------------------------------------- progress

@@ -33,10 +33,8 @@ supplies the output similarity of its training graphs as an
 
 from __future__ import annotations
 
-import contextlib
 import copy
 import time
-from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -44,7 +42,7 @@ import numpy as np
 import scipy.sparse as sp
 from numpy.typing import ArrayLike, NDArray
 
-from ._utils import progress_bar, require_extra
+from ._utils import progress_bar, require_extra, torch_settings
 
 __all__ = [
     "EMBEDDING_LOSSES",
@@ -325,22 +323,6 @@ def _as_embedding(net: Any, mean: NDArray[np.float64], scale: NDArray[np.float64
     return InputEmbedding(mean, scale, weights, biases, filters, cbias, pool, history, raw_weight)
 
 
-@contextlib.contextmanager
-def _torch_settings(n_threads: int | None, seed: int) -> Iterator[None]:
-    """Seeded, deterministic torch with ``n_threads`` threads; the previous settings come back after."""
-    torch = _torch()
-    threads, deterministic = torch.get_num_threads(), torch.are_deterministic_algorithms_enabled()
-    try:
-        if n_threads is not None:
-            torch.set_num_threads(int(n_threads))
-        torch.use_deterministic_algorithms(True)
-        torch.manual_seed(seed)
-        yield
-    finally:
-        torch.set_num_threads(threads)
-        torch.use_deterministic_algorithms(deterministic)
-
-
 def _loss_floor(K: NDArray[np.float64], loss: str, target_temperature: float) -> float:
     """The lowest value of the loss on a batch with output similarities ``K``: the mean entropy of
     the target rows (listwise; reached when the embedding's softmax equals the target's), or -1
@@ -511,7 +493,7 @@ def train_embedding(
 
     start = time.perf_counter()
     history: dict[str, Any] = {"train_loss": [], "validation_loss": [], "options": options}
-    with _torch_settings(n_threads, seed):
+    with torch_settings(n_threads, seed, _PURPOSE):
         net = _network(X.shape[1], tuple(hidden), dim, None if conv is None else tuple(conv), torch.float32)
         opt = torch.optim.Adam(net.parameters(), lr=learning_rate, weight_decay=weight_decay)
         near_fit = similarity.nearest(fit, neighbours) if neighbours else None

@@ -23,10 +23,9 @@ Everything is arrays in, arrays out; the estimator is
 
 from __future__ import annotations
 
-import contextlib
 import copy
 import time
-from collections.abc import Iterator, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -34,7 +33,7 @@ import numpy as np
 from numpy.typing import NDArray
 from sklearn.cluster import KMeans
 
-from .._utils import progress_bar, require_extra
+from .._utils import progress_bar, require_extra, torch_settings
 from ..codec import TrainingSet
 from ..fgw import fgw_barycenter_batch, fgw_to_many
 from ..ranking import training_output_features
@@ -405,22 +404,6 @@ def _torch() -> Any:
     return require_extra("torch", _PURPOSE)
 
 
-@contextlib.contextmanager
-def _torch_settings(n_threads: int | None, seed: int) -> Iterator[None]:
-    """Seeded, deterministic torch with ``n_threads`` threads; the previous settings come back after."""
-    torch = _torch()
-    threads, deterministic = torch.get_num_threads(), torch.are_deterministic_algorithms_enabled()
-    try:
-        if n_threads is not None:
-            torch.set_num_threads(int(n_threads))
-        torch.use_deterministic_algorithms(True)
-        torch.manual_seed(seed)
-        yield
-    finally:
-        torch.set_num_threads(threads)
-        torch.use_deterministic_algorithms(deterministic)
-
-
 @dataclass
 class TrainingOptions:
     """Options of :func:`train_templates` (the estimator's parameters, resolved)."""
@@ -586,7 +569,7 @@ def train_templates(
         accuracy = float((size_logits.argmax(1) == size_class[torch.from_numpy(rows)]).double().mean())
         return fgw, ce, accuracy
 
-    with _torch_settings(o.n_threads, o.seed):
+    with torch_settings(o.n_threads, o.seed, _PURPOSE):
         model = _Model(torch, Xf.shape[1], tuple(o.hidden), M + len(size_values), init)
         opt = torch.optim.Adam(model.parameters(), lr=o.learning_rate)
         val_batches = [val[s : s + 256] for s in range(0, len(val), 256)]

@@ -40,8 +40,6 @@ from .steps import (
     valence_arrays,
 )
 from .template_steps import (
-    TemplateNetwork,
-    TemplateSet,
     TrainingOptions,
     initial_templates,
     softmax,
