@@ -656,12 +656,15 @@ def cmd_report(args: argparse.Namespace) -> int:
         model = load_model(args.model)
         n = len(pred) if args.limit is None else min(args.limit, len(pred))
         n_draw = min(args.drawings, n)
-        idx, w = model.neighbors(X[:n])
-        extra = dict(barycenters=model.predict_barycenters(X[:n_draw]) if n_draw else [],
-                     training_graphs=_TrainingGraphs(model.training_, model.training_ids_),
-                     label_names=list(model.labels_.node_labels_), leaned_on=list(zip(idx, w)))
-        if model.kernel != "precomputed":  # the inputs beside those of the training graphs leaned on
-            extra.update(inputs=X[:n], training_inputs=model.weights_.X_fit_)
+        if hasattr(model, "templates_"):  # learned templates: no training graphs, the templates instead
+            extra = dict(templates=model, inputs=X[:n])
+        else:
+            idx, w = model.neighbors(X[:n])
+            extra = dict(barycenters=model.predict_barycenters(X[:n_draw]) if n_draw else [],
+                         training_graphs=_TrainingGraphs(model.training_, model.training_ids_),
+                         label_names=list(model.labels_.node_labels_), leaned_on=list(zip(idx, w)))
+            if model.kernel != "precomputed":  # the inputs beside those of the training graphs leaned on
+                extra.update(inputs=X[:n], training_inputs=model.weights_.X_fit_)
     notes += [f"predictions: {args.predictions}" + (f"; truth: {args.truth}" if args.truth else "")
              + (f"; ranked candidates: {args.ranked}" if args.ranked else "")
              + (f"; model: {args.model}, inputs: {args.features}" if args.model else "")]
@@ -852,7 +855,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--top-k", type=int, default=5, help="ranked candidates drawn per item (default: 5)")
     p.add_argument("--top", dest="top_k", type=int, action=_renamed("--top-k"), default=argparse.SUPPRESS, help=argparse.SUPPRESS)
     p.add_argument("--model", help="model file that made the predictions (with --features): adds the "
-                                   "barycenter heat maps and the training graphs each prediction leaned on")
+                                   "barycenter heat maps and the training graphs each prediction leaned on "
+                                   "(or, for a model of learned templates, the templates and each input's "
+                                   "weights on them)")
     p.add_argument("--features", help="inputs the predictions were made from, same order (with --model)")
     _add_label_options(p)
     _add_id_options(p)

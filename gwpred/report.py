@@ -44,6 +44,7 @@ from .plot import (
     draw_inputs,
     draw_node_scores,
     draw_structure,
+    draw_templates,
     graph_thumbnail_svg,
 )
 from .wl import LabelIds, graph_ids, wl_feature_counts
@@ -681,6 +682,7 @@ class _Options:
     label_names: Sequence[Any] | None
     neighbours: int
     inputs: _Inputs | None = None
+    templates: Any = None  # a fitted TemplateGraphPredictor: its templates are drawn
     # item -> (its input, the inputs of its training items with the largest weights)
     overlays: dict[int, tuple[NDArray[np.float64], list[NDArray[np.float64]]]] = field(
         default_factory=dict
@@ -1630,6 +1632,31 @@ def _barycenter_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
     ]
 
 
+#: Templates drawn on the page (the first ones) and in each item's panel (its largest weights).
+_PAGE_TEMPLATES, _ITEM_TEMPLATES = 6, 3
+
+
+def _templates_svg(model: Any, x: NDArray[np.float64] | None, top: int, svgs: _Svgs) -> str:
+    """Inline SVG of :func:`gwpred.plot.draw_templates` (outside pyplot)."""
+    shown = min(top, len(model.templates_)) + (x is not None)
+    return svgs.figure(draw_templates(model, x, top=top, fig=_figure(6.4, 2.4 * shown)))
+
+
+def _template_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
+    if opts.templates is None or item.index not in opts.overlays:
+        return []
+    x = opts.overlays[item.index][0]
+    m = len(opts.templates.templates_)
+    return [
+        _figure_html(
+            _templates_svg(opts.templates, x, _ITEM_TEMPLATES, svgs),
+            f"The weights this input puts on each of the {m} learned templates (top), and the "
+            f"{min(_ITEM_TEMPLATES, m)} it weighs most: structure (how strongly each pair of nodes is "
+            "linked) and node-label scores",
+        )
+    ]
+
+
 def _candidate_figs(item: _Item, opts: _Options, svgs: _Svgs) -> list[str]:
     shown = (item.candidates or [])[: opts.top]
     if not shown:
@@ -1723,6 +1750,7 @@ def _panel(item: _Item, opts: _Options, svgs: _Svgs) -> str:
     figs += _input_figs(item, opts, svgs)
     figs += _neighbour_figs(item, opts, svgs)
     figs += _barycenter_figs(item, opts, svgs)
+    figs += _template_figs(item, opts, svgs)
     figs += _candidate_figs(item, opts, svgs)
     lines.append('<div class="figs">' + "".join(figs) + "</div>")
     lines.append("</section>")
@@ -1746,6 +1774,7 @@ def build_report(
     training_inputs: Any = None,
     input_grid: Any = None,
     input_name: str = "input",
+    templates: Any = None,
     title: str = "gwpred predictions",
     notes: Sequence[str] = (),
     time_limit: float | None = 10.0,
@@ -1823,6 +1852,11 @@ def build_report(
         The x value of each input column (e.g. wavenumbers in cm-1); None: column index.
     input_name : str, default="input"
         What the inputs are, for captions (e.g. ``"IR spectrum"``).
+    templates : TemplateGraphPredictor, default=None
+        The fitted :class:`~gwpred.TemplateGraphPredictor` that made the predictions:
+        the page draws its first templates (structure heat map and node-label scores),
+        and each drawn item with an entry in ``inputs`` gets the weights its input puts
+        on every template and the templates it weighs most.
     title : str, default="gwpred predictions"
     notes : sequence of str, default=()
         Lines shown under the title (for example how the predictions were made).
@@ -1893,6 +1927,11 @@ def build_report(
     bary = _check_barycenters(barycenters, n_all, training_graphs)
     leaned = _check_leaned_on(leaned_on, bary, n_all, training_graphs)
     vectors = _check_inputs(inputs, training_inputs, input_grid, input_name, n_all)
+    if templates is not None and not (hasattr(templates, "templates_") and hasattr(templates, "template_weights")):
+        raise ValueError(
+            f"templates must be a fitted TemplateGraphPredictor, got {type(templates).__name__}; "
+            "fit it first, or leave templates out"
+        )
     predicted, truth = predicted[:n], None if truth is None else truth[:n]
     molecular = (
         is_molecular(predicted + (truth or []), node_label)
@@ -1913,6 +1952,7 @@ def build_report(
         label_names,
         neighbours,
         vectors,
+        templates,
     )
     drawn = min(drawings, n)
     if vectors is not None:  # read the drawn items' inputs now: a bad row fails before any scoring
@@ -2007,6 +2047,17 @@ def build_report(
                 f"error {expected_calibration_error(conf, hit):.3f} (0 is perfect). Left: how often the first "
                 "hypothesis is exact among the items with the highest confidence; right: observed rate per "
                 "confidence bin (on the grey line when calibrated)",
+            )
+        )
+    if templates is not None:
+        m = len(templates.templates_)
+        parts.append("<h2>Learned templates</h2>")
+        parts.append(
+            _figure_html(
+                _templates_svg(templates, None, _PAGE_TEMPLATES, svgs),
+                f"The first {min(_PAGE_TEMPLATES, m)} of the model's {m} templates: each prediction is the "
+                "FGW barycenter of the templates its input weighs most. Structure: how strongly each "
+                "pair of nodes is linked (0 to 1); node labels: the label scores of each node",
             )
         )
     parts.append("<h2>Items</h2>")

@@ -442,3 +442,40 @@ def test_predictions_do_not_depend_on_batches_or_workers(fitted):
     reference = model.predict(X)
     assert all(same(a, b) for a, b in zip(one.predict(X), reference))
     assert all(same(a, b) for a, b in zip(two.predict(X), reference))
+
+
+# --------------------------------------------------------------------------- report
+def test_report_draws_the_templates_and_each_inputs_weights(fitted):
+    """The HTML report of a template model: one page-level figure of the templates and, per drawn
+    item with an input, one figure of its weights; the weights drawn are the model's own
+    (template_weights, rows on the simplex as checked above)."""
+    from gwpred.report import build_report
+
+    model, _, _ = fitted
+    X, truth = rings_and_paths(5, 2)
+    pred = model.predict(X)
+    page = build_report(pred, truth, templates=model, inputs=X, drawings=3, time_limit=5.0)
+    assert page.count("<h2>Learned templates</h2>") == 1
+    assert page.count("The weights this input puts on each of the 8 learned templates") == 3
+    with pytest.raises(ValueError, match="templates must be a fitted TemplateGraphPredictor"):
+        build_report(pred, truth, templates=object(), inputs=X)
+
+
+def test_cli_report_with_a_template_model(fitted, tmp_path, capsys):
+    """``gwpred report --model --features`` reads a saved template model (load_model tells the kind)
+    and draws its templates instead of training neighbours."""
+    from gwpred.cli import main
+    from gwpred.io import write_features, write_graphs
+
+    model, _, _ = fitted
+    X, truth = rings_and_paths(4, 3)
+    save_model(model, tmp_path / "templates.npz")
+    write_features(tmp_path / "x.csv", X)
+    write_graphs(tmp_path / "pred.jsonl", model.predict(X))
+    write_graphs(tmp_path / "truth.jsonl", truth)
+    code = main(["report", str(tmp_path / "pred.jsonl"), "--truth", str(tmp_path / "truth.jsonl"),
+                 "--model", str(tmp_path / "templates.npz"), "--features", str(tmp_path / "x.csv"),
+                 "--out", str(tmp_path / "page.html"), "-q"])
+    assert code == 0, capsys.readouterr().err
+    page = (tmp_path / "page.html").read_text(encoding="utf-8")
+    assert "<h2>Learned templates</h2>" in page and page.count("learned templates (top)") == 4
