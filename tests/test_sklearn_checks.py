@@ -1,4 +1,4 @@
-"""scikit-learn's own estimator checks on BarycenterGraphPredictor (issue 13).
+"""scikit-learn's own estimator checks on BarycenterGraphPredictor and TemplateGraphPredictor.
 
 Reference: scikit-learn's estimator checks, ``sklearn.utils.estimator_checks``
 (``parametrize_with_checks`` and ``check_estimator`` with
@@ -7,8 +7,8 @@ developer guide ("Developing scikit-learn estimators") that those checks encode.
 
 Three parts:
 
-1. Every built-in check runs on two small instances (a named kernel, and
-   ``kernel="precomputed"``).  The estimator's y is a list of networkx graphs
+1. Every built-in check runs on three small instances (a named kernel,
+   ``kernel="precomputed"``, and a small TemplateGraphPredictor).  The estimator's y is a list of networkx graphs
    and ``predict`` returns graphs, so a check that fits on numeric y cannot
    pass: those are listed with a reason in :data:`EXPECTED_FAILED_CHECKS`.
    Every other check, :data:`MUST_PASS_CHECKS`, must pass: parameters, clone,
@@ -18,7 +18,8 @@ Three parts:
    ``check_estimator`` and checks that every listed check fails *because* the
    estimator refused numeric y (its "graphs[i] must be a networkx.Graph"
    TypeError), not for some other reason hidden behind the expected failure.
-3. Graph versions of the listed checks whose property matters (same
+3. Graph versions of the listed checks whose property matters (for
+   BarycenterGraphPredictor; tests/test_templates.py has the template model's) (same
    property, named after the check they stand for), on real QM9 molecules
    from :func:`gwpred.datasets.load_demo`: a few dozen rows.
 """
@@ -46,7 +47,7 @@ from sklearn.pipeline import make_pipeline
 from sklearn.utils import estimator_checks
 from sklearn.utils.validation import check_is_fitted
 
-from gwpred import BarycenterGraphPredictor
+from gwpred import BarycenterGraphPredictor, TemplateGraphPredictor
 from gwpred.datasets import load_demo
 
 # The number of kept training graphs is being renamed from ``top_k`` to ``n_neighbors``
@@ -59,6 +60,8 @@ SMALL = {NEIGHBOURS: 2, "max_outer": 2}
 ESTIMATORS = [
     BarycenterGraphPredictor(**SMALL),
     BarycenterGraphPredictor(kernel="precomputed", **SMALL),
+    # the learned-template predictor: the same contract (its fit refuses numeric y before torch)
+    TemplateGraphPredictor(n_templates=2, epochs=1),
 ]
 
 _Y = "y must be a list of networkx graphs (it fits on numeric y)"
@@ -187,7 +190,7 @@ def test_the_lists_name_real_checks():
 
 
 @pytest.mark.skipif(not _HAS_EXPECTED_FAILED, reason=_OLD)
-@pytest.mark.parametrize("estimator", ESTIMATORS, ids=["rbf", "precomputed"])
+@pytest.mark.parametrize("estimator", ESTIMATORS, ids=["rbf", "precomputed", "templates"])
 def test_each_expected_failure_is_the_refusal_of_numeric_y(estimator):
     # reference: sklearn.utils.estimator_checks.check_estimator(on_fail=None) reports every
     # check's status and exception; an expected failure must be the estimator refusing

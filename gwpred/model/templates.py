@@ -292,10 +292,16 @@ class TemplateGraphPredictor(BaseEstimator):
             raise ValueError(f"hidden must be a tuple of positive integer layer widths; got {self.hidden!r}.")
         X = check_inputs(X)
         if y is None:
-            raise ValueError("TemplateGraphPredictor requires y: pass one networkx graph per input row.")
+            raise ValueError(
+                f"{type(self).__name__} requires y to be passed, but the target y is None; "
+                "pass one networkx graph per input row."
+            )
         graphs = [y] if isinstance(y, nx.Graph) else list(y)
         if len(graphs) != X.shape[0]:
             raise ValueError(f"X has {X.shape[0]} rows but {len(graphs)} graphs were given; pass one graph per row.")
+        # every y a graph first (its error names the entry), then the counts
+        labels = LabelSpace(self.node_label, self.edge_label, handle_unknown=self.handle_unknown).fit(graphs)
+        training = TrainingSet.encode(graphs, labels, "y")
         if len(graphs) < 4:
             raise ValueError(f"training templates needs at least 4 pairs (2 to fit, 1 to validate); got {len(graphs)}.")
         if self.n_templates > len(graphs):
@@ -303,8 +309,6 @@ class TemplateGraphPredictor(BaseEstimator):
                 f"n_templates={self.n_templates} is more than the {len(graphs)} training graphs it starts from; "
                 "lower n_templates."
             )
-        labels = LabelSpace(self.node_label, self.edge_label, handle_unknown=self.handle_unknown).fit(graphs)
-        training = TrainingSet.encode(graphs, labels, "y")
         seed = 0 if self.random_state is None else int(check_random_state(self.random_state).randint(2**31 - 1))
         init, assignment = initial_templates(X, training, int(self.n_templates), seed, alpha=self.alpha,
                                              cluster_on=self.cluster_on)
