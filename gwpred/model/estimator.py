@@ -33,14 +33,14 @@ from .steps import (
     Settings,
     SoftGraph,
     barycenter_batch,
-    label_atoms,
+    make_settings,
     molecular_labels,
     neighbourhood,
     on_rows,
     padded_graphs,
     parse_formulas,
     predict_batch,
-    valence_arrays,
+    uses_valence,
 )
 
 __all__ = ["BarycenterGraphPredictor"]
@@ -600,34 +600,15 @@ class BarycenterGraphPredictor(BaseEstimator):
         (or edge labels are ignored).
         """
         check_is_fitted(self, "labels_")
-        if isinstance(self.valence, str):  # "auto"
-            return molecular_labels(self.labels_)
-        return bool(self.valence)
+        return uses_valence(self.valence, self.labels_)
 
     def _settings(self, need_valences: bool) -> Settings:
-        valences = orders = sets = charges = elements = None
-        if need_valences:
-            table = self.valence if self.valence_ else False
-            valences, orders = valence_arrays(self.labels_, table)
-            sets, charges, elements = label_atoms(self.labels_, table)
-        return Settings(
-            alpha=self.alpha,
-            max_outer=self.max_outer,
-            max_inner=self.max_inner,
-            tol=self.tol,
-            n_nodes=self.n_nodes,
-            decoding=self.decoding,
-            edges=self.edges,
-            consensus=self.consensus,
-            connect=self.connected_ if self.connect == "auto" else bool(self.connect),
-            labels=self.labels_,
-            max_degree=self.max_degree_,
-            valence=self.valence_,
-            valences=valences,
-            orders=orders,
-            valence_sets=sets,
-            charges=charges,
-            elements=elements,
+        check_is_fitted(self, "labels_")
+        return make_settings(
+            self.labels_, self.max_degree_, self.connected_, self.valence, need_valences,
+            alpha=self.alpha, max_outer=self.max_outer, max_inner=self.max_inner, tol=self.tol,
+            n_nodes=self.n_nodes, decoding=self.decoding, edges=self.edges, consensus=self.consensus,
+            connect=self.connect,
         )
 
     def _map(self, step: Any, X: ArrayLike, formulas: Any, decode: bool) -> list:

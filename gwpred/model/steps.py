@@ -79,6 +79,8 @@ __all__ = [
     "valence_arrays",
     "DECODE_BUDGET",
     "label_atoms",
+    "make_settings",
+    "uses_valence",
 ]
 
 
@@ -420,6 +422,49 @@ def molecular_labels(labels: LabelSpace) -> bool:
     except ValueError:
         return False
     return True
+
+
+def uses_valence(valence: str | bool | dict, labels: LabelSpace) -> bool:
+    """An estimator's ``valence`` parameter resolved against its fitted labels (``"auto"``: :func:`molecular_labels`)."""
+    if isinstance(valence, str):  # "auto"
+        return molecular_labels(labels)
+    return bool(valence)
+
+
+def make_settings(
+    labels: LabelSpace,
+    max_degree: NDArray[np.int64],
+    connected: bool,
+    valence: str | bool | dict,
+    need_valences: bool,
+    *,
+    alpha: float,
+    max_outer: int,
+    max_inner: int,
+    tol: float,
+    n_nodes: str | int,
+    decoding: str,
+    edges: str,
+    consensus: float,
+    connect: str | bool,
+) -> Settings:
+    """The :class:`Settings` of an estimator's queries, from its parameters and fitted label facts.
+
+    ``need_valences``: fill the valence arrays (when valence rules are on or a
+    formula is given); ``connect="auto"`` becomes ``connected`` (every training graph is).
+    """
+    on = uses_valence(valence, labels)
+    valences = orders = sets = charges = elements = None
+    if need_valences:
+        table = valence if on else False
+        valences, orders = valence_arrays(labels, table)
+        sets, charges, elements = label_atoms(labels, table)
+    return Settings(
+        alpha=alpha, max_outer=max_outer, max_inner=max_inner, tol=tol, n_nodes=n_nodes, decoding=decoding,
+        edges=edges, consensus=consensus, connect=connected if connect == "auto" else bool(connect),
+        labels=labels, max_degree=max_degree, valence=on, valences=valences, orders=orders,
+        valence_sets=sets, charges=charges, elements=elements,
+    )
 
 
 # --------------------------------------------------------------------------- size, start, barycenter

@@ -33,11 +33,10 @@ from .steps import (
     Settings,
     decode_query,
     formula_counts,
-    label_atoms,
-    molecular_labels,
+    make_settings,
     parse_formulas,
     solve_barycenters,
-    valence_arrays,
+    uses_valence,
 )
 from .template_steps import (
     TrainingOptions,
@@ -338,22 +337,15 @@ class TemplateGraphPredictor(BaseEstimator):
     def valence_(self) -> bool:
         """Whether predictions obey valence rules (``valence`` resolved against the training labels)."""
         check_is_fitted(self, "labels_")
-        if isinstance(self.valence, str):
-            return molecular_labels(self.labels_)
-        return bool(self.valence)
+        return uses_valence(self.valence, self.labels_)
 
     def _settings(self, need_valences: bool) -> Settings:
-        valences = orders = sets = charges = elements = None
-        if need_valences:
-            table = self.valence if self.valence_ else False
-            valences, orders = valence_arrays(self.labels_, table)
-            sets, charges, elements = label_atoms(self.labels_, table)
-        return Settings(
+        check_is_fitted(self, "labels_")
+        return make_settings(
+            self.labels_, self.max_degree_, self.connected_, self.valence, need_valences,
             alpha=self.alpha, max_outer=self.max_outer, max_inner=self.max_inner, tol=self.tol,
             n_nodes="vote" if self.n_nodes == "head" else self.n_nodes, decoding=self.decoding, edges=self.edges,
-            consensus=self.consensus, connect=self.connected_ if self.connect == "auto" else bool(self.connect),
-            labels=self.labels_, max_degree=self.max_degree_, valence=self.valence_, valences=valences,
-            orders=orders, valence_sets=sets, charges=charges, elements=elements,
+            consensus=self.consensus, connect=self.connect,
         )
 
     def template_weights(self, X: ArrayLike) -> NDArray[np.float64]:
