@@ -1090,13 +1090,15 @@ def morgan_bits_of_arrays(
     The fast path of :func:`morgan_fingerprints` for molecules built in
     memory (the hypothesis search scores hundreds per input): no networkx
     graph is built, and each molecule is sanitized as :func:`graph_to_mol`
-    sanitizes (no clean-up, neutral atoms).
+    sanitizes (no clean-up; formal charges from the labels).
 
     Parameters
     ----------
     molecules : sequence of (sequence of str, ndarray)
-        Per molecule, the element symbol of each atom and the symmetric
-        bond-order matrix of shape (n, n) (0: no bond, else 1, 2 or 3).
+        Per molecule, the label of each atom (its element symbol, with the formal
+        charge when there is one: ``"N+"``, ``"O-"``, as :func:`graph_from_smiles`
+        writes them) and the symmetric bond-order matrix of shape (n, n) (0: no
+        bond, else 1, 2 or 3).
     radius, n_bits : int
         As in :func:`morgan_fingerprints`.
 
@@ -1123,8 +1125,15 @@ def morgan_bits_of_arrays(
     with rdBase.BlockLogs():
         for elements, orders in molecules:
             rw = Chem.RWMol()
-            for symbol in elements:
-                rw.AddAtom(Chem.Atom(symbol))
+            try:
+                atoms = [split_atom_label(label) for label in elements]  # "N+": N with charge +1
+            except ValueError:
+                out.append(None)
+                continue
+            for symbol, q in atoms:
+                atom = Chem.Atom(symbol)
+                atom.SetFormalCharge(q)
+                rw.AddAtom(atom)
             iu, ju = np.nonzero(orders)
             upper = iu < ju
             iu, ju = iu[upper], ju[upper]

@@ -25,7 +25,13 @@ from rdkit import RDConfig, RDLogger  # noqa: E402
 from rdkit.Chem.rdMolDescriptors import CalcMolFormula  # noqa: E402
 
 from gwpred import BarycenterGraphPredictor  # noqa: E402
-from gwpred.chem import check_molecule, graph_from_smiles, graph_to_smiles, morgan_fingerprints  # noqa: E402
+from gwpred.chem import (  # noqa: E402
+    check_molecule,
+    graph_from_smiles,
+    graph_to_smiles,
+    morgan_bits_of_arrays,
+    morgan_fingerprints,
+)
 from gwpred.datasets import load_druglike  # noqa: E402
 from gwpred.decode import decode_valence  # noqa: E402
 from gwpred.formula import (  # noqa: E402
@@ -94,6 +100,29 @@ def test_charged_groups_round_trip_on_real_molecules(druglike):
             found[k] += 1
     assert checked >= 200, found
     assert all(found.values()), found  # every group among them
+
+
+def test_morgan_bits_of_arrays_read_charged_labels(druglike):
+    # Reference: RDKit's Morgan generator (radius 2, 2048 bits) on RDKit's own parse of each real
+    # NCI molecule with a charged atom; the arrays carry the charges in the labels alone ("N+"),
+    # as the hypothesis search builds them.
+    from rdkit.Chem import rdFingerprintGenerator
+
+    generator = rdFingerprintGenerator.GetMorganGenerator(radius=2, fpSize=2048)
+    molecules, smiles = [], []
+    for s, g in zip(druglike.smiles, druglike.graphs):
+        labels = [g.nodes[v]["label"] for v in range(len(g))]
+        if not any(lab.endswith(("+", "-")) for lab in labels):
+            continue
+        O = np.zeros((len(g), len(g)), dtype=np.int64)
+        for u, v, order in g.edges(data="label"):
+            O[u, v] = O[v, u] = order
+        molecules.append((labels, O))
+        smiles.append(s)
+    assert len(molecules) >= 200
+    for on, s in zip(morgan_bits_of_arrays(molecules), smiles):
+        assert on is not None and on.tolist() == sorted(generator.GetFingerprint(Chem.MolFromSmiles(s)).GetOnBits()), s
+    assert morgan_bits_of_arrays([(["C", "Q+"], np.array([[0, 1], [1, 0]]))]) == [None]  # not an atom label
 
 
 def test_hydrogens_and_formulas_match_rdkit_on_real_molecules(druglike):
