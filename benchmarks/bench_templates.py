@@ -115,7 +115,8 @@ def run(task: str, args: argparse.Namespace) -> None:
     rows.append(("templates, free", pred, fit_tmpl, time.perf_counter() - t0, file_size(tmpl)))
     print(f"\n{task}: {len(Xtr)} training, {len(Xte)} test pairs; templates: {args.n_templates} "
           f"(clusters of the {args.cluster_on}), "
-          f"epochs run {len(tmpl.history_['train_loss'])} (best {tmpl.history_['best_epoch'] + 1}), "
+          f"epochs run {len(tmpl.history_['train_loss'])} (best {tmpl.history_['best_epoch'] + 1}; "
+          f"0: the warm start, before any FGW epoch), "
           f"prediction on {args.n_jobs} worker(s)")
     print(f"{'method':<16}{'mean GED':>10}{'exact':>8}{'train s':>10}{'graphs/s':>10}{'file KB':>10}")
     for name, pred, fit_s, pred_s, size in rows:
