@@ -54,7 +54,10 @@ __all__ = [
     "graph_from_smiles",
     "graph_to_mol",
     "graph_to_smiles",
+    "mol_from_arrays",
+    "morgan_bits_of_arrays",
     "morgan_fingerprints",
+    "morgan_of_mol",
     "read_sdf",
     "read_smiles_file",
     "write_sdf",
@@ -1117,41 +1120,123 @@ def morgan_bits_of_arrays(
     >>> bool((np.flatnonzero(morgan_fingerprints(["CCO"], n_bits=64)[0]) == bits).all()), bad
     (True, None)
     """
-    Chem, rdBase = rdkit_modules("morgan_bits_of_arrays")
-    types = _bond_types()
+    _, rdBase = rdkit_modules("morgan_bits_of_arrays")
     generator = _morgan_generator(radius, n_bits)
-    ops = _sanitize_ops()  # as graph_to_mol sanitizes
     out: list[NDArray[np.int32] | None] = []
     with rdBase.BlockLogs():
         for elements, orders in molecules:
-            rw = Chem.RWMol()
-            try:
-                atoms = [split_atom_label(label) for label in elements]  # "N+": N with charge +1
-            except ValueError:
-                out.append(None)
-                continue
-            for symbol, q in atoms:
-                atom = Chem.Atom(symbol)
-                atom.SetFormalCharge(q)
-                rw.AddAtom(atom)
-            iu, ju = np.nonzero(orders)
-            upper = iu < ju
-            iu, ju = iu[upper], ju[upper]
-            bonds = orders[iu, ju].tolist()
-            if any(o not in types for o in bonds):
-                out.append(None)
-                continue
-            for i, j, o in zip(iu.tolist(), ju.tolist(), bonds):
-                rw.AddBond(i, j, types[o])
-            mol = rw.GetMol()
-            mol.UpdatePropertyCache(strict=False)
-            try:
-                Chem.SanitizeMol(mol, sanitizeOps=ops)
-            except (ValueError, RuntimeError):
-                out.append(None)
-                continue
-            out.append(np.flatnonzero(generator.GetFingerprintAsNumPy(mol)).astype(np.int32))
+            mol = mol_from_arrays(elements, orders)
+            out.append(None if mol is None else np.flatnonzero(generator.GetFingerprintAsNumPy(mol)).astype(np.int32))
     return out
+
+
+def mol_from_arrays(labels: Sequence[str], orders: NDArray[np.int64]) -> Any | None:
+    """A sanitized RDKit molecule from atom labels and a bond-order matrix, or None.
+
+    Sanitized as :func:`graph_to_mol` sanitizes (no clean-up), without its
+    checks and messages: the fast path for molecules built in memory by a
+    search.  RDKit's log is not silenced here; wrap calls in
+    ``rdkit.rdBase.BlockLogs()``.
+
+    Parameters
+    ----------
+    labels : sequence of str
+        Per atom, its element symbol with the formal charge when there is one
+        (``"N+"``, ``"O-"``, as :func:`graph_from_smiles` writes them).
+    orders : ndarray of int, shape (n, n)
+        Symmetric bond-order matrix (0: no bond, else 1, 2 or 3).
+
+    Returns
+    -------
+    rdkit.Chem.Mol or None
+        None where a label is not an atom, an order is not 1-3, or RDKit's
+        sanitization rejects the molecule (e.g. a valence no rule allows).
+
+    Examples
+    --------
+    >>> O = np.array([[0, 2], [2, 0]])
+    >>> mol_from_arrays(["C", "O"], O).GetNumAtoms(), mol_from_arrays(["F", "F"], O)
+    (2, None)
+    """
+    Chem, _ = rdkit_modules("mol_from_arrays")
+    types = _bond_types()
+    rw = Chem.RWMol()
+    try:
+        atoms = [split_atom_label(label) for label in labels]  # "N+": N with charge +1
+    except ValueError:
+        return None
+    for symbol, q in atoms:
+        try:
+            atom = Chem.Atom(symbol)
+        except RuntimeError:  # not an element RDKit knows
+            return None
+        atom.SetFormalCharge(q)
+        rw.AddAtom(atom)
+    iu, ju = np.nonzero(np.triu(orders, 1))
+    bonds = orders[iu, ju].tolist()
+    if any(o not in types for o in bonds):
+        return None
+    for i, j, o in zip(iu.tolist(), ju.tolist(), bonds):
+        rw.AddBond(i, j, types[o])
+    mol = rw.GetMol()
+    mol.UpdatePropertyCache(strict=False)
+    try:
+        Chem.SanitizeMol(mol, sanitizeOps=_sanitize_ops())
+    except (ValueError, RuntimeError):
+        return None
+    return mol
+
+
+def morgan_of_mol(
+    mol: Any, *, radius: int = 2, n_bits: int = 2048, counts: bool = False, with_atoms: bool = False
+) -> tuple[NDArray[np.int64], dict[int, set[int]] | None]:
+    """The Morgan fingerprint of one RDKit molecule and, if asked, the atoms behind each bit.
+
+    Parameters
+    ----------
+    mol : rdkit.Chem.Mol
+        A sanitized molecule (e.g. from :func:`mol_from_arrays`).
+    radius, n_bits, counts : int, int, bool
+        As in :func:`morgan_fingerprints` (the same generator and invariants).
+    with_atoms : bool, default=False
+        Also return, per set bit, the atoms of every environment that sets it
+        (its centre and the atoms within ``radius`` bonds that RDKit's bit
+        information lists).
+
+    Returns
+    -------
+    fingerprint : ndarray of int64, shape (n_bits,)
+        Bits (0/1) or counts, equal to the row :func:`morgan_fingerprints`
+        gives for the same molecule.
+    atoms : dict of int to set of int, or None
+        Bit -> atom indices (None unless ``with_atoms``).
+
+    Examples
+    --------
+    >>> from rdkit import Chem
+    >>> fp, atoms = morgan_of_mol(Chem.MolFromSmiles("CCO"), n_bits=64, with_atoms=True)
+    >>> int(fp.sum()) == len(atoms)
+    True
+    """
+    Chem, _ = rdkit_modules("morgan_of_mol")
+    generator = _morgan_generator(radius, n_bits)
+    if not with_atoms:
+        get = generator.GetCountFingerprintAsNumPy if counts else generator.GetFingerprintAsNumPy
+        return get(mol).astype(np.int64), None
+    rdFingerprintGenerator = require_extra("rdkit.Chem.rdFingerprintGenerator", "Morgan fingerprints")
+    extra = rdFingerprintGenerator.AdditionalOutput()
+    extra.AllocateBitInfoMap()
+    get = generator.GetCountFingerprintAsNumPy if counts else generator.GetFingerprintAsNumPy
+    fp = get(mol, additionalOutput=extra).astype(np.int64)
+    atoms: dict[int, set[int]] = {}
+    for bit, environments in extra.GetBitInfoMap().items():
+        found = atoms.setdefault(int(bit), set())
+        for centre, r in environments:
+            found.add(int(centre))
+            for b in Chem.FindAtomEnvironmentOfRadiusN(mol, int(r), int(centre)) if r else ():
+                bond = mol.GetBondWithIdx(b)
+                found.update((bond.GetBeginAtomIdx(), bond.GetEndAtomIdx()))
+    return fp, atoms
 
 
 @lru_cache(maxsize=8)
