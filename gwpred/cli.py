@@ -115,6 +115,8 @@ def _model_params(args: argparse.Namespace) -> dict[str, Any]:
         "random_state": args.seed,
         "progress": not args.quiet,
         "predict_with": args.predict_with,
+        "fingerprint_search": {"auto": "auto", "on": True, "off": False}[args.fingerprint_search],
+        "search_width": args.search_width,
     }
 
 
@@ -169,6 +171,14 @@ def _add_model_options(p: argparse.ArgumentParser, old_top_k: bool = True, kerne
                         "(more often exact, tens of times slower, one process); auto takes the first hypothesis "
                         "where it was closer to the truth on the calibration pairs (fit --calibration-share), "
                         "else the decoding (default: auto)")
+    g.add_argument("--fingerprint-search", nargs="?", const="on", default="off", choices=["auto", "on", "off"],
+                   help="molecules from Morgan fingerprints: edit each prediction until its own fingerprint "
+                        "matches the input as closely as a beam search finds (seconds per molecule, RDKit); on: "
+                        "check at fit that every feature row is the Morgan fingerprint of its training molecule "
+                        "(radius 1-3, bits or counts) and stop if not; auto: on only when they are; a bare "
+                        "--fingerprint-search means on (default: off)")
+    g.add_argument("--search-width", type=int, default=5,
+                   help="molecules kept per round of the fingerprint search (default: 5)")
     _add_label_options(g)
     g.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
 
