@@ -794,3 +794,33 @@ def test_predict_hypotheses_files_and_report(capsys, tmp_path, files, demo):
     assert "hypothesis #1" in html and "expected calibration error" in html
     expect_usage_error(capsys, ["predict", "--model", str(model), "--features", str(files["test_x"]), "--out",
                                 str(out), "--hypotheses", "0"], "--hypotheses must be at least 1")
+
+
+# --------------------------------------------------------------------------
+# fingerprint search
+
+
+def test_fit_fingerprint_search_on_morgan_fingerprints(capsys, tmp_path, demo, files):
+    # features = RDKit Morgan fingerprints (radius 2, 2048 bits) of the demo's QM9 molecules:
+    # fit checks them and predict edits towards them; every written SMILES parses (RDKit)
+    Chem = pytest.importorskip("rdkit.Chem")
+    from gwpred.chem import morgan_fingerprints
+
+    Xtr, Gtr, _, Gte = demo
+    np.save(tmp_path / "train.npy", morgan_fingerprints(Gtr))
+    np.save(tmp_path / "test.npy", morgan_fingerprints(Gte[:4]))
+    model = tmp_path / "fp.npz"
+    code, _, err = run(capsys, "fit", "--features", tmp_path / "train.npy", "--graphs", files["train_gj"],
+                       "--model", model, "--kernel", "tanimoto", "--fingerprint-search", "--search-width", "2", "-q")
+    assert code == 0, err
+    assert gwpred.load_model(model).fingerprint_search is True
+    out = tmp_path / "pred.smi"
+    code, _, err = run(capsys, "predict", "--model", model, "--features", tmp_path / "test.npy", "--out", out, "-q")
+    assert code == 0, err
+    lines = [ln.split()[0] for ln in out.read_text(encoding="utf-8").splitlines() if ln.strip()]
+    assert len(lines) == 4 and all(Chem.MolFromSmiles(s) is not None for s in lines)
+    # spectra are not fingerprints: refused with the reason, no model written
+    expect_usage_error(capsys, ["fit", "--features", files["train_x"], "--graphs", files["train_gj"],
+                                "--model", tmp_path / "no.npz", "--fingerprint-search", "on"],
+                       "fingerprint_search=True needs every row of X to be the Morgan fingerprint")
+    assert not (tmp_path / "no.npz").exists()
