@@ -977,7 +977,8 @@ class BarycenterGraphPredictor(BaseEstimator):
         """Predict from given training indices and barycentric weights instead of inputs.
 
         The step after :meth:`neighbors`: ``predict(X)`` is
-        ``predict_weighted(*neighbors(X))``.  Use it with weights of your own
+        ``predict_weighted(*neighbors(X))`` (without ``fingerprint_search``,
+        which needs the inputs themselves).  Use it with weights of your own
         (another similarity, a hand-picked set of training graphs).
 
         Parameters

@@ -118,7 +118,8 @@ def find_morgan_spec(
     -------
     spec : MorganSpec or None
         The first of radius 2, 1, 3 (bits or counts, ``n_bits = X.shape[1]``)
-        that reproduces every checked row; None when none does.
+        that reproduces every checked row; None when none does.  (On very
+        small molecules two radii can give the same fingerprints.)
     why : str
         When None: what is wrong (the first checked row that differs, and in
         how many positions at radius 2), for an error message.
@@ -126,9 +127,11 @@ def find_morgan_spec(
     Examples
     --------
     >>> from gwpred.chem import morgan_fingerprints
-    >>> O = np.array([[0, 1, 0], [1, 0, 2], [0, 2, 0]])  # C-C=O
-    >>> X = morgan_fingerprints(["CC=O"], radius=1, n_bits=256)
-    >>> find_morgan_spec(X, lambda i: (["C", "C", "O"], O))
+    >>> O = np.zeros((6, 6), dtype=int)  # butanoic acid, C-C-C-C(=O)-O
+    >>> for i, j, o in [(0, 1, 1), (1, 2, 1), (2, 3, 1), (3, 4, 2), (3, 5, 1)]:
+    ...     O[i, j] = O[j, i] = o
+    >>> X = morgan_fingerprints(["CCCC(=O)O"], radius=1, n_bits=256)
+    >>> find_morgan_spec(X, lambda i: (["C", "C", "C", "C", "O", "O"], O))
     (MorganSpec(radius=1, n_bits=256, counts=False), '')
     """
     rows = np.unique(np.linspace(0, len(X) - 1, min(n_check, len(X))).round().astype(np.int64))
