@@ -162,8 +162,11 @@ def find_morgan_spec(
     return None, why
 
 
-def graph_arrays(g: nx.Graph, labels: LabelSpace, orders: Sequence[int]) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """Node label indices and bond-order matrix of a graph with nodes ``0..n-1`` (a prediction)."""
+def graph_arrays(
+    g: nx.Graph, labels: LabelSpace, orders: Sequence[int] | NDArray[np.int64]
+) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """Node label indices and bond-order matrix (``orders``: bond order per edge label) of a graph
+    with nodes ``0..n-1``, labeled as ``labels`` (a prediction)."""
     index = {v: i for i, v in enumerate(labels.node_labels_)}
     edge_index = {v: i for i, v in enumerate(labels.edge_labels_)}
     n = g.number_of_nodes()

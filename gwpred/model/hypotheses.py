@@ -81,6 +81,7 @@ from ..wl import (
     wl_graph_hashes,
     wl_hash,
 )
+from .fingerprint_search import graph_arrays
 from .steps import (
     Neighbourhood,
     Settings,
@@ -371,15 +372,7 @@ def _chem(settings: Settings) -> _Chem | None:
 
 def _to_arrays(g: nx.Graph, labels: LabelSpace, chem: _Chem) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
     """Node label indices ``(n,)`` and bond-order matrix ``(n, n)`` of a graph with nodes 0..n-1."""
-    index = {v: i for i, v in enumerate(labels.node_labels_)}
-    edge_index = {v: i for i, v in enumerate(labels.edge_labels_)}
-    n = g.number_of_nodes()
-    cls = np.array([index[g.nodes[v][labels.node_label]] for v in range(n)], dtype=np.int64)
-    O = np.zeros((n, n), dtype=np.int64)
-    for u, v, d in g.edges(data=True):
-        lab = d.get(labels.edge_label) if labels.edge_label is not None else None
-        O[u, v] = O[v, u] = chem.class_order[edge_index.get(lab, 0)]
-    return cls, O
+    return graph_arrays(g, labels, chem.class_order)
 
 
 @lru_cache(maxsize=64)
