@@ -39,7 +39,7 @@ predicting process: one core.
 
 Needs the extra ``chem``::
 
-    python benchmarks/bench_druglike.py            # about 50 minutes on 2 cores
+    python benchmarks/bench_druglike.py            # about 35 minutes on 2 cores
     python benchmarks/bench_druglike.py --n-test 100
 """
 

@@ -54,7 +54,9 @@ __all__ = [
     "find_morgan_spec",
     "fingerprint_search",
     "graph_arrays",
+    "result_graph",
     "search_rows",
+    "search_starts",
     "training_arrays",
 ]
 
@@ -187,6 +189,51 @@ def training_arrays(training: TrainingSet, i: int, orders: Sequence[int]) -> tup
         O[edges[:, 0], edges[:, 1]] = np.asarray(orders, dtype=np.int64)[classes]
         O[edges[:, 1], edges[:, 0]] = O[edges[:, 0], edges[:, 1]]
     return training.node_classes(i).astype(np.int64), O
+
+
+def search_starts(
+    graphs: Sequence[nx.Graph],
+    formulas: Sequence[Any],
+    indices: NDArray[np.int64],
+    weights: NDArray[np.float64],
+    training: TrainingSet,
+    orders: Sequence[int],
+    n_starts: int,
+) -> tuple[list[list[tuple[NDArray[np.int64], NDArray[np.int64]]]], list[str]]:
+    """Per input, the search's starts and its ``formula`` mode (see :func:`fingerprint_search`).
+
+    Without a formula: the prediction and the ``n_starts`` highest-weight kept
+    training graphs.  With one (a :class:`~gwpred.formula.Formula`): the
+    formula's decoding alone, searched with moves that keep the heavy atoms
+    and, when it gives them, the hydrogens.
+    """
+    starts, kinds = [], []
+    for r, g in enumerate(graphs):
+        start = [graph_arrays(g, training.labels, orders)]
+        f = formulas[r]
+        if f is None:
+            by_weight = indices[r][np.argsort(-weights[r], kind="stable")[:n_starts]]
+            start += [training_arrays(training, int(i), orders) for i in by_weight]
+            kinds.append("")
+        else:
+            kinds.append("atoms" if f.hydrogens is None else "atoms+hydrogens")
+        starts.append(start)
+    return starts, kinds
+
+
+def result_graph(result: SearchResult, prediction: nx.Graph, labels: LabelSpace, orders: Sequence[int]) -> nx.Graph:
+    """The search's molecule as a graph with ``graph["fingerprint_similarity"]``; the prediction
+    itself (with its notes) when the search kept it."""
+    cls, O = graph_arrays(prediction, labels, orders)
+    if np.array_equal(cls, result.classes) and np.array_equal(O, result.orders):
+        g = prediction
+    else:
+        order_class = {int(o): c for c, o in enumerate(orders)}
+        iu, ju = np.nonzero(np.triu(result.orders, 1))
+        g = labels.build_graph(result.classes.tolist(), list(zip(iu.tolist(), ju.tolist())),
+                               [order_class[int(o)] for o in result.orders[iu, ju]])
+    g.graph["fingerprint_similarity"] = float(result.similarity)
+    return g
 
 
 def _similarity(a: NDArray[np.int64], b: NDArray[np.int64]) -> float:
