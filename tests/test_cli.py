@@ -822,5 +822,5 @@ def test_fit_fingerprint_search_on_morgan_fingerprints(capsys, tmp_path, demo, f
     # spectra are not fingerprints: refused with the reason, no model written
     expect_usage_error(capsys, ["fit", "--features", files["train_x"], "--graphs", files["train_gj"],
                                 "--model", tmp_path / "no.npz", "--fingerprint-search", "on"],
-                       "fingerprint_search=True needs every row of X to be the Morgan fingerprint")
+                       "fingerprint_search=True needs the rows of X to be the Morgan fingerprints")
     assert not (tmp_path / "no.npz").exists()

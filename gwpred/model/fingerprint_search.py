@@ -49,6 +49,7 @@ from ..codec import LabelSpace, TrainingSet
 
 __all__ = [
     "MAX_ROUNDS",
+    "MIN_SHARE",
     "MorganSpec",
     "SearchResult",
     "find_morgan_spec",
@@ -62,6 +63,9 @@ __all__ = [
 
 #: Rounds of beam expansion at most per input.
 MAX_ROUNDS = 40
+
+#: Share of the checked training rows that must equal the fingerprints of their graphs.
+MIN_SHARE = 0.9
 
 #: Radii tried, in this order, to explain the training inputs as Morgan fingerprints.
 RADII = (2, 1, 3)
@@ -114,17 +118,20 @@ def find_morgan_spec(
         ``molecule(i)`` gives training molecule ``i`` as (atom labels, bond-order
         matrix), the labels as :func:`gwpred.chem.mol_from_arrays` reads them.
     n_check : int, default=100
-        Rows checked (evenly spaced over ``X``); every one must match exactly.
+        Rows checked (evenly spaced over ``X``).
 
     Returns
     -------
     spec : MorganSpec or None
-        The first of radius 2, 1, 3 (bits or counts, ``n_bits = X.shape[1]``)
-        that reproduces every checked row; None when none does.  (On very
+        The radius of 2, 1, 3 (bits or counts, ``n_bits = X.shape[1]``) that
+        reproduces the most checked rows exactly, the first on ties, if it
+        reproduces at least :data:`MIN_SHARE` of them; else None.  (On very
         small molecules two radii can give the same fingerprints.)
     why : str
-        When None: what is wrong (the first checked row that differs, and in
-        how many positions at radius 2), for an error message.
+        Empty when every checked row matches; else how many differ and the
+        first of them (in how many positions, or that its graph is no
+        molecule RDKit accepts: charges kept outside the node labels, say),
+        for a warning or an error message.
 
     Examples
     --------
@@ -141,27 +148,31 @@ def find_morgan_spec(
     if sample.size == 0 or not np.all(np.isfinite(sample)) or sample.min() < 0 or not np.all(sample == np.round(sample)):
         return None, "X holds negative, fractional or non-finite values"
     counts = bool(sample.max() > 1)
-    mols = []
     _, rdBase = rdkit_modules("find_morgan_spec")
     with rdBase.BlockLogs():
-        for r in rows.tolist():
-            labels, O = molecule(r)
-            mol = mol_from_arrays(labels, O)
-            if mol is None:
-                return None, f"training graph {r} is not a molecule RDKit accepts"
-            mols.append(mol)
-    why = ""
+        mols = [mol_from_arrays(*molecule(r)) for r in rows.tolist()]  # None: RDKit refuses it
+    best: tuple[int, int, NDArray[np.bool_]] | None = None
     for radius in RADII:
-        got = np.array([morgan_of_mol(m, radius=radius, n_bits=X.shape[1], counts=counts)[0] for m in mols])
-        differ = np.flatnonzero((got != sample).any(1))
-        if differ.size == 0:
-            return MorganSpec(radius, int(X.shape[1]), counts), ""
-        if not why:
-            d = int(differ[0])
-            why = (f"row {int(rows[d])} of X differs from the radius-{radius} Morgan "
-                   f"{'counts' if counts else 'bits'} of its graph in {int((got[d] != sample[d]).sum())} of "
-                   f"{X.shape[1]} positions")
-    return None, why
+        same = np.array([m is not None and bool(np.array_equal(
+            morgan_of_mol(m, radius=radius, n_bits=X.shape[1], counts=counts)[0], x)) for m, x in zip(mols, sample)])
+        if best is None or same.sum() > best[1]:
+            best = (radius, int(same.sum()), same)
+    radius, n_same, same = best  # type: ignore[misc]
+    kind = "counts" if counts else "bits"
+    why = ""
+    if n_same < len(rows):
+        d = int(np.flatnonzero(~same)[0])
+        r = int(rows[d])
+        if mols[d] is None:
+            first = f"training graph {r}, as the model reads it, is not a molecule RDKit accepts"
+        else:
+            got = morgan_of_mol(mols[d], radius=radius, n_bits=X.shape[1], counts=counts)[0]
+            first = (f"row {r} of X differs from the radius-{radius} Morgan {kind} of its graph in "
+                     f"{int((got != sample[d]).sum())} of {X.shape[1]} positions")
+        why = f"{len(rows) - n_same} of {len(rows)} checked rows differ; the first: {first}"
+    if n_same < MIN_SHARE * len(rows):
+        return None, why
+    return MorganSpec(radius, int(X.shape[1]), counts), why
 
 
 def graph_arrays(
