@@ -325,6 +325,12 @@ def cmd_fit(args: argparse.Namespace) -> int:
     save_model(model, args.model)
     print(f"fitted on {len(graphs)} graphs in {time.perf_counter() - t0:.1f} s; "
           f"node labels {model.labels_.node_labels_}, edge labels {model.labels_.edge_labels_}")
+    spec = model.fingerprint_spec_
+    if spec is not None:
+        print(f"fingerprint search on: the features are Morgan {'counts' if spec.counts else 'bits'} of radius "
+              f"{spec.radius}, {spec.n_bits} long")
+    elif args.fingerprint_search == "auto":
+        print("fingerprint search off: the features are not Morgan fingerprints of the training graphs")
     print(f"model written to {args.model}")
     if note:
         print(note)

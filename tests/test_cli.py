@@ -810,9 +810,10 @@ def test_fit_fingerprint_search_on_morgan_fingerprints(capsys, tmp_path, demo, f
     np.save(tmp_path / "train.npy", morgan_fingerprints(Gtr))
     np.save(tmp_path / "test.npy", morgan_fingerprints(Gte[:4]))
     model = tmp_path / "fp.npz"
-    code, _, err = run(capsys, "fit", "--features", tmp_path / "train.npy", "--graphs", files["train_gj"],
+    code, stdout, err = run(capsys, "fit", "--features", tmp_path / "train.npy", "--graphs", files["train_gj"],
                        "--model", model, "--kernel", "tanimoto", "--fingerprint-search", "--search-width", "2", "-q")
     assert code == 0, err
+    assert "fingerprint search on: the features are Morgan bits of radius 2, 2048 long" in stdout
     assert gwpred.load_model(model).fingerprint_search is True
     out = tmp_path / "pred.smi"
     code, _, err = run(capsys, "predict", "--model", model, "--features", tmp_path / "test.npy", "--out", out, "-q")
