@@ -35,6 +35,7 @@ fingerprints can collide, and bits do not count repeats.
 
 from __future__ import annotations
 
+import hashlib
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -252,6 +253,15 @@ def _similarity(a: NDArray[np.int64], b: NDArray[np.int64]) -> float:
     return float(np.minimum(a, b).sum() / top) if top else 1.0
 
 
+def _digest(*parts: bytes) -> bytes:
+    """16 bytes standing for ``parts`` (the search remembers up to tens of thousands of molecules)."""
+    h = hashlib.blake2b(digest_size=16)
+    for part in parts:
+        h.update(len(part).to_bytes(8, "little"))
+        h.update(part)
+    return h.digest()
+
+
 def _hydrogens(mol: Any) -> int:
     return sum(atom.GetTotalNumHs() for atom in mol.GetAtoms())
 
@@ -428,13 +438,13 @@ def fingerprint_search(
     target = np.asarray(target).astype(np.int64)
     caps = np.asarray(valences, dtype=np.int64)
     hint = len(starts[0][0]) if starts else 0
-    seen: set[bytes] = set()  # arrays tried
-    kinds: set[bytes] = set()  # molecules kept, by atom labels and fingerprint
+    seen: set[bytes] = set()  # digests of the arrays tried
+    kinds: set[bytes] = set()  # digests of the molecules kept, by atom labels and fingerprint
     found = 0
 
     def member(cls: NDArray[np.int64], O: NDArray[np.int64]) -> _Member | None:
         nonlocal found
-        key = cls.tobytes() + O.tobytes()
+        key = _digest(cls.tobytes(), O.tobytes())
         if key in seen:
             return None
         seen.add(key)
@@ -445,7 +455,7 @@ def fingerprint_search(
             return None  # a swap of atoms with several valences (S, P) can change the hydrogens
         found += 1
         fp, _ = morgan_of_mol(mol, radius=spec.radius, n_bits=spec.n_bits, counts=spec.counts)
-        kind = np.sort(cls).tobytes() + fp.tobytes()  # renumberings of one molecule count once
+        kind = _digest(np.sort(cls).tobytes(), fp.tobytes())  # renumberings of one molecule count once
         if kind in kinds:
             return None
         kinds.add(kind)
