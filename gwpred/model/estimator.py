@@ -517,13 +517,13 @@ class BarycenterGraphPredictor(BaseEstimator):
         spec, why = None, ""
         if self.kernel == "precomputed":
             why = "with kernel='precomputed' the inputs are kernel values, not fingerprints"
-        elif not molecular_labels(training.labels):
-            why = ("the training graphs are not molecules (node labels element symbols, edge labels bond "
-                   "orders 1-3)")
-        elif not has_extra("rdkit"):
+        elif not has_extra("rdkit"):  # first: the valences of heavier elements come from RDKit
             if self.fingerprint_search is True:
                 require_extra("rdkit.Chem", "fingerprint_search")
             return None
+        elif not molecular_labels(training.labels):
+            why = ("the training graphs are not molecules (node labels element symbols, edge labels bond "
+                   "orders 1-3)")
         else:
             symbols = [str(v) for v in training.labels.node_labels_]
             orders = bond_orders(training.labels.edge_labels_, training.labels.edge_label) or [1]
